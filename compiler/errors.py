@@ -1,0 +1,9 @@
+"""The product's own error: raised for bad input anywhere, shown by the CLI as one line, exit 2."""
+
+
+class NodecastError(ValueError):
+    """Bad input or a refused operation; the message is one line that states the problem and fix."""
+
+
+class BundleError(NodecastError):
+    """A bundle file that cannot be trusted: corrupt, truncated, tampered with or from the future."""

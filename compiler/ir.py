@@ -1,0 +1,142 @@
+"""The network description (IR): the one immutable object between the trainer and every back-end.
+
+Coordinates. Inputs are normalised per feature, ``u = (x - input_offset) / input_scale``; the hidden
+layer works on ``u``; the output layer produces normalised targets ``v``, mapped back to target units
+by ``y = output_offset + output_scale * v``. For classifiers the outputs are per-class scores and the
+output scaling is the identity.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, fields
+from typing import Literal
+
+import numpy as np
+
+from nodecast.compiler.activations import get_activation
+
+Task = Literal["regression", "classification"]
+OUT_OF_DOMAIN_POLICIES = ("clamp", "pass", "reject")
+
+ARRAY_FIELDS = (
+    "hidden_weights",
+    "hidden_biases",
+    "output_weights",
+    "output_bias",
+    "input_offset",
+    "input_scale",
+    "output_offset",
+    "output_scale",
+    "domain_low",
+    "domain_high",
+)
+
+
+def _frozen_array(value, name: str, ndim: int) -> np.ndarray:
+    array = np.array(value, dtype=np.float64, copy=True)
+    if array.ndim != ndim:
+        raise ValueError(f"{name} must have {ndim} dimension(s), got shape {array.shape}")
+    if not np.all(np.isfinite(array)):
+        raise ValueError(f"{name} holds non-finite values")
+    array.setflags(write=False)
+    return array
+
+
+@dataclass(frozen=True, eq=False)
+class Network:
+    """A trained single-hidden-layer network with random hidden nodes.
+
+    Attributes
+    ----------
+    hidden_weights : ndarray of shape (n_nodes, n_features), acting on normalised inputs.
+    hidden_biases : ndarray of shape (n_nodes,)
+    activation : str, a name known to :mod:`nodecast.compiler.activations`.
+    output_weights : ndarray of shape (n_nodes, n_outputs), producing normalised outputs.
+    output_bias : ndarray of shape (n_outputs,)
+    input_offset, input_scale : ndarray of shape (n_features,)
+    output_offset, output_scale : ndarray of shape (n_outputs,)
+    domain_low, domain_high : ndarray of shape (n_features,), the declared input domain.
+    feature_names, feature_units : tuple of str, one per feature.
+    target_names, target_units : tuple of str, one per output (classifiers: one per class).
+    task : "regression" or "classification".
+    class_labels : tuple of str, the original labels of a classifier's outputs (empty otherwise).
+    """
+
+    hidden_weights: np.ndarray
+    hidden_biases: np.ndarray
+    activation: str
+    output_weights: np.ndarray
+    output_bias: np.ndarray
+    input_offset: np.ndarray
+    input_scale: np.ndarray
+    output_offset: np.ndarray
+    output_scale: np.ndarray
+    domain_low: np.ndarray
+    domain_high: np.ndarray
+    feature_names: tuple[str, ...]
+    target_names: tuple[str, ...]
+    feature_units: tuple[str, ...] = field(default=())
+    target_units: tuple[str, ...] = field(default=())
+    task: Task = "regression"
+    class_labels: tuple[str, ...] = field(default=())
+
+    def __post_init__(self) -> None:
+        dims = {"hidden_weights": 2, "output_weights": 2}
+        for name in ARRAY_FIELDS:
+            object.__setattr__(self, name, _frozen_array(getattr(self, name), name, dims.get(name, 1)))
+        get_activation(self.activation)
+        for name in ("feature_names", "target_names", "feature_units", "target_units", "class_labels"):
+            object.__setattr__(self, name, tuple(str(v) for v in getattr(self, name)))
+        if not self.feature_units:
+            object.__setattr__(self, "feature_units", ("",) * len(self.feature_names))
+        if not self.target_units:
+            object.__setattr__(self, "target_units", ("",) * len(self.target_names))
+        self._check_shapes()
+
+    def _check_shapes(self) -> None:
+        m, n = self.hidden_weights.shape
+        t = self.output_weights.shape[1]
+        expected = {
+            "hidden_biases": (m,), "output_weights": (m, t), "output_bias": (t,),
+            "input_offset": (n,), "input_scale": (n,), "output_offset": (t,),
+            "output_scale": (t,), "domain_low": (n,), "domain_high": (n,),
+        }
+        for name, shape in expected.items():
+            if getattr(self, name).shape != shape:
+                raise ValueError(f"{name} has shape {getattr(self, name).shape}, expected {shape}")
+        counts = {"feature_names": n, "feature_units": n, "target_names": t, "target_units": t}
+        for name, count in counts.items():
+            if len(getattr(self, name)) != count:
+                raise ValueError(f"{name} has {len(getattr(self, name))} entries, expected {count}")
+        if np.any(self.input_scale <= 0) or np.any(self.output_scale <= 0):
+            raise ValueError("input_scale and output_scale must be positive")
+        if np.any(self.domain_low > self.domain_high):
+            raise ValueError("domain_low must not exceed domain_high")
+        if self.task not in ("regression", "classification"):
+            raise ValueError(f"task must be 'regression' or 'classification', got {self.task!r}")
+        if self.task == "classification" and len(self.class_labels) != t:
+            raise ValueError(f"a classifier needs {t} class labels, got {len(self.class_labels)}")
+        if self.task == "regression" and self.class_labels:
+            raise ValueError("a regression network has no class labels")
+
+    @property
+    def n_features(self) -> int:
+        return self.hidden_weights.shape[1]
+
+    @property
+    def n_nodes(self) -> int:
+        return self.hidden_weights.shape[0]
+
+    @property
+    def n_outputs(self) -> int:
+        return self.output_weights.shape[1]
+
+    def arrays(self) -> dict[str, np.ndarray]:
+        """The numeric fields by name (read-only views)."""
+        return {name: getattr(self, name) for name in ARRAY_FIELDS}
+
+    def replace(self, **changes) -> Network:
+        """A copy with some fields changed (the IR itself never changes)."""
+        values = {f.name: getattr(self, f.name) for f in fields(self)}
+        values.update(changes)
+        return Network(**values)
