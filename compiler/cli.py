@@ -223,7 +223,9 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
 @click.option("--abs-tol", type=click.FloatRange(min=0), help="Tolerance in target units.")
 @click.option("--rel-tol", type=click.FloatRange(min=0), help="Tolerance, share of the output range.")
 @click.option("--report", type=click.Path(dir_okay=False), help="Write the JSON report here.")
-def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report):
+@click.option("--emulate", type=click.Choice(["cortex-m3", "cortex-m4"]),
+              help="C artifacts: run on an emulated Cortex-M (QEMU) instead of the host.")
+def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, emulate):
     """Run ARTIFACT in its real runtime and compare it with the bundle's reference."""
     from nodecast.compiler.csvio import read_table
     from nodecast.compiler.files import write_atomic
@@ -232,7 +234,8 @@ def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report):
 
     bundle = load_bundle(model)
     rows = read_table(data).numbers(bundle.network.feature_names) if data else None
-    result = run_verify(bundle, artifact, rows, probes, seed, abs_tol, rel_tol)
+    run_options = {"emulate": emulate} if emulate else {}
+    result = run_verify(bundle, artifact, rows, probes, seed, abs_tol, rel_tol, **run_options)
     click.echo(format_table(result))
     if report:
         text = json.dumps(result.as_dict(), indent=2, sort_keys=True) + "\n"
