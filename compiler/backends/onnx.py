@@ -1,15 +1,17 @@
 """ONNX back-end: a standard graph another team can load in any runtime, and trust.
 
-Graph, for n features, M nodes and t outputs (batch dimension dynamic):
+Graph, for n features, M nodes and t outputs (batch dimension dynamic, named "batch"):
 
-    features [N, n] -> (clamp: Max/Min with the domain) -> (unfolded: Sub offset, Div scale)
-      -> Gemm(A^T, b) -> Sigmoid | Tanh -> Gemm(B^T, c) -> outputs [N, t]
-    classifiers also: outputs -> ArgMax -> Gather(class labels) -> label [N]
-    with flag_out_of_domain: features -> inside the box? -> outside_domain [N] (bool)
+    features [batch, n] -> (clamp: Max/Min with the domain) -> (explicit scaling: Sub, Div)
+      -> Gemm(A^T, b) -> Sigmoid | Tanh -> Gemm(B^T, c) -> outputs [batch, t]
+    classifiers also: outputs -> ArgMax -> Gather(class labels) -> label [batch] (string)
+    with flag_out_of_domain: features -> outside the box or NaN? -> outside_domain [batch] (bool)
 
 Input scaling is folded into the first Gemm unless folding would grow the rounding of the
-pre-activations by more than ``FOLD_GROWTH_LIMIT`` (a deterministic rule computed from the IR on fixed
-probes, see :mod:`nodecast.compiler.passes.scaling`); output scaling is always folded.
+pre-activations by more than ``FOLD_GROWTH_LIMIT`` (the pre-activation term of the error estimate,
+computed from the IR on fixed probes: a deterministic rule, see
+:mod:`nodecast.compiler.passes.scaling`); output scaling is always folded, since it never costs more
+than the final rounding of the output.
 """
 
 from __future__ import annotations
@@ -22,20 +24,26 @@ from nodecast.compiler.backends import Artifact
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.numerics import estimate
 from nodecast.compiler.passes.scaling import (
+    FOLD_GROWTH_LIMIT,
     folded_input_layer,
     folded_output_layer,
     should_fold_inputs,
 )
 from nodecast.compiler.version import __version__
 
-DEFAULT_OPSET = 21
-SUPPORTED_OPSETS = (17, 18, 19, 20, 21)
+# The newest operator set that both the onnx checker and onnxruntime we test with accept (onnx 1.23,
+# onnxruntime 1.32), pinned so that output bytes do not change with library upgrades.
+DEFAULT_OPSET = 28
+# IR version that goes with each opset, from the ONNX versioning table (onnx.helper.VERSION_TABLE).
+IR_VERSION_FOR_OPSET = {18: 8, 19: 9, 20: 9, 21: 10, 22: 10, 23: 11, 24: 12, 25: 13, 26: 13,
+                        27: 13, 28: 14}
+SUPPORTED_OPSETS = tuple(IR_VERSION_FOR_OPSET)
 PRECISIONS = ("float32", "float64")
 INPUT_NAME = "features"
 OUTPUT_NAME = "outputs"
 LABEL_NAME = "label"
 FLAG_NAME = "outside_domain"
-_OP = {"logistic": "Sigmoid", "tanh": "Tanh"}
+_ACTIVATION_OP = {"logistic": "Sigmoid", "tanh": "Tanh"}
 
 
 def render(bundle, precision: str = "float32", opset: int = DEFAULT_OPSET,
@@ -43,136 +51,151 @@ def render(bundle, precision: str = "float32", opset: int = DEFAULT_OPSET,
     if precision not in PRECISIONS:
         raise NodecastError(f"ONNX takes precision float32 or float64, not {precision!r}")
     if opset not in SUPPORTED_OPSETS:
-        raise NodecastError(f"opset {opset!r} is not supported; choose one of {SUPPORTED_OPSETS}")
+        raise NodecastError(f"opset {opset!r} is not supported; choose one of "
+                            f"{SUPPORTED_OPSETS[0]}..{SUPPORTED_OPSETS[-1]}")
     if out_of_domain not in ("pass", "clamp"):
-        raise NodecastError(f"ONNX takes out-of-domain policy 'pass' or 'clamp', not {out_of_domain!r}")
+        raise NodecastError(f"ONNX takes out-of-domain policy 'pass' or 'clamp', not {out_of_domain!r}"
+                            " (a graph cannot refuse a row; use --flag-out-of-domain to mark them)")
     model, summary = build_model(bundle, precision, opset, out_of_domain, flag_out_of_domain)
     return Artifact("onnx", {"model.onnx": model.SerializeToString(deterministic=True)}, True, summary)
 
 
-def build_model(bundle, precision="float32", opset=DEFAULT_OPSET, out_of_domain="pass",
-                flag_out_of_domain=False):
-    """Return (ModelProto, summary) for the bundle's network; checked with full_check."""
-    import onnx
-    from onnx import TensorProto, helper, numpy_helper
+class _Graph:
+    """Nodes and initializers of one graph, in the artifact's float type."""
 
-    net = bundle.network
-    dtype = np.float32 if precision == "float32" else np.float64
-    elem = TensorProto.FLOAT if precision == "float32" else TensorProto.DOUBLE
-    init = []
+    def __init__(self, precision: str):
+        from onnx import TensorProto
 
-    def const(name, value):
-        init.append(numpy_helper.from_array(np.asarray(value, dtype=dtype), name))
+        self.dtype = np.float32 if precision == "float32" else np.float64
+        self.elem = TensorProto.FLOAT if precision == "float32" else TensorProto.DOUBLE
+        self.nodes, self.initializers = [], []
+
+    def const(self, name: str, value, dtype=None) -> str:
+        from onnx import numpy_helper
+
+        array = np.asarray(value, dtype=dtype or self.dtype)
+        self.initializers.append(numpy_helper.from_array(array, name))
         return name
 
-    nodes, x = [], INPUT_NAME
+    def node(self, op: str, inputs, output: str, **attributes) -> str:
+        from onnx import helper
+
+        self.nodes.append(helper.make_node(op, list(inputs), [output], **attributes))
+        return output
+
+
+def _hidden_input(g: _Graph, net, out_of_domain: str):
+    """The tensor the first Gemm reads, with the weights and biases that act on it."""
+    x = INPUT_NAME
     if out_of_domain == "clamp":
-        nodes.append(helper.make_node("Max", [x, const("domain_low", net.domain_low)], ["above_low"]))
-        nodes.append(helper.make_node("Min", ["above_low", const("domain_high", net.domain_high)],
-                                      ["clamped"]))
-        x = "clamped"
-    fold = should_fold_inputs(net)
-    if fold:
+        x = g.node("Max", [x, g.const("domain_low", net.domain_low)], "above_low")
+        x = g.node("Min", [x, g.const("domain_high", net.domain_high)], "clamped")
+    if should_fold_inputs(net):
         weights, biases = folded_input_layer(net)
-    else:
-        nodes.append(helper.make_node("Sub", [x, const("input_offset", net.input_offset)], ["shifted"]))
-        nodes.append(helper.make_node("Div", ["shifted", const("input_scale", net.input_scale)],
-                                      ["normalised"]))
-        x, weights, biases = "normalised", net.hidden_weights, net.hidden_biases
+        return x, weights, biases, "folded"
+    x = g.node("Sub", [x, g.const("input_offset", net.input_offset)], "shifted")
+    x = g.node("Div", [x, g.const("input_scale", net.input_scale)], "normalised")
+    return x, net.hidden_weights, net.hidden_biases, "explicit"
+
+
+def _label_stage(g: _Graph, net) -> None:
+    g.const("class_labels", np.array(net.class_labels, dtype=object), dtype=object)
+    best = g.node("ArgMax", [OUTPUT_NAME], "best_class", axis=1, keepdims=0)
+    g.node("Gather", ["class_labels", best], LABEL_NAME, axis=0)
+
+
+def _flag_stage(g: _Graph, net) -> None:
+    """outside_domain: True where any feature is below, above, or NaN (comparisons with NaN fail)."""
+    from onnx import TensorProto
+
+    below_ok = g.node("GreaterOrEqual", [INPUT_NAME, g.const("flag_low", net.domain_low)], "not_below")
+    above_ok = g.node("LessOrEqual", [INPUT_NAME, g.const("flag_high", net.domain_high)], "not_above")
+    inside = g.node("And", [below_ok, above_ok], "feature_inside")
+    inside = g.node("Cast", [inside], "feature_inside_int", to=TensorProto.INT32)
+    axes = g.const("flag_axes", [1], dtype=np.int64)
+    row = g.node("ReduceMin", [inside, axes], "row_inside", keepdims=0)
+    g.node("Equal", [row, g.const("flag_zero", 0, dtype=np.int32)], FLAG_NAME)
+
+
+def build_model(bundle, precision="float32", opset=DEFAULT_OPSET, out_of_domain="pass",
+                flag_out_of_domain=False):
+    """Return (ModelProto, summary) for the bundle's network, checked with ``full_check``."""
+    import onnx
+    from onnx import TensorProto, helper
+
+    net = bundle.network
+    g = _Graph(precision)
+    x, weights, biases, scaling = _hidden_input(g, net, out_of_domain)
     out_weights, out_bias = folded_output_layer(net)
-    nodes += [
-        helper.make_node("Gemm", [x, const("hidden_weights", weights), const("hidden_biases", biases)],
-                         ["pre_activation"], transB=1),
-        helper.make_node(_OP[net.activation], ["pre_activation"], ["hidden"]),
-        helper.make_node("Gemm", ["hidden", const("output_weights", out_weights.T),
-                                  const("output_bias", out_bias)], [OUTPUT_NAME], transB=1),
-    ]
-    outputs = [helper.make_tensor_value_info(OUTPUT_NAME, elem, ["batch", net.n_outputs])]
+    z = g.node("Gemm", [x, g.const("hidden_weights", weights), g.const("hidden_biases", biases)],
+               "pre_activation", transB=1)
+    h = g.node(_ACTIVATION_OP[net.activation], [z], "hidden")
+    g.node("Gemm", [h, g.const("output_weights", out_weights.T), g.const("output_bias", out_bias)],
+           OUTPUT_NAME, transB=1)
+    outputs = [helper.make_tensor_value_info(OUTPUT_NAME, g.elem, ["batch", net.n_outputs])]
     if net.task == "classification":
-        init.append(numpy_helper.from_array(np.array(net.class_labels, dtype=object), "class_labels"))
-        nodes += [helper.make_node("ArgMax", [OUTPUT_NAME], ["best"], axis=1, keepdims=0),
-                  helper.make_node("Gather", ["class_labels", "best"], [LABEL_NAME], axis=0)]
+        _label_stage(g, net)
         outputs.append(helper.make_tensor_value_info(LABEL_NAME, TensorProto.STRING, ["batch"]))
     if flag_out_of_domain:
-        nodes += _flag_nodes(helper, TensorProto, const, net)
+        _flag_stage(g, net)
         outputs.append(helper.make_tensor_value_info(FLAG_NAME, TensorProto.BOOL, ["batch"]))
-    err = estimate(net, precision)
-    graph = helper.make_graph(
-        nodes, "nodecast_network",
-        [helper.make_tensor_value_info(INPUT_NAME, elem, ["batch", net.n_features])],
-        outputs, initializer=init)
-    summary = {"precision": precision, "opset": opset, "input_scaling": "folded" if fold else
-               "explicit", "estimate": err.as_dict(), "nodes": len(nodes)}
-    model = helper.make_model(
-        graph, producer_name="nodecast", producer_version=__version__,
-        opset_imports=[helper.make_opsetid("", opset)], ir_version=_ir_version(opset),
-        doc_string=_doc(bundle, summary, out_of_domain))
+    inputs = [helper.make_tensor_value_info(INPUT_NAME, g.elem, ["batch", net.n_features])]
+    graph = helper.make_graph(g.nodes, "nodecast_network", inputs, outputs, initializer=g.initializers)
+    summary = {"precision": precision, "opset": opset, "input_scaling": scaling,
+               "out_of_domain": out_of_domain, "estimate": estimate(net, precision).as_dict(),
+               "nodes": len(g.nodes)}
+    model = helper.make_model(graph, producer_name="nodecast", producer_version=__version__,
+                              opset_imports=[helper.make_opsetid("", opset)],
+                              ir_version=IR_VERSION_FOR_OPSET[opset], doc_string=_doc(bundle, summary))
     model.model_version = 1
-    helper.set_model_props(model, _metadata(bundle, summary, out_of_domain))
+    helper.set_model_props(model, _metadata(bundle, summary))
     onnx.checker.check_model(model, full_check=True)
     return model, summary
 
 
-def _flag_nodes(helper, TensorProto, const, net):
-    """Nodes computing outside_domain: True where any feature is below, above or NaN."""
-    from onnx import numpy_helper
-
-    axes = numpy_helper.from_array(np.array([1], dtype=np.int64))
-    zero = numpy_helper.from_array(np.array(0, dtype=np.int32))
-    return [
-        helper.make_node("GreaterOrEqual", [INPUT_NAME, const("flag_low", net.domain_low)],
-                         ["not_below"]),
-        helper.make_node("LessOrEqual", [INPUT_NAME, const("flag_high", net.domain_high)],
-                         ["not_above"]),
-        helper.make_node("And", ["not_below", "not_above"], ["feature_inside"]),
-        helper.make_node("Cast", ["feature_inside"], ["feature_inside_int"], to=TensorProto.INT32),
-        helper.make_node("Constant", [], ["flag_axes"], value=axes),
-        helper.make_node("ReduceMin", ["feature_inside_int", "flag_axes"], ["row_inside"], keepdims=0),
-        helper.make_node("Constant", [], ["flag_zero"], value=zero),
-        helper.make_node("Equal", ["row_inside", "flag_zero"], [FLAG_NAME]),
-    ]
-
-
-def _ir_version(opset: int) -> int:
-    # IR version paired with each opset by the ONNX versioning table (onnx/helper.py VERSION_TABLE).
-    return {17: 8, 18: 8, 19: 9, 20: 9, 21: 10}[opset]
-
-
-def _metadata(bundle, summary, out_of_domain) -> dict[str, str]:
+def _metadata(bundle, summary) -> dict[str, str]:
     net = bundle.network
-    domain = {name: [float(lo), float(hi)] for name, lo, hi in
-              zip(net.feature_names, net.domain_low, net.domain_high)}
     return {
         "nodecast.bundle_id": bundle.bundle_id,
+        "nodecast.tool_version": __version__,
+        "nodecast.task": net.task,
+        "nodecast.input": INPUT_NAME,
         "nodecast.feature_names": json.dumps(list(net.feature_names)),
         "nodecast.feature_units": json.dumps(list(net.feature_units)),
         "nodecast.target_names": json.dumps(list(net.target_names)),
         "nodecast.target_units": json.dumps(list(net.target_units)),
-        "nodecast.domain": json.dumps([domain[name] for name in net.feature_names]),
-        "nodecast.task": net.task,
         "nodecast.class_labels": json.dumps(list(net.class_labels)),
+        "nodecast.domain": json.dumps([[float(lo), float(hi)] for lo, hi in
+                                       zip(net.domain_low, net.domain_high)]),
         "nodecast.precision": summary["precision"],
-        "nodecast.out_of_domain": out_of_domain,
+        "nodecast.out_of_domain": summary["out_of_domain"],
+        "nodecast.input_scaling": summary["input_scaling"],
         "nodecast.error_estimate": json.dumps(summary["estimate"]["per_output"]),
     }
 
 
-def _doc(bundle, summary, out_of_domain) -> str:
+def _doc(bundle, summary) -> str:
     net = bundle.network
     lines = [f"nodecast {__version__} network, bundle {bundle.bundle_id}.",
-             f"Input '{INPUT_NAME}' [batch, {net.n_features}], {summary['precision']}, features in order:"]
+             f"Input {INPUT_NAME!r} [batch, {net.n_features}] {summary['precision']}, features in order "
+             "(name, unit, declared domain):"]
     for i, (name, unit, lo, hi) in enumerate(zip(net.feature_names, net.feature_units,
                                                  net.domain_low, net.domain_high)):
-        lines.append(f"  {i}: {json.dumps(name)} [{json.dumps(unit)}] domain {lo!r} .. {hi!r}")
-    lines.append(f"Output '{OUTPUT_NAME}' [batch, {net.n_outputs}]:")
+        lines.append(f"  {i}: {json.dumps(name)} {json.dumps(unit)} {float(lo)!r} .. {float(hi)!r}")
+    lines.append(f"Output {OUTPUT_NAME!r} [batch, {net.n_outputs}] (name, unit):")
     for i, (name, unit) in enumerate(zip(net.target_names, net.target_units)):
-        lines.append(f"  {i}: {json.dumps(name)} [{json.dumps(unit)}]")
+        lines.append(f"  {i}: {json.dumps(name)} {json.dumps(unit)}")
     if net.task == "classification":
-        lines.append(f"Output '{LABEL_NAME}' [batch]: the class label of the highest score.")
+        lines.append(f"Output {LABEL_NAME!r} [batch]: the class label of the highest score "
+                     "(scores are least-squares fits of class indicators, not probabilities).")
     lines += [
-        f"Out-of-domain inputs: {out_of_domain}; input scaling {summary['input_scaling']}.",
-        f"Estimated max abs error vs the float64 model: {summary['estimate']['per_output']!r}.",
+        f"Inputs outside the domain: {summary['out_of_domain']}. Input scaling "
+        f"{summary['input_scaling']} (folded unless that grows pre-activation rounding over "
+        f"{FOLD_GROWTH_LIMIT:g}x).",
+        f"Estimated max abs error vs the float64 model, per output: "
+        f"{summary['estimate']['per_output']!r}.",
         "A fitted model is not a safety function: verify it on the declared input domain, guard "
-        "inputs outside it, and follow the functional-safety standards and codes that apply.",
+        "inputs outside it, and follow the functional-safety standards, codes and licensed "
+        "practice that apply.",
     ]
     return "\n".join(lines)
