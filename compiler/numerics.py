@@ -10,7 +10,10 @@ matter, in normalised output units, are
 * summation: adding t_j to the running sum s_j rounds at about u |s_j|, so a sum whose partial sums
   grow large and cancel (an ill-conditioned output layer) loses accuracy even when its terms do not;
 * the hidden layer: z_j is rounded at about u (|b_j| + sum_i |a_ji u_i|), and that error reaches the
-  output through the activation slope, as |beta_j| g'(z_j) times it.
+  output through the activation slope, as |beta_j| g'(z_j) times it;
+* the inputs themselves: below float64, each x_i is rounded to the artifact's precision when it is
+  handed over, which moves z_j by about u sum_i |a_ji x_i| / scale_i (large for a domain that is
+  narrow and far from zero, such as 1000..1001, whatever the graph does with it).
 
 Independent roundings add like a random walk, so the estimate for one probe is the root sum of
 squares of all those contributions, and the estimate reported is ``COVERAGE`` times its maximum over
@@ -84,7 +87,8 @@ def estimate(net: Network, precision: str, X: np.ndarray | None = None,
     typical = np.zeros(net.n_outputs)
     worst = np.zeros(net.n_outputs)
     for start in range(0, X.shape[0], _BLOCK):
-        block_typical, block_worst = _block_terms(net, X[start : start + _BLOCK], unit)
+        block_typical, block_worst = _block_terms(net, X[start : start + _BLOCK],
+                                                  rounds_inputs=precision != "float64")
         typical = np.maximum(typical, block_typical)
         worst = np.maximum(worst, block_worst)
     systematic = activation_error * np.abs(net.output_weights).sum(axis=0)
@@ -95,7 +99,7 @@ def estimate(net: Network, precision: str, X: np.ndarray | None = None,
                          tuple(float(v) for v in bound), int(X.shape[0]))
 
 
-def _block_terms(net: Network, X: np.ndarray, unit: float):
+def _block_terms(net: Network, X: np.ndarray, rounds_inputs: bool):
     """Per output: max over the block of the root-sum-square rounding size (in units of u), and of
     the two worst-case sums (terms, pre-activations) that gamma_k multiplies."""
     act = get_activation(net.activation)
@@ -103,6 +107,8 @@ def _block_terms(net: Network, X: np.ndarray, unit: float):
     Z = U @ net.hidden_weights.T + net.hidden_biases
     H, slope = act.function(Z), act.derivative(Z)
     z_size = np.abs(U) @ np.abs(net.hidden_weights).T + np.abs(net.hidden_biases)
+    if rounds_inputs:
+        z_size += np.abs(X / net.input_scale) @ np.abs(net.hidden_weights).T
     typical = np.zeros((X.shape[0], net.n_outputs))
     worst_terms = np.zeros_like(typical)
     worst_hidden = np.zeros_like(typical)
