@@ -112,8 +112,11 @@ def train(data, target, features, domain, units, method, nodes, neighbors, slope
     """Train a network on DATA.csv and save it as a bundle."""
     from nodecast.compiler.bundle import save
     from nodecast.compiler.csvio import read_table
+    from nodecast.compiler.files import refuse_existing
     from nodecast.trainer.training import TrainingJob
     from nodecast.trainer.training import train as run_training
+
+    refuse_existing(Path(output), overwrite)  # before training, not after minutes of it
 
     job = TrainingJob(
         targets=parse_list(target, option="--target"), features=parse_list(features, option="--features"),
@@ -151,7 +154,7 @@ def predict(model, data, output, scores, overwrite):
     from nodecast.compiler.files import write_atomic
 
     net = load_bundle(model).network
-    X = read_table(data).numbers(net.feature_names)
+    X = read_table(data).numbers(net.feature_names, allow_nonfinite=True)
     Y = reference.predict(net, X)
     if net.task == "classification":
         labels = [net.class_labels[i] for i in Y.argmax(axis=1)]
@@ -194,9 +197,13 @@ def inspect(model, precision, as_json):
 @click.option("-o", "--output", required=True, type=click.Path(),
               help="Output file (onnx, python) or folder (c).")
 @click.option("--overwrite", is_flag=True, help="Replace existing output files.")
-def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, prefix, output, overwrite):
+@click.option("--max-artifact-size", "max_size", default="64M", show_default=True,
+              help="Refuse to write an artifact larger than this (bytes, or with K, M, G).")
+def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, prefix, output, overwrite,
+         max_size):
     """Compile a bundle into an artifact for a target."""
     from nodecast.compiler import emit as emit_artifact
+    from nodecast.compiler.files import parse_size
 
     options = {"out_of_domain": out_of_domain}
     if precision:
@@ -207,7 +214,8 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
         options["opset"] = opset
     if target == "c":
         options["prefix"] = prefix
-    artifact = emit_artifact(load_bundle(model), target, output, overwrite=overwrite, **options)
+    artifact = emit_artifact(load_bundle(model), target, output, overwrite=overwrite,
+                             max_bytes=parse_size(max_size), **options)
     estimate = artifact.summary.get("estimate", {})
     click.echo(f"wrote {output} ({target}, {artifact.summary.get('precision', '?')}); estimated max "
                f"abs error {estimate.get('max_abs_error', float('nan')):.3e}", err=True)
@@ -246,10 +254,21 @@ def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, emulat
 @cli.command(epilog=_epilog("demo"))
 @click.option("-o", "--output", default="demo-out", show_default=True, type=click.Path(file_okay=False),
               help="Folder for the demo's data, bundle, artifacts and reports.")
-def demo(output):
-    """Run the whole job on the built-in demo scenario (a cooling-fan controller)."""
-    from nodecast.compiler.demo import run_demo
+@click.option("--data-only", is_flag=True,
+              help="Only write the demo data (readings.csv, held_out.csv), for your own experiments.")
+def demo(output, data_only):
+    """Run the whole job on the built-in demo scenario (a cooling-fan controller).
 
+    The scenario is invented: four sensor readings of a made-up power stage (ambient temperature,
+    fan speed, load current, supply voltage) and its heatsink temperature, from a made-up formula
+    plus noise.
+    """
+    from nodecast.compiler.demo import run_demo, write_data
+
+    if data_only:
+        write_data(Path(output))
+        click.echo(f"wrote {Path(output) / 'readings.csv'} and {Path(output) / 'held_out.csv'}", err=True)
+        return
     sys.exit(run_demo(Path(output), echo=click.echo))
 
 

@@ -39,6 +39,15 @@ def write_csv(path: Path, table: np.ndarray) -> None:
     path.write_text(write_table(list(FEATURES) + [TARGET], table.tolist()), encoding="utf-8")
 
 
+def write_data(folder: Path) -> tuple[np.ndarray, np.ndarray]:
+    """Write readings.csv (2,000 noisy rows) and held_out.csv (500 noiseless rows) into ``folder``."""
+    folder.mkdir(parents=True, exist_ok=True)
+    train_rows, test_rows = make_readings(2000, seed=1), make_readings(500, seed=2, noise=0.0)
+    write_csv(folder / "readings.csv", train_rows)
+    write_csv(folder / "held_out.csv", test_rows)
+    return train_rows, test_rows
+
+
 def _held_out_rmse(net, table) -> float:
     from nodecast.compiler.reference import predict
 
@@ -52,10 +61,7 @@ def run_demo(folder: Path, echo=print) -> int:
     from nodecast.compiler.verify import format_table, verify
     from nodecast.trainer.training import TrainingJob, train
 
-    folder.mkdir(parents=True, exist_ok=True)
-    train_rows, test_rows = make_readings(2000, seed=1), make_readings(500, seed=2, noise=0.0)
-    write_csv(folder / "readings.csv", train_rows)
-    write_csv(folder / "held_out.csv", test_rows)
+    train_rows, test_rows = write_data(folder)
     job = TrainingJob(targets=(TARGET,), features=FEATURES, domain=DOMAIN, units=UNITS, seed=0,
                       params={"n_nodes": 200})
     table = read_table(folder / "readings.csv")
