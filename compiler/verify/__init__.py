@@ -1,29 +1,60 @@
 """Verification: run an artifact in its real runtime on probes of the declared domain and compare it
 with the float64 reference, within a stated tolerance.
 
-Report schema (``Report.as_dict``): ``passed`` (bool), ``max_abs_error`` and ``max_rel_error``
-(floats; relative to the output range over the in-domain probes), ``tolerance`` (per output, with the
-rule that set it), ``probes`` (seed, count per family), ``families`` (per family: count, errors, the
-worst input and whether the out-of-domain policy was honoured), ``artifact`` (kind, precision, policy)
-and ``bundle_id``.
+Report schema (``Report.as_dict()``; also what ``verify --report`` writes):
+
+``passed`` (bool)
+    Every family of every runtime engine passed.
+``bundle_id`` (str), ``task`` ("regression" or "classification")
+``artifact`` (object)
+    ``path``, ``kind``, ``precision``, ``out_of_domain`` (policy), ``engines`` (the runtimes it ran
+    in, e.g. onnxruntime and the ONNX reference evaluator), and what the runner's ``describe`` said.
+``outputs`` (object)
+    ``names`` and ``units`` of the outputs (classifiers: one score per class).
+``max_abs_error`` (number, target units), ``max_rel_error`` (number)
+    Largest over all families and engines; relative to each output's range over the in-domain
+    probes. An infinite error is written "inf".
+``tolerance`` (object)
+    ``per_output``, ``rule``, ``source`` ("derived", "abs-tol", "rel-tol"), ``precision``,
+    ``safety_factor``, ``estimate`` and ``reference_rounding`` (per output): the in-domain
+    tolerance.
+``estimate`` (object)
+    The export-error estimate for the artifact's precision (:mod:`nodecast.compiler.numerics`).
+``probes`` (object)
+    ``seed``, ``sobol`` (the quasi-random count asked for), ``total``, ``families`` (count by name).
+``families`` (list)
+    One record per engine and family: ``engine``, ``family``, ``count``, ``compared``, ``rejected``,
+    ``policy``, ``policy_honoured``, ``policy_violation``, ``tolerance`` (per output, as applied to
+    this family), ``max_abs_error``, ``max_rel_error``, ``worst_input``, ``worst_output``,
+    ``within_tolerance``, ``passed``; classifiers also ``labels`` (``disagreements``,
+    ``near_tie_flips``, ``near_ties``).
+``notes`` (list of str)
+    Plain-language reasons: why a tolerance was too tight, what a failure suggests.
 """
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
-from nodecast.compiler import numerics, reference
+from nodecast.compiler import numerics
 from nodecast.compiler.errors import NodecastError
+from nodecast.compiler.verify.compare import compare_family, expected_outputs
 from nodecast.compiler.verify.probes import probe_families
+from nodecast.compiler.verify.report import format_table
 from nodecast.compiler.verify.runners import detect_kind, runner
-from nodecast.compiler.verify.tolerance import derive
+from nodecast.compiler.verify.tolerance import derive, for_points
+
+__all__ = ["Report", "check", "format_table", "verify"]
 
 
 @dataclass(frozen=True)
 class Report:
+    """The outcome of one verification: ``passed`` and the report document (schema above)."""
+
     passed: bool
     document: dict
 
@@ -31,88 +62,140 @@ class Report:
         return self.document
 
 
-def _expected(net, X, policy):
-    return reference.predict(net, X, "clamp" if policy == "clamp" else "pass")
+def _describe(module, path: Path, bundle, run_options: dict) -> dict:
+    info = dict(module.describe(path, **run_options))
+    if info.get("bundle_id") != bundle.bundle_id:
+        raise NodecastError(f"{path} was generated from bundle {str(info.get('bundle_id'))[:12]}"
+                            f"..., not from this bundle {bundle.bundle_id[:12]}...; verify it "
+                            "against the bundle it was emitted from")
+    policy = info.get("out_of_domain")
+    if policy not in ("clamp", "pass", "reject"):
+        raise NodecastError(f"{path} declares an unknown out-of-domain policy {policy!r}")
+    return info
 
 
-def _family_result(net, family, got, policy, tol, out_range):
-    want = _expected(net, family.X, policy)
-    rejected = np.all(np.isnan(got), axis=1)
-    outside = reference.outside_domain(net, family.X)
-    should_reject = outside if policy == "reject" else np.zeros_like(outside)
-    policy_ok = bool(np.array_equal(rejected, should_reject))
-    compared = ~should_reject
-    err = np.abs(got[compared] - want[compared])
-    err = np.where(np.isnan(err), np.inf, err)
-    result = {"family": family.name, "count": int(family.X.shape[0]), "policy_honoured": policy_ok,
-              "max_abs_error": 0.0, "max_rel_error": 0.0, "worst_input": None}
-    if err.size:
-        worst_row, worst_col = np.unravel_index(np.argmax(err / tol), err.shape)
-        result.update(max_abs_error=float(err.max()),
-                      max_rel_error=float(np.max(err / out_range)),
-                      worst_input=[float(v) for v in family.X[compared][worst_row]],
-                      within=bool(np.all(err <= tol)))
-    else:
-        result["within"] = True
-    result["passed"] = policy_ok and result["within"]
-    return result
+def _run(module, path: Path, X: np.ndarray, info: dict, n_outputs: int) -> np.ndarray:
+    got = np.asarray(module.run(path, X, info), dtype=np.float64)
+    if got.shape != (X.shape[0], n_outputs):
+        raise NodecastError(f"{path} returned outputs of shape {got.shape} for {X.shape[0]} rows; "
+                            f"expected ({X.shape[0]}, {n_outputs})")
+    return got
 
 
-def verify(bundle, artifact, data: np.ndarray | None = None, count: int = 4096, seed: int = 0,
+def _tolerances(net, families, info, abs_tol, rel_tol):
+    """(in-domain tolerance, per-family tolerance list, output range, estimate)."""
+    precision, act_err = info["precision"], info.get("activation_error", 0.0)
+    inside = expected_outputs(net, np.vstack([f.X for f in families if f.inside_domain]), "pass")
+    out_range = np.maximum(inside.max(axis=0) - inside.min(axis=0), np.finfo(float).tiny)
+    est = numerics.estimate(net, precision, activation_error=act_err)
+    ref = numerics.estimate(net, "float64")
+    tolerance = derive(est, ref, abs_tol, rel_tol, out_range)
+    per_family = []
+    for family in families:
+        if family.inside_domain or info["out_of_domain"] != "pass":
+            per_family.append(tolerance)
+        else:  # evaluated as given, outside the box the estimate covers
+            per_family.append(for_points(tolerance, numerics.estimate(
+                net, precision, X=family.X, activation_error=act_err),
+                numerics.estimate(net, "float64", X=family.X)))
+    return tolerance, per_family, out_range, est
+
+
+def _notes(tolerance, est, results) -> list[str]:
+    notes = []
+    low = tolerance.below_estimate()
+    if low:
+        k = low[0]
+        notes.append(f"the tolerance {tolerance.per_output[k]:.3e} ({tolerance.rule}) is below "
+                     f"this artifact's {tolerance.precision} export-error estimate "
+                     f"{est.per_output[k]:.3e}: rounding alone may exceed it; the derived default "
+                     f"is {tolerance.safety_factor:g} x the estimate + the float64 reference's "
+                     "rounding")
+    failed = [r for r in results if not r["within_tolerance"]]
+    if failed and tolerance.source == "derived":
+        notes.append("errors beyond the derived tolerance mean the artifact does not compute this "
+                     "model (changed weights, another policy, a faulty runtime) or the estimate "
+                     "missed a rounding path; do not ship it")
+    return notes
+
+
+def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
            abs_tol: float | None = None, rel_tol: float | None = None, **run_options) -> Report:
-    """Verify ``artifact`` (a path) against ``bundle``'s reference; see the module doc for the report."""
+    """Verify ``artifact`` (a path) against ``bundle``'s float64 reference.
+
+    Parameters
+    ----------
+    bundle : Bundle, the model the artifact was emitted from.
+    artifact : str or path, a .onnx or .py file, or a folder of generated C.
+    data : ndarray of shape (n_rows, n_features) or None, extra probes (the user's rows).
+    count, seed : the number of quasi-random probes and the seed of every probe family.
+    abs_tol, rel_tol : tolerance overrides (see :mod:`nodecast.compiler.verify.tolerance`).
+    run_options : passed to the runner's ``describe`` (e.g. ``emulate="cortex-m4"`` for C).
+    """
     net, path = bundle.network, Path(artifact)
     kind = detect_kind(path)
     module = runner(kind)
-    info = module.describe(path, **run_options)
-    if info["bundle_id"] != bundle.bundle_id:
-        raise NodecastError(f"{path} was generated from bundle {info['bundle_id'][:12]}..., "
-                            f"not from this bundle {bundle.bundle_id[:12]}...")
+    info = _describe(module, path, bundle, run_options)
     families = probe_families(net, data, count, seed)
+    tolerance, per_family, out_range, est = _tolerances(net, families, info, abs_tol, rel_tol)
     X_all = np.vstack([family.X for family in families])
-    got_all = module.run(path, X_all, info)
-    inside = reference.predict(net, np.vstack([f.X for f in families if f.inside_domain]))
-    out_range = np.maximum(inside.max(axis=0) - inside.min(axis=0), np.finfo(float).tiny)
-    est = numerics.estimate(net, info["precision"], activation_error=info.get("activation_error", 0.0))
-    ref_est = numerics.estimate(net, "float64")
-    tolerance = derive(est.per_output, ref_est.per_output, abs_tol, rel_tol, out_range)
-    tol = np.asarray(tolerance.per_output)
-    results, start = [], 0
-    for family in families:
-        got = got_all[start : start + family.X.shape[0]]
-        start += family.X.shape[0]
-        results.append(_family_result(net, family, got, info["out_of_domain"], tol, out_range))
+    wanted = [expected_outputs(net, f.X, info["out_of_domain"]) for f in families]
+    engines = list(info.get("engines") or [kind])
+    results = []
+    for engine in engines:
+        got_all = _run(module, path, X_all, {**info, "engine": engine}, net.n_outputs)
+        start = 0
+        for family, want, tol in zip(families, wanted, per_family, strict=True):
+            got = got_all[start : start + family.X.shape[0]]
+            start += family.X.shape[0]
+            record = compare_family(net, family, got, want, info["out_of_domain"],
+                                    info["precision"], np.asarray(tol.per_output), out_range)
+            results.append({"engine": engine, **record})
     passed = all(r["passed"] for r in results)
     document = {
-        "passed": passed, "bundle_id": bundle.bundle_id, "artifact": {"path": str(path), **info},
+        "passed": passed, "bundle_id": bundle.bundle_id, "task": net.task,
+        "artifact": {**_plain(info), "path": str(path), "kind": kind, "engines": engines},
+        "outputs": {"names": list(net.target_names), "units": list(net.target_units)},
         "max_abs_error": max(r["max_abs_error"] for r in results),
         "max_rel_error": max(r["max_rel_error"] for r in results),
         "tolerance": tolerance.as_dict(), "estimate": est.as_dict(),
-        "probes": {"seed": seed, "total": int(X_all.shape[0]),
-                   "families": {r["family"]: r["count"] for r in results}},
-        "families": results,
+        "probes": {"seed": seed, "sobol": count, "total": int(X_all.shape[0]),
+                   "families": {f.name: int(f.X.shape[0]) for f in families}},
+        "families": results, "notes": _notes(tolerance, est, results),
     }
     return Report(passed, document)
 
 
-def format_table(report: Report) -> str:
-    doc = report.as_dict()
-    lines = [f"{'family':<14} {'count':>6} {'max abs err':>12} {'max rel err':>12}  ok  worst input"]
-    for r in doc["families"]:
-        worst = "" if r["worst_input"] is None else "[" + ", ".join(f"{v:.6g}" for v in r["worst_input"]) + "]"
-        lines.append(f"{r['family']:<14} {r['count']:>6} {r['max_abs_error']:>12.3e} "
-                     f"{r['max_rel_error']:>12.3e}  {'yes' if r['passed'] else 'NO ':<3} {worst}")
-    tol = ", ".join(f"{v:.3e}" for v in doc["tolerance"]["per_output"])
-    lines.append(f"tolerance {tol} ({doc['tolerance']['rule']})")
-    lines.append(f"verification {'PASSED' if doc['passed'] else 'FAILED'}: {doc['artifact']['kind']} "
-                 f"{doc['artifact']['precision']}, max abs error {doc['max_abs_error']:.3e}, "
-                 f"max rel error {doc['max_rel_error']:.3e}")
-    return "\n".join(lines)
+def _plain(value):
+    """JSON-safe copy of a runner's description (numbers, text, lists, records)."""
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items() if k != "engine"}
+    if isinstance(value, (list, tuple, np.ndarray)):
+        return [_plain(v) for v in value]
+    if isinstance(value, np.generic):
+        return value.item()
+    if value is None or isinstance(value, (bool, int, float, str)):
+        return value
+    return str(value)
 
 
-def check(bundle, artifact, **options) -> dict:
-    """For users' test suites: verify and raise AssertionError with the report table on failure."""
-    report = verify(bundle, artifact, **options)
+def check(bundle, artifact, data=None, **options) -> dict:
+    """For users' own test suites: verify ``artifact`` and raise AssertionError carrying the report
+    table when it fails; return the report document when it passes.
+
+    ``bundle`` is a Bundle or the path of a .ncz; ``data`` an array of rows in feature order or the
+    path of a CSV (features found by header name); other options as for :func:`verify`.
+    """
+    if isinstance(bundle, (str, os.PathLike)):
+        from nodecast.compiler.bundle import load
+
+        bundle = load(bundle)
+    if isinstance(data, (str, os.PathLike)):
+        from nodecast.compiler.csvio import read_table
+
+        data = read_table(data).numbers(bundle.network.feature_names)
+    report = verify(bundle, artifact, data, **options)
     if not report.passed:
-        raise AssertionError(format_table(report))
+        raise AssertionError(f"{artifact} does not compute bundle {bundle.bundle_id[:12]}:\n"
+                             + format_table(report))
     return report.as_dict()

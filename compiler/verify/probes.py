@@ -1,73 +1,132 @@
-"""Probe sets for verification, in named families, all drawn deterministically from a seed."""
+"""Probe sets for verification: named families of input rows, drawn deterministically from a seed.
+
+Families, in this order (empty ones are left out):
+
+``data``
+    The rows of the user's data (``--data``) that lie in the declared domain.
+``data-outside``
+    The user's rows that do not; they are judged by the out-of-domain policy.
+``sobol``
+    ``count`` points of a scrambled Sobol sequence (scipy.stats.qmc) spread through the domain box.
+``corners``
+    Every corner of the box for n <= 10 features; beyond, a seeded sample of ``MAX_CORNERS``.
+``near-bounds``
+    For every feature and each of its two bounds, one row with that feature exactly on the bound and
+    one just inside it (``INSIDE_STEP`` of the span), the other features at random in the box.
+``outside``
+    For every feature, rows with that feature beyond a bound by 10% and by 10 times the span, plus
+    one row with every feature 10% below and one 10% above the box. They check the policy: clamp
+    must equal the reference on the clamped input, pass the reference itself, reject must reject.
+
+Each family draws from its own stream ``numpy.random.default_rng([seed, k])``, so adding a family
+never changes the others, and the same seed always gives the same probes.
+"""
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
 
+from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import Network
 
 MAX_CORNERS = 1024
+ALL_CORNERS_UP_TO = 10
+INSIDE_STEP = 1e-6
+OUTSIDE_FACTORS = (-10.0, -0.1, 0.1, 10.0)
 
 
 @dataclass(frozen=True, eq=False)
 class ProbeFamily:
+    """A named set of probes: ``X`` of shape (n_rows, n_features); ``inside_domain`` tells whether
+    every row lies in the declared domain (the in-domain families set the output range)."""
+
     name: str
     X: np.ndarray
     inside_domain: bool
 
 
+def _span(net: Network) -> np.ndarray:
+    return net.domain_high - net.domain_low
+
+
+def _random_rows(net: Network, rng: np.random.Generator, count: int) -> np.ndarray:
+    return net.domain_low + rng.random((count, net.n_features)) * _span(net)
+
+
 def sobol(net: Network, count: int, seed: int) -> np.ndarray:
+    """The first ``count`` points of a scrambled Sobol sequence of 2^m >= count points (drawing a
+    power of two keeps the sequence's balance and SciPy's warning quiet), mapped onto the box."""
     from scipy.stats import qmc
 
-    unit = qmc.Sobol(d=net.n_features, scramble=True, seed=seed).random(count)
-    return net.domain_low + unit * (net.domain_high - net.domain_low)
+    m = max(0, math.ceil(math.log2(count)))
+    unit = qmc.Sobol(d=net.n_features, scramble=True, seed=seed).random_base2(m)[:count]
+    return net.domain_low + unit * _span(net)
 
 
 def corners(net: Network, seed: int) -> np.ndarray:
+    """All 2^n corners for n <= ALL_CORNERS_UP_TO, else MAX_CORNERS seeded random ones."""
     n = net.n_features
-    if 2**n <= MAX_CORNERS:
+    if n <= ALL_CORNERS_UP_TO:
         bits = np.array(np.meshgrid(*[[0, 1]] * n, indexing="ij")).reshape(n, -1).T
     else:
-        bits = np.random.default_rng(seed).integers(0, 2, size=(MAX_CORNERS, n))
+        bits = np.random.default_rng([seed, 1]).integers(0, 2, size=(MAX_CORNERS, n))
     return np.where(bits == 1, net.domain_high, net.domain_low)
 
 
 def near_bounds(net: Network, seed: int) -> np.ndarray:
-    """For each feature and each bound, a point at a random place whose feature sits just inside."""
-    rng = np.random.default_rng(seed)
-    span = net.domain_high - net.domain_low
+    """4 n rows: each feature on each bound, and INSIDE_STEP of its span inside it."""
+    rng = np.random.default_rng([seed, 2])
+    span = _span(net)
     rows = []
     for i in range(net.n_features):
-        for bound, step in ((net.domain_low[i], 1e-9), (net.domain_high[i], -1e-9)):
-            row = net.domain_low + rng.random(net.n_features) * span
-            row[i] = bound + step * span[i]
-            rows.append(row)
+        for bound, direction in ((net.domain_low[i], 1.0), (net.domain_high[i], -1.0)):
+            for step in (0.0, INSIDE_STEP):
+                row = _random_rows(net, rng, 1)[0]
+                row[i] = bound + direction * step * span[i]
+                rows.append(row)
     return np.clip(np.array(rows), net.domain_low, net.domain_high)
 
 
 def outside(net: Network, seed: int) -> np.ndarray:
-    """Points with one feature beyond a bound by 10% and 10x of the span."""
-    rng = np.random.default_rng(seed)
-    span = np.where(net.domain_high > net.domain_low, net.domain_high - net.domain_low, 1.0)
+    """4 n + 2 rows outside the box (a zero-width feature counts its span as 1)."""
+    rng = np.random.default_rng([seed, 3])
+    span = np.where(_span(net) > 0, _span(net), 1.0)
     rows = []
     for i in range(net.n_features):
-        for factor in (-10.0, -0.1, 0.1, 10.0):
-            row = net.domain_low + rng.random(net.n_features) * span
+        for factor in OUTSIDE_FACTORS:
+            row = _random_rows(net, rng, 1)[0]
             row[i] = (net.domain_low[i] if factor < 0 else net.domain_high[i]) + factor * span[i]
             rows.append(row)
+    rows += [net.domain_low - 0.1 * span, net.domain_high + 0.1 * span]
     return np.array(rows)
 
 
-def probe_families(net: Network, data: np.ndarray | None = None, count: int = 4096,
-                   seed: int = 0) -> list[ProbeFamily]:
+def data_rows(net: Network, data) -> np.ndarray:
+    """``data`` as finite float64 rows of n_features columns, or a NodecastError."""
+    X = np.asarray(data, dtype=np.float64)
+    if X.ndim != 2 or X.shape[1] != net.n_features:
+        raise NodecastError(f"probe data must have {net.n_features} columns (the features "
+                            f"{', '.join(net.feature_names)}), got an array of shape {X.shape}")
+    bad = np.flatnonzero(~np.all(np.isfinite(X), axis=1))
+    if bad.size:
+        raise NodecastError(f"probe data row {bad[0] + 1} holds a non-finite value; "
+                            "verification data must be finite numbers")
+    return X
+
+
+def probe_families(net: Network, data=None, count: int = 4096, seed: int = 0) -> list[ProbeFamily]:
+    """The probe families of the module doc, in order; ``data`` of shape (n_rows, n_features)."""
+    if count < 1:
+        raise NodecastError(f"the probe count must be at least 1, got {count!r}")
     families = []
     if data is not None and len(data):
-        inside = ~np.any((data < net.domain_low) | (data > net.domain_high), axis=1)
-        families.append(ProbeFamily("data", data[inside], True))
-        if (~inside).any():
-            families.append(ProbeFamily("data-outside", data[~inside], False))
+        X = data_rows(net, data)
+        inside = ~np.any((X < net.domain_low) | (X > net.domain_high), axis=1)
+        families += [ProbeFamily("data", X[inside], True),
+                     ProbeFamily("data-outside", X[~inside], False)]
     families += [
         ProbeFamily("sobol", sobol(net, count, seed), True),
         ProbeFamily("corners", corners(net, seed), True),

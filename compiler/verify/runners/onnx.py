@@ -1,4 +1,7 @@
-"""Run an ONNX artifact in onnxruntime (one thread, so results do not depend on the machine's cores)."""
+"""Run an ONNX artifact in two independent engines: onnxruntime (the runtime users deploy, one
+thread so results do not depend on the machine's cores) and ``onnx.reference.ReferenceEvaluator``
+(the ONNX project's reference implementation of its operator specification), a second opinion that
+shares no kernels with onnxruntime. Verify checks each engine against the float64 model."""
 
 from __future__ import annotations
 
@@ -9,30 +12,73 @@ import numpy as np
 
 from nodecast.compiler.errors import NodecastError
 
+ENGINES = ("onnxruntime", "onnx.reference")
+PRECISIONS = ("float32", "float64")
+INPUT_NAME, OUTPUT_NAME = "features", "outputs"
 
-def describe(path: Path, **_options) -> dict:
+
+def _load(path: Path):
     import onnx
 
     try:
-        model = onnx.load(str(path))
+        return onnx.load(str(path))
     except Exception as exc:  # onnx raises DecodeError, OSError and others for unreadable files
-        raise NodecastError(f"{path} is not a readable ONNX model: {exc}") from None
-    props = {p.key: p.value for p in model.metadata_props}
+        raise NodecastError(f"{path} is not a readable ONNX model: {_one_line(exc)}") from None
+
+
+def describe(path: Path, **_options) -> dict:
+    """Provenance from the model's metadata_props (see the ONNX back-end)."""
+    props = {p.key: p.value for p in _load(path).metadata_props}
     if "nodecast.bundle_id" not in props:
         raise NodecastError(f"{path} was not made by nodecast (no nodecast.bundle_id metadata)")
-    return {"kind": "onnx", "bundle_id": props["nodecast.bundle_id"],
-            "precision": props.get("nodecast.precision", "float32"),
+    precision = props.get("nodecast.precision", "float32")
+    if precision not in PRECISIONS:
+        raise NodecastError(f"{path} declares precision {precision!r}; ONNX artifacts are "
+                            f"{' or '.join(PRECISIONS)}")
+    try:
+        stated = json.loads(props.get("nodecast.error_estimate", "null"))
+    except ValueError:
+        raise NodecastError(f"{path} holds an unreadable nodecast.error_estimate") from None
+    return {"kind": "onnx", "bundle_id": props["nodecast.bundle_id"], "precision": precision,
             "out_of_domain": props.get("nodecast.out_of_domain", "pass"),
-            "error_estimate": json.loads(props.get("nodecast.error_estimate", "null"))}
+            "error_estimate": stated, "engines": list(ENGINES)}
 
 
-def run(path: Path, X: np.ndarray, info: dict) -> np.ndarray:
+def _onnxruntime(path: Path, X: np.ndarray) -> np.ndarray:
     import onnxruntime as ort
 
     options = ort.SessionOptions()
     options.intra_op_num_threads = 1
     options.inter_op_num_threads = 1
     session = ort.InferenceSession(str(path), options, providers=["CPUExecutionProvider"])
+    (outputs,) = session.run([OUTPUT_NAME], {INPUT_NAME: X})
+    return outputs
+
+
+def _reference_evaluator(path: Path, X: np.ndarray) -> np.ndarray:
+    from onnx.reference import ReferenceEvaluator
+
+    evaluator = ReferenceEvaluator(_load(path))
+    with np.errstate(over="ignore", under="ignore"):  # its Sigmoid overflows exp() to the limit 0
+        (outputs,) = evaluator.run([OUTPUT_NAME], {INPUT_NAME: X})
+    return outputs
+
+
+def run(path: Path, X: np.ndarray, info: dict) -> np.ndarray:
+    """Outputs of shape (n_rows, n_outputs) from ``info["engine"]`` (default onnxruntime)."""
+    engine = info.get("engine", ENGINES[0])
+    if engine not in ENGINES:
+        raise NodecastError(f"unknown ONNX engine {engine!r}; choose one of {', '.join(ENGINES)}")
     dtype = np.float32 if info["precision"] == "float32" else np.float64
-    (outputs,) = session.run(["outputs"], {"features": X.astype(dtype)})
-    return outputs.astype(np.float64)
+    evaluate = _onnxruntime if engine == "onnxruntime" else _reference_evaluator
+    try:
+        outputs = evaluate(path, np.ascontiguousarray(X, dtype=dtype))
+    except NodecastError:
+        raise
+    except Exception as exc:  # a model that loads but cannot run: bad input, not a crash
+        raise NodecastError(f"{engine} cannot run {path}: {_one_line(exc)}") from None
+    return np.asarray(outputs, dtype=np.float64)
+
+
+def _one_line(exc: BaseException, limit: int = 300) -> str:
+    return (" ".join(str(exc).split()) or type(exc).__name__)[:limit]
