@@ -1,0 +1,229 @@
+"""Fast k-fold model selection over nodes M, neighbours k, slope scale s and ridge lambda,
+optionally under a precision budget (the estimated export error in a named precision must not
+exceed a tolerance in target units).
+
+The search runs one unit per (fold, k, s) (:mod:`nodecast.trainer.cv_units`): one hidden layer of
+max(M) nodes drawn from the fold's training rows, one pass over those rows, every (lambda, M) pair
+solved from one factorisation per lambda. Units are independent and may run in parallel; the result
+does not depend on ``n_jobs``. The chosen point is refitted on all rows with the same draw rule and
+seed, so ``nodecast train`` with the chosen options reproduces the model exactly.
+"""
+
+from __future__ import annotations
+
+import itertools
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from types import SimpleNamespace
+from typing import Any
+
+import numpy as np
+
+from nodecast.compiler import numerics
+from nodecast.compiler.errors import NodecastError
+from nodecast.trainer.cv_units import UnitSettings, evaluate_unit
+from nodecast.trainer.folds import fold_indices, input_box
+from nodecast.trainer.grid import Grid, GridPoint, make_grid, ranked, tabulate
+
+SCREEN_PROBES = 256  # Sobol probes (plus the box's corners) for the per-fold estimates
+MAX_REFITS = 5  # candidates refitted on all rows when the final estimate misses the tolerance
+
+
+@dataclass(frozen=True)
+class SearchSettings:
+    """Everything a search needs besides the data and the grid."""
+
+    folds: int = 10
+    seed: int = 0
+    activation: str = "logistic"
+    precision: str | None = None
+    tolerance: float | None = None
+    n_jobs: int = 1
+
+
+@dataclass(eq=False)
+class SelectionResult:
+    """The table of every grid point, the chosen point, and the model refitted on all rows.
+
+    ``model`` is what the final fit returned (a fitted RandomNodeRegressor from :func:`select`);
+    ``estimate`` the export-error estimate of the final model in ``settings.precision`` (or None).
+    """
+
+    points: list[GridPoint]
+    chosen: GridPoint
+    settings: SearchSettings
+    grid: Grid
+    model: Any = None
+    estimate: numerics.ErrorEstimate | None = None
+    refits: int = 1
+    growth: Any = None
+    diagnostics: dict = field(default_factory=dict)
+
+    def as_dict(self) -> dict:
+        """Every number of the search, JSON-ready (no timings, so equal inputs give equal text)."""
+        s = self.settings
+        return {"folds": s.folds, "seed": s.seed, "activation": s.activation,
+                "precision": s.precision, "tolerance": s.tolerance,
+                "grid": {"nodes": list(self.grid.nodes), "neighbors": list(self.grid.neighbors),
+                         "slope_scales": list(self.grid.slope_scales),
+                         "ridges": list(self.grid.ridges)},
+                "points": [p.as_dict() for p in self.points], "chosen": self.chosen.as_dict(),
+                "rejected_by_budget": sum(not p.meets_budget for p in self.points),
+                "final_estimate": self.estimate.as_dict() if self.estimate else None,
+                "refits": self.refits, "diagnostics": self.diagnostics,
+                "growth": self.growth.as_dict() if self.growth is not None else None}
+
+
+def select(X, y, nodes=(50, 100, 250), neighbors=(None,), slope_scales=(1.0,), ridges=(0.0, 1e-6),
+           folds=10, *, seed=0, domain=None, activation="logistic", precision=None, tolerance=None,
+           n_jobs=1, progress=None) -> SelectionResult:
+    """Choose (M, k, s, lambda) by k-fold cross-validation and refit the choice on all rows.
+
+    Parameters
+    ----------
+    X : array-like of shape (n_samples, n_features); y : array-like of shape (n_samples,) or
+        (n_samples, n_targets), numeric targets.
+    nodes, neighbors, slope_scales, ridges : the grid axes (``None`` in neighbors: default k).
+    folds : int, number of shuffled folds (ten is customary).
+    seed : int, seeds the fold split and every hidden-layer draw (the final model's random_state).
+    domain : (low, high) or None, each of shape (n_features,); NaN entries are not declared and
+        take the range of the rows being fitted (each fold's training rows; all rows for the
+        final model).
+    precision, tolerance : reject points whose estimated export error in ``precision`` ("float32",
+        and whatever :func:`nodecast.compiler.numerics.estimate` supports) exceeds ``tolerance``.
+    n_jobs : int, parallel units (joblib); the result is the same for every value.
+    progress : callable(done, total) or None, called after each unit.
+
+    Returns
+    -------
+    SelectionResult, with ``model`` a fitted :class:`RandomNodeRegressor`.
+    """
+    X, Y, y_was_1d = _check_data(X, y)
+    declared = _declared_box(domain, X.shape[1])
+    grid = make_grid(nodes, neighbors, slope_scales, ridges)
+    settings = SearchSettings(folds, seed, activation, precision, tolerance, n_jobs)
+    points, diagnostics = run_search(X, Y, grid, settings, declared, progress)
+    low, high = input_box(X, *declared)
+
+    def fit_final(point: GridPoint):
+        from nodecast.trainer.estimators import RandomNodeRegressor
+        from nodecast.trainer.export import to_bundle
+
+        model = RandomNodeRegressor(activation=activation, domain=(low, high), random_state=seed,
+                                    **point.params).fit(X, Y[:, 0] if y_was_1d else Y)
+        return model, to_bundle(model).network
+
+    return finalise(points, grid, settings, fit_final, diagnostics)
+
+
+def _check_data(X, y):
+    X = np.asarray(X, dtype=np.float64)
+    Y = np.asarray(y, dtype=np.float64)
+    y_was_1d = Y.ndim == 1
+    Y = Y.reshape(Y.shape[0], -1) if Y.ndim else Y
+    if X.ndim != 2 or Y.ndim != 2 or X.shape[0] != Y.shape[0]:
+        raise NodecastError(f"X must be 2-D and y hold one row per row of X; got shapes "
+                            f"{X.shape} and {np.shape(y)}")
+    if not (np.all(np.isfinite(X)) and np.all(np.isfinite(Y))):
+        raise NodecastError("X and y must be finite (no NaN or infinity)")
+    return X, Y, y_was_1d
+
+
+def _declared_box(domain, n_features: int):
+    if domain is None:
+        return np.full(n_features, np.nan), np.full(n_features, np.nan)
+    low, high = (np.asarray(side, dtype=np.float64).reshape(-1) for side in domain)
+    if low.shape != (n_features,) or high.shape != low.shape or np.any(low > high):
+        raise NodecastError("domain must be (low, high), each of one value per feature, "
+                            "low <= high")
+    return low, high
+
+
+def run_search(X, Y, grid: Grid, settings: SearchSettings, declared, progress=None):
+    """Score every grid point by cross-validation; returns (points, generator diagnostics)."""
+    if settings.precision is not None and settings.tolerance is None:
+        raise NodecastError("a precision budget needs a tolerance (target units) as well")
+    splits = fold_indices(X.shape[0], settings.folds, settings.seed)
+    probes = _screen_probes(X, declared) if settings.precision else None
+    keys = list(itertools.product(grid.neighbors, grid.slope_scales, range(settings.folds)))
+    jobs = [(X, Y, splits[fold], declared,
+             UnitSettings(k, s, grid.nodes, grid.ridges, settings.seed, settings.activation,
+                          settings.precision), probes) for k, s, fold in keys]
+    units: dict = {}
+    results = zip(keys, _run(jobs, settings.n_jobs), strict=True)
+    for done, ((k, s, _), scores) in enumerate(results, 1):
+        units.setdefault((k, s), []).append(scores)
+        if progress is not None:
+            progress(done, len(keys))
+    span = Y.max(axis=0) - Y.min(axis=0)
+    points = tabulate(grid, units, np.where(span > 0, span, 1.0), settings.tolerance)
+    return points, _total_diagnostics(units)
+
+
+def _run(jobs, n_jobs: int):
+    try:
+        if n_jobs == 1:
+            yield from (evaluate_unit(*job) for job in jobs)
+            return
+        from joblib import Parallel, delayed
+
+        yield from Parallel(n_jobs=n_jobs, return_as="generator")(
+            delayed(evaluate_unit)(*job) for job in jobs)
+    except ValueError as exc:
+        if isinstance(exc, NodecastError):
+            raise
+        raise NodecastError(f"cannot run the search: {' '.join(str(exc).split())}") from None
+
+
+def _screen_probes(X, declared) -> np.ndarray:
+    low, high = input_box(X, *declared)
+    box = SimpleNamespace(n_features=X.shape[1], domain_low=low, domain_high=high)
+    return numerics.domain_probes(box, count=SCREEN_PROBES)
+
+
+def _total_diagnostics(units: dict) -> dict:
+    totals: dict[str, int] = {}
+    for folds in units.values():
+        for unit in folds:
+            for key, value in unit.diagnostics.items():
+                if key != "neighbors":
+                    totals[key] = totals.get(key, 0) + int(value)
+    return dict(sorted(totals.items()))
+
+
+def finalise(points, grid: Grid, settings: SearchSettings, fit_final: Callable, diagnostics=None):
+    """Refit the best point on all rows; under a budget, the best whose final estimate meets it.
+
+    fit_final(point) -> (model, Network). Raises NodecastError naming the best estimate when no
+    point meets the tolerance.
+    """
+    candidates = ranked(points)
+    if not candidates:
+        best = min(points, key=lambda p: (p.estimate, p.rank_key()))
+        raise NodecastError(_no_point_message(settings, best.estimate, best))
+    tried = []
+    for refits, point in enumerate(candidates[:MAX_REFITS], 1):
+        model, network = fit_final(point)
+        estimate = _final_estimate(network, settings.precision)
+        if estimate is None or estimate.max_abs <= settings.tolerance:
+            return SelectionResult(points, point, settings, grid, model, estimate, refits,
+                                   diagnostics=diagnostics or {})
+        tried.append((estimate.max_abs, point))
+    best_estimate, best = min(tried, key=lambda pair: pair[0])
+    raise NodecastError(_no_point_message(settings, best_estimate, best, refitted=True))
+
+
+def _final_estimate(network, precision):
+    if precision is None:
+        return None
+    try:
+        return numerics.estimate(network, precision)
+    except ValueError as exc:
+        raise NodecastError(f"cannot estimate the export error: {exc}") from None
+
+
+def _no_point_message(settings, estimate: float, point: GridPoint, refitted: bool = False) -> str:
+    where = "after refitting the best candidates on all rows" if refitted else "on the grid"
+    return (f"no grid point meets the {settings.precision} tolerance {settings.tolerance:g} "
+            f"{where}: the best estimated export error is {estimate:.3g} ({point.describe()}); "
+            "raise the tolerance or add larger ridge values or fewer nodes")
