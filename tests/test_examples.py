@@ -34,3 +34,22 @@ def test_onnx_handoff_consumer_matches_the_reference(tmp_path):
     want = reference.predict(bundle.network, X)[:, 0]
     report = json.loads((tmp_path / "verify.json").read_text())
     assert np.max(np.abs(got - want)) <= max(report["tolerance"]["per_output"])
+
+
+def test_plots_example_draws_both_pictures(tmp_path):
+    _run("plots/run.sh", tmp_path)
+    for name in ("nodes.png", "predicted_vs_actual.png"):
+        data = (tmp_path / name).read_bytes()
+        assert data[:8] == b"\x89PNG\r\n\x1a\n" and len(data) > 10_000  # PNG signature (ISO 15948)
+
+
+def test_node_picture_marks_nodes_never_steep_on_the_domain(tmp_path):
+    from nodecast.compiler import load
+    from nodecast.compiler.inspection import node_ranges
+
+    _run("plots/run.sh", tmp_path)
+    bundle = load(tmp_path / "fan.ncz")
+    # data-driven nodes put their inflection at a training point, so each is steep somewhere
+    ranges = node_ranges(bundle)
+    assert ranges["saturated"] == 0
+    assert all(lo <= 0.0 <= hi for lo, hi in zip(ranges["z_low"], ranges["z_high"]))
