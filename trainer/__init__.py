@@ -2,5 +2,6 @@
 
 from nodecast.trainer.estimators import RandomNodeClassifier, RandomNodeRegressor
 from nodecast.trainer.export import to_bundle
+from nodecast.trainer.selection import select
 
-__all__ = ["RandomNodeClassifier", "RandomNodeRegressor", "to_bundle"]
+__all__ = ["RandomNodeClassifier", "RandomNodeRegressor", "select", "to_bundle"]
