@@ -12,6 +12,7 @@ from pathlib import Path
 
 import click
 
+from nodecast.compiler.cli_score import score as score_command
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.version import __version__
 
@@ -231,14 +232,19 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
 @click.option("--abs-tol", type=click.FloatRange(min=0), help="Tolerance in target units.")
 @click.option("--rel-tol", type=click.FloatRange(min=0), help="Tolerance, share of the output range.")
 @click.option("--report", type=click.Path(dir_okay=False), help="Write the JSON report here.")
+@click.option("--junit", type=click.Path(dir_okay=False), help="Write a JUnit XML report here.")
 @click.option("--emulate", type=click.Choice(["cortex-m3", "cortex-m4"]),
               help="C artifacts: run on an emulated Cortex-M (QEMU) instead of the host.")
-def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, emulate):
-    """Run ARTIFACT in its real runtime and compare it with the bundle's reference."""
+def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, junit, emulate):
+    """Run ARTIFACT in its real runtime and compare it with the bundle's reference.
+
+    Exit 0 when every probe family agrees within the tolerance, 1 when one does not, 2 on bad input.
+    """
     from nodecast.compiler.csvio import read_table
     from nodecast.compiler.files import write_atomic
     from nodecast.compiler.verify import format_table
     from nodecast.compiler.verify import verify as run_verify
+    from nodecast.compiler.verify.report import to_json, verify_junit
 
     bundle = load_bundle(model)
     rows = read_table(data).numbers(bundle.network.feature_names) if data else None
@@ -246,8 +252,9 @@ def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, emulat
     result = run_verify(bundle, artifact, rows, probes, seed, abs_tol, rel_tol, **run_options)
     click.echo(format_table(result))
     if report:
-        text = json.dumps(result.as_dict(), indent=2, sort_keys=True) + "\n"
-        write_atomic(report, text.encode("utf-8"), overwrite=True)
+        write_atomic(report, to_json(result.as_dict()).encode("utf-8"), overwrite=True)
+    if junit:
+        write_atomic(junit, verify_junit(result.as_dict()).encode("utf-8"), overwrite=True)
     sys.exit(0 if result.passed else 1)
 
 
@@ -270,6 +277,9 @@ def demo(output, data_only):
         click.echo(f"wrote {Path(output) / 'readings.csv'} and {Path(output) / 'held_out.csv'}", err=True)
         return
     sys.exit(run_demo(Path(output), echo=click.echo))
+
+
+cli.add_command(score_command)
 
 
 def main(argv=None) -> None:

@@ -15,7 +15,8 @@ Report schema (``Report.as_dict()``; also what ``verify --report`` writes):
     Largest over all families and engines; relative to each output's range over the in-domain
     probes. An infinite error is written "inf".
 ``tolerance`` (object)
-    ``per_output``, ``rule``, ``source`` ("derived", "abs-tol", "rel-tol"), ``precision``,
+    ``per_output``, ``rule``, ``source`` ("derived", "abs-tol", "rel-tol"), ``given`` (the
+    override's value or null), ``precision``,
     ``safety_factor``, ``estimate`` and ``reference_rounding`` (per output): the in-domain
     tolerance.
 ``estimate`` (object)
@@ -106,8 +107,8 @@ def _notes(tolerance, est, results) -> list[str]:
     low = tolerance.below_estimate()
     if low:
         k = low[0]
-        notes.append(f"the tolerance {tolerance.per_output[k]:.3e} ({tolerance.rule}) is below "
-                     f"this artifact's {tolerance.precision} export-error estimate "
+        notes.append(f"{tolerance.rule} sets the tolerance to {tolerance.per_output[k]:.3e}, "
+                     f"below this artifact's {tolerance.precision} export-error estimate "
                      f"{est.per_output[k]:.3e}: rounding alone may exceed it; the derived default "
                      f"is {tolerance.safety_factor:g} x the estimate + the float64 reference's "
                      "rounding")

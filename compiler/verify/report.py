@@ -144,3 +144,58 @@ def junit_xml(name: str, suites: list[dict]) -> str:
 def _clean(value) -> str:
     """Text XML 1.0 can hold: characters it forbids (most control characters) become U+FFFD."""
     return _XML_INVALID.sub("\ufffd", str(value))
+
+
+def _regression_lines(metrics: dict) -> list[str]:
+    lines = [f"{'target':<20} {'RMSE':>11} {'MAE':>11} {'max error':>11} {'R^2':>9}"]
+    for t in metrics["targets"]:
+        lines.append(f"{t['name'][:20]:<20} {t['rmse']:>11.5g} {t['mae']:>11.5g} "
+                     f"{t['max_error']:>11.5g} {t['r2']:>9.5f}")
+    return lines
+
+
+def _classification_lines(metrics: dict) -> list[str]:
+    labels, matrix = metrics["confusion"]["labels"], metrics["confusion"]["matrix"]
+    width = max(8, *(min(16, len(label)) for label in labels))
+    lines = [f"accuracy {metrics['accuracy']:.4f}",
+             "confusion (rows: true label, columns: predicted)",
+             " " * (width + 1) + " ".join(f"{label[:width]:>{width}}" for label in labels)]
+    for label, row in zip(labels, matrix, strict=True):
+        lines.append(f"{label[:width]:<{width}} " + " ".join(f"{n:>{width}}" for n in row))
+    return lines
+
+
+def format_score_table(report) -> str:
+    """The terminal table of a score report: metrics, the baseline's, and each gate."""
+    doc = report.as_dict() if hasattr(report, "as_dict") else report
+    lines = [f"score bundle {doc['bundle_id'][:12]} ({doc['task']}) on {doc['rows']} rows "
+             f"({doc['rows_outside_domain']} outside the declared domain)"]
+    describe = _classification_lines if doc["task"] == "classification" else _regression_lines
+    lines += describe(doc["metrics"])
+    if doc["baseline"]:
+        lines.append(f"baseline bundle {doc['baseline']['bundle_id'][:12]}:")
+        lines += ["  " + line for line in describe(doc["baseline"]["metrics"])]
+    for gate in doc["gates"]:
+        lines.append(f"gate {gate['name']}: {gate['value']:.6g} vs limit {gate['limit']:.6g} "
+                     f"({gate['rule']}) {'passed' if gate['passed'] else 'FAILED'}")
+    if not doc["gates"]:
+        lines.append("no gates asked for (--max-rmse, --min-accuracy, --baseline)")
+    lines.append(f"score {'PASSED' if doc['passed'] else 'FAILED'}")
+    return "\n".join(lines)
+
+
+def score_junit(document: dict) -> str:
+    """JUnit XML of a score report: one suite, one case per gate (or one "metrics" case)."""
+    name = "nodecast.score"
+    cases = [{"classname": name, "name": gate["name"],
+              "failure": None if gate["passed"] else
+              f"{gate['value']:.6g} fails {gate['rule']} (limit {gate['limit']:.6g})"}
+             for gate in document["gates"]] or [{"classname": name, "name": "metrics",
+                                                 "failure": None}]
+    props = {"bundle_id": document["bundle_id"], "task": document["task"],
+             "rows": document["rows"]}
+    if document["baseline"]:
+        props["baseline_bundle_id"] = document["baseline"]["bundle_id"]
+    suite = {"name": name, "cases": cases, "properties": props,
+             "system_out": format_score_table(document)}
+    return junit_xml("nodecast score", [suite])

@@ -44,18 +44,20 @@ class Tolerance:
     estimate: tuple[float, ...]
     reference_rounding: tuple[float, ...]
     safety_factor: float = SAFETY_FACTOR
+    given: float | None = None
 
     @property
     def rule(self) -> str:
         if self.source == "abs-tol":
-            return f"--abs-tol {self.per_output[0]!r} target units (given)"
+            return f"--abs-tol {self.given!r}, in target units"
         if self.source == "rel-tol":
-            return "--rel-tol of the output range over the in-domain probes (given)"
+            return f"--rel-tol {self.given!r} of the output range over the in-domain probes"
         return (f"{self.safety_factor:g} x the {self.precision} export-error estimate "
                 f"+ the float64 reference's own rounding")
 
     def as_dict(self) -> dict:
         return {"per_output": list(self.per_output), "rule": self.rule, "source": self.source,
+                "given": self.given,
                 "precision": self.precision, "safety_factor": self.safety_factor,
                 "estimate": list(self.estimate),
                 "reference_rounding": list(self.reference_rounding)}
@@ -78,12 +80,13 @@ def derive(estimate, reference_estimate, abs_tol=None, rel_tol=None,
     """
     est, ref = tuple(estimate.per_output), tuple(reference_estimate.per_output)
     if abs_tol is not None:
-        values, source = tuple(float(abs_tol) for _ in est), "abs-tol"
+        values, source, given = tuple(float(abs_tol) for _ in est), "abs-tol", float(abs_tol)
     elif rel_tol is not None:
-        values, source = tuple(float(rel_tol * r) for r in np.asarray(output_range)), "rel-tol"
+        values = tuple(float(rel_tol * r) for r in np.asarray(output_range))
+        source, given = "rel-tol", float(rel_tol)
     else:
-        values, source = _derived(SAFETY_FACTOR, est, ref), "derived"
-    return Tolerance(values, source, estimate.precision, est, ref)
+        values, source, given = _derived(SAFETY_FACTOR, est, ref), "derived", None
+    return Tolerance(values, source, estimate.precision, est, ref, given=given)
 
 
 def for_points(tolerance: Tolerance, estimate, reference_estimate) -> Tolerance:
