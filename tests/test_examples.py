@@ -8,6 +8,7 @@ import subprocess
 from pathlib import Path
 
 import numpy as np
+import pytest
 
 EXAMPLES = Path(__file__).resolve().parents[1] / "examples"
 
@@ -36,19 +37,24 @@ def test_onnx_handoff_consumer_matches_the_reference(tmp_path):
     assert np.max(np.abs(got - want)) <= max(report["tolerance"]["per_output"])
 
 
-def test_plots_example_draws_both_pictures(tmp_path):
-    _run("plots/run.sh", tmp_path)
+@pytest.fixture(scope="module")
+def plots_out(tmp_path_factory) -> Path:
+    out = tmp_path_factory.mktemp("plots")
+    _run("plots/run.sh", out)
+    return out
+
+
+def test_plots_example_draws_both_pictures(plots_out):
     for name in ("nodes.png", "predicted_vs_actual.png"):
-        data = (tmp_path / name).read_bytes()
+        data = (plots_out / name).read_bytes()
         assert data[:8] == b"\x89PNG\r\n\x1a\n" and len(data) > 10_000  # PNG signature (ISO 15948)
 
 
-def test_node_picture_marks_nodes_never_steep_on_the_domain(tmp_path):
+def test_data_driven_nodes_are_all_steep_somewhere_on_the_domain(plots_out):
     from nodecast.compiler import load
     from nodecast.compiler.inspection import node_ranges
 
-    _run("plots/run.sh", tmp_path)
-    bundle = load(tmp_path / "fan.ncz")
+    bundle = load(plots_out / "fan.ncz")
     # data-driven nodes put their inflection at a training point, so each is steep somewhere
     ranges = node_ranges(bundle)
     assert ranges["saturated"] == 0
