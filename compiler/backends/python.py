@@ -1,0 +1,180 @@
+"""Python back-end: one standalone predictor file that needs nothing but the standard library.
+
+The file holds the network as literals (``repr`` of every float64, so each weight round-trips
+exactly), evaluates it with the fastest exact formulation the running interpreter offers
+(``math.sumprod`` on Python 3.12+, ``map(sum, map(map, ...))`` before; see
+``tests/benchmarks/python_predictor.py``), and doubles as a CSV command line tool.
+
+Logistic networks are evaluated as ``logistic(z) = (1 + tanh(z / 2)) / 2``, never with ``exp``, so
+no finite input can overflow. Both halvings are folded into the weights, which is exact in binary
+floating point (a power-of-two scaling), so the products equal those of the reference.
+
+Safety of user text: every name, unit and label enters the file through ``repr`` (code) or
+through :func:`docstring_lines` (the provenance docstring), never pasted raw; the template holds
+layout only.
+"""
+
+from __future__ import annotations
+
+import functools
+from importlib import resources
+
+import numpy as np
+
+from nodecast.compiler.backends import Artifact
+from nodecast.compiler.errors import NodecastError
+from nodecast.compiler.ir import OUT_OF_DOMAIN_POLICIES
+from nodecast.compiler.numerics import estimate
+from nodecast.compiler.version import __version__
+
+PRECISIONS = ("float64",)
+FILE_NAME = "predictor.py"
+TEMPLATE = "predictor.py.j2"
+LINE_LIMIT = 100  # pyproject [tool.ruff] line-length: the generated file passes ruff as it is
+_NOQA_LONG_LINE = "  # noqa: E501"
+
+
+@functools.lru_cache(maxsize=1)
+def _template():
+    import jinja2
+
+    source = (resources.files("nodecast.templates") / "python" / TEMPLATE).read_text("utf-8")
+    environment = jinja2.Environment(
+        undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
+        keep_trailing_newline=True, autoescape=False)
+    return environment.from_string(source)
+
+
+def render(bundle, precision: str = "float64", out_of_domain: str = "pass", **_ignored) -> Artifact:
+    """Render ``bundle`` as ``predictor.py``.
+
+    Parameters
+    ----------
+    bundle : Bundle
+    precision : "float64", the only one Python floats (IEEE 754 binary64) offer.
+    out_of_domain : "clamp", "pass" or "reject", what the predictor does with inputs outside
+        the declared domain.
+    """
+    if precision not in PRECISIONS:
+        raise NodecastError(f"Python floats are IEEE 754 binary64: the python target takes "
+                            f"precision float64 only, not {precision!r}")
+    if out_of_domain not in OUT_OF_DOMAIN_POLICIES:
+        raise NodecastError(f"out-of-domain policy must be one of "
+                            f"{', '.join(OUT_OF_DOMAIN_POLICIES)}, not {out_of_domain!r}")
+    net = bundle.network
+    error = estimate(net, precision)
+    text = _template().render(**_context(bundle, error, out_of_domain))
+    data = text.encode("utf-8")
+    summary = {"precision": precision, "out_of_domain": out_of_domain, "estimate": error.as_dict(),
+               "bytes": len(data), "nodes": net.n_nodes, "features": net.n_features,
+               "outputs": net.n_outputs}
+    return Artifact("python", {FILE_NAME: data}, True, summary)
+
+
+def _context(bundle, error, out_of_domain: str) -> dict:
+    net = bundle.network
+    logistic = net.activation == "logistic"
+    halving = 0.5 if logistic else 1.0
+    hidden = np.column_stack([net.hidden_weights, net.hidden_biases]) * halving
+    context = {
+        "tool_version": repr(__version__), "bundle_id": repr(bundle.bundle_id),
+        "out_of_domain": repr(out_of_domain), "policy": out_of_domain, "task": repr(net.task),
+        "classifier": net.task == "classification", "activation": repr(net.activation),
+        "logistic": logistic, "n_features": net.n_features, "n_outputs": net.n_outputs,
+        "hidden": float_rows(hidden), "output_weights": float_rows(net.output_weights.T * halving),
+        "error_estimate": float_tuple(error.per_output),
+        "docstring": _docstring(bundle, error, out_of_domain),
+    }
+    for name in ("feature_names", "feature_units", "target_names", "target_units", "class_labels"):
+        context[name] = text_tuple(getattr(net, name))
+    for name in ("domain_low", "domain_high", "input_offset", "input_scale", "output_bias",
+                 "output_offset", "output_scale"):
+        context[name] = float_tuple(getattr(net, name))
+    return context
+
+
+def float_tuple(values, indent: int = 4) -> str:
+    """A tuple literal of floats (``repr``, exact round trip), wrapped within ``LINE_LIMIT``."""
+    lines = _packed([repr(float(v)) + "," for v in np.asarray(values, dtype=np.float64).ravel()],
+                    " " * indent)
+    return "(\n" + "\n".join(lines) + "\n" + " " * (indent - 4) + ")"
+
+
+def float_rows(matrix) -> str:
+    """A tuple literal of tuple rows of floats, one row per inner tuple."""
+    rows = ["    " + float_tuple(row, indent=8) + "," for row in np.atleast_2d(matrix)]
+    return "(\n" + "\n".join(rows) + "\n)"
+
+
+def _packed(items: list[str], indent: str) -> list[str]:
+    lines, line = [], indent
+    for item in items:
+        if line != indent and len(line) + 1 + len(item) > LINE_LIMIT:
+            lines.append(line)
+            line = indent
+        line += item if line == indent else " " + item
+    return lines + [line] if line != indent else lines
+
+
+def text_tuple(values) -> str:
+    """A tuple literal of strings, each rendered by ``repr``, one per line."""
+    lines = []
+    for value in values:
+        line = "    " + repr(str(value)) + ","
+        lines.append(line + _NOQA_LONG_LINE if len(line) > LINE_LIMIT else line)
+    return "(\n" + "\n".join(lines) + "\n)" if lines else "()"
+
+
+def docstring_escape(text: str) -> str:
+    """``text`` made safe inside a triple-quoted (non-raw) string: backslashes, quotes escaped."""
+    return text.replace("\\", "\\\\").replace('"', '\\"')
+
+
+def docstring_lines(text: str, first: str = "", rest: str = "") -> list[str]:
+    """Escape ``text`` for the docstring and wrap it at spaces within ``LINE_LIMIT``.
+
+    ``first`` and ``rest`` indent the first and the following lines. A word longer than a line is
+    cut between escape units (never inside ``\\\\`` or ``\\"``), so wrapping cannot change what
+    the escapes mean.
+    """
+    lines, line, fresh = [], first, True
+    for word in (docstring_escape(w) for w in text.split(" ")):
+        if not fresh and len(line) + 1 + len(word) > LINE_LIMIT:
+            lines.append(line)
+            line, fresh = rest, True
+        line = line + word if fresh else f"{line} {word}"
+        fresh = False
+        while len(line) > LINE_LIMIT:
+            cut = LINE_LIMIT - _open_escape(line, LINE_LIMIT)
+            lines.append(line[:cut])
+            line = rest + line[cut:]
+    return [entry.rstrip() for entry in lines + [line]]
+
+
+def _open_escape(line: str, end: int) -> int:
+    """1 if ``line[end - 1]`` opens a two-character escape (an odd run of backslashes), else 0."""
+    head = line[:end]
+    return (len(head) - len(head.rstrip("\\"))) % 2
+
+
+def _docstring(bundle, error, out_of_domain: str) -> dict:
+    net = bundle.network
+    features = []
+    for i, (name, unit, lo, hi) in enumerate(zip(net.feature_names, net.feature_units,
+                                                 net.domain_low, net.domain_high, strict=True)):
+        features += docstring_lines(f"{i:<3} {name!r}, unit {unit!r}, domain {float(lo)!r} .. "
+                                    f"{float(hi)!r}", "    ", "        ")
+    outputs = []
+    rows = zip(net.target_names, net.target_units, error.per_output, strict=True)
+    for i, (name, unit, err) in enumerate(rows):
+        label = f", class label {net.class_labels[i]!r}" if net.task == "classification" else ""
+        outputs += docstring_lines(f"{i:<3} {name!r}, unit {unit!r}{label}, estimated max abs "
+                                   f"error {err:.3e}", "    ", "        ")
+    example = [float(v) for v in (net.domain_low + net.domain_high) / 2]
+    return {
+        "features": features, "outputs": outputs,
+        "example": docstring_lines(f"predictor.predict({example!r})", "    ", "        "),
+        "nodes": net.n_nodes, "activation": net.activation, "policy": out_of_domain,
+        "bundle_id": bundle.bundle_id, "version": __version__,
+        "worst_case": f"{max(error.worst_case):.3e}", "probes": error.probes,
+    }
