@@ -7,15 +7,24 @@ from nodecast.compiler.errors import BundleError, NodecastError
 from nodecast.compiler.ir import Network
 
 
-def emit(bundle: Bundle, to: str, path=None, overwrite: bool = False, **options):
+def emit(bundle: Bundle, to: str, path=None, overwrite: bool = False, max_bytes: int | None = None,
+         **options):
     """Render ``bundle`` for target ``to`` ("onnx", "c", "python"); write it to ``path`` if given.
 
+    An artifact larger in total than ``max_bytes`` (default
+    :data:`~nodecast.compiler.files.MAX_ARTIFACT_BYTES`) is refused before anything is written.
     Returns the :class:`~nodecast.compiler.backends.Artifact` (file names to bytes, and a summary).
     """
     from nodecast.compiler.backends import render
-    from nodecast.compiler.files import write_atomic, write_files
+    from nodecast.compiler.files import (
+        MAX_ARTIFACT_BYTES,
+        check_artifact_size,
+        write_atomic,
+        write_files,
+    )
 
     artifact = render(bundle, to, **options)
+    check_artifact_size(to, artifact.files, MAX_ARTIFACT_BYTES if max_bytes is None else max_bytes)
     if path is not None:
         if artifact.single_file:
             (data,) = artifact.files.values()

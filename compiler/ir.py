@@ -8,12 +8,14 @@ output scaling is the identity.
 
 from __future__ import annotations
 
+from collections import Counter
 from dataclasses import dataclass, field, fields
 from typing import Literal
 
 import numpy as np
 
 from nodecast.compiler.activations import get_activation
+from nodecast.compiler.errors import NodecastError
 
 Task = Literal["regression", "classification"]
 OUT_OF_DOMAIN_POLICIES = ("clamp", "pass", "reject")
@@ -92,6 +94,23 @@ class Network:
         if not self.target_units:
             object.__setattr__(self, "target_units", ("",) * len(self.target_names))
         self._check_shapes()
+        self._check_names()
+
+    def _check_names(self) -> None:
+        """Names must be valid Unicode (they are written as UTF-8) and distinct within each list:
+        artifacts and output files address features, targets and classes by name."""
+        for name in ("feature_names", "target_names", "class_labels", "feature_units",
+                     "target_units"):
+            values = getattr(self, name)
+            for value in values:
+                try:
+                    value.encode("utf-8")
+                except UnicodeEncodeError:
+                    raise NodecastError(f"{name} entry {value!r} is not valid Unicode") from None
+            if name in ("feature_names", "target_names", "class_labels"):
+                repeated = sorted(value for value, count in Counter(values).items() if count > 1)
+                if repeated:
+                    raise NodecastError(f"{name} repeats {repeated[0]!r}; names must be distinct")
 
     def _check_shapes(self) -> None:
         m, n = self.hidden_weights.shape
