@@ -76,7 +76,7 @@ class SelectionResult:
 
 def select(X, y, nodes=(50, 100, 250), neighbors=(None,), slope_scales=(1.0,), ridges=(0.0, 1e-6),
            folds=10, *, seed=0, domain=None, activation="logistic", precision=None, tolerance=None,
-           n_jobs=1, progress=None) -> SelectionResult:
+           n_jobs=1, progress=None, grow=None) -> SelectionResult:
     """Choose (M, k, s, lambda) by k-fold cross-validation and refit the choice on all rows.
 
     Parameters
@@ -93,6 +93,8 @@ def select(X, y, nodes=(50, 100, 250), neighbors=(None,), slope_scales=(1.0,), r
         and whatever :func:`nodecast.compiler.numerics.estimate` supports) exceeds ``tolerance``.
     n_jobs : int, parallel units (joblib); the result is the same for every value.
     progress : callable(done, total) or None, called after each unit.
+    grow : GrowthSettings or None; if given, the model is grown batch by batch with the chosen
+        (k, s, lambda) (:mod:`nodecast.trainer.growth`) instead of refitting the chosen M.
 
     Returns
     -------
@@ -105,15 +107,53 @@ def select(X, y, nodes=(50, 100, 250), neighbors=(None,), slope_scales=(1.0,), r
     points, diagnostics = run_search(X, Y, grid, settings, declared, progress)
     low, high = input_box(X, *declared)
 
+    targets = Y[:, 0] if y_was_1d else Y
+    if grow is not None:
+        from nodecast.trainer.export import to_bundle
+        from nodecast.trainer.growth import fit_grown
+
+        point, growth = grow_best(X, Y, points, settings, declared, grow)
+        model = fit_grown(X, targets, (low, high), point, settings, growth)
+        estimate = checked_estimate(to_bundle(model).network, settings, point)
+        return SelectionResult(points, point, settings, grid, model, estimate, 1, growth,
+                               diagnostics)
+
     def fit_final(point: GridPoint):
         from nodecast.trainer.estimators import RandomNodeRegressor
         from nodecast.trainer.export import to_bundle
 
         model = RandomNodeRegressor(activation=activation, domain=(low, high), random_state=seed,
-                                    **point.params).fit(X, Y[:, 0] if y_was_1d else Y)
+                                    **point.params).fit(X, targets)
         return model, to_bundle(model).network
 
     return finalise(points, grid, settings, fit_final, diagnostics)
+
+
+def grow_best(X, Y, points, settings: SearchSettings, declared, growth):
+    """Grow a network with the (k, s, lambda) of the best grid point meeting the budget.
+
+    Returns (that GridPoint, GrowthResult).
+    """
+    from nodecast.trainer.growth import grow
+
+    candidates = ranked(points)
+    if not candidates:
+        best = min(points, key=lambda p: (p.estimate, p.rank_key()))
+        raise NodecastError(_no_point_message(settings, best.estimate, best))
+    splits = fold_indices(X.shape[0], settings.folds, settings.seed)
+    probes = _screen_probes(X, declared) if settings.precision else None
+    span = Y.max(axis=0) - Y.min(axis=0)
+    result = grow(X, Y, splits, declared, candidates[0], settings, growth,
+                  np.where(span > 0, span, 1.0), probes)
+    return candidates[0], result
+
+
+def checked_estimate(network, settings: SearchSettings, point: GridPoint):
+    """The final model's estimate; NodecastError when it misses the tolerance."""
+    estimate = _final_estimate(network, settings.precision)
+    if estimate is not None and estimate.max_abs > settings.tolerance:
+        raise NodecastError(_no_point_message(settings, estimate.max_abs, point, refitted=True))
+    return estimate
 
 
 def _check_data(X, y):
