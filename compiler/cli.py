@@ -13,6 +13,7 @@ from pathlib import Path
 import click
 
 from nodecast.compiler.cli_score import score as score_command
+from nodecast.compiler.cli_select import select as select_command
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.version import __version__
 
@@ -280,6 +281,7 @@ def demo(output, data_only):
 
 
 cli.add_command(score_command)
+cli.add_command(select_command)
 
 
 def main(argv=None) -> None:

@@ -15,6 +15,7 @@ import numpy as np
 from sklearn.utils import check_random_state
 
 from nodecast.compiler.activations import get_activation
+from nodecast.compiler.errors import NodecastError
 from nodecast.trainer.generators import GENERATORS, HiddenLayer
 
 
@@ -25,7 +26,7 @@ def fold_indices(n_rows: int, folds: int, seed: int) -> list[tuple[np.ndarray, n
     by at most one; every row is validated exactly once.
     """
     if not (isinstance(folds, (int, np.integer)) and 2 <= folds <= n_rows):
-        raise ValueError(f"folds must be an integer from 2 to the number of rows ({n_rows}), "
+        raise NodecastError(f"folds must be an integer from 2 to the number of rows ({n_rows}), "
                          f"got {folds!r}")
     parts = np.array_split(np.random.RandomState(seed).permutation(n_rows), folds)
     splits = []

@@ -156,7 +156,7 @@ def _grow(X, Y, splits, declared, point, settings, growth, target_range, probes)
 
 
 def _max_estimate(folds, columns, proposals, settings, probes):
-    if settings.precision is None:
+    if settings.precision is None or settings.tolerance is None:
         return None
     return max(fold.estimate(columns, p[3], p[4], settings.precision, probes)
                for fold, p in zip(folds, proposals, strict=True))

@@ -90,7 +90,8 @@ def select(X, y, nodes=(50, 100, 250), neighbors=(None,), slope_scales=(1.0,), r
         take the range of the rows being fitted (each fold's training rows; all rows for the
         final model).
     precision, tolerance : reject points whose estimated export error in ``precision`` ("float32",
-        and whatever :func:`nodecast.compiler.numerics.estimate` supports) exceeds ``tolerance``.
+        and whatever :func:`nodecast.compiler.numerics.estimate` supports) exceeds ``tolerance``
+        (target units); a precision alone only reports the final model's estimate.
     n_jobs : int, parallel units (joblib); the result is the same for every value.
     progress : callable(done, total) or None, called after each unit.
     grow : GrowthSettings or None; if given, the model is grown batch by batch with the chosen
@@ -141,7 +142,7 @@ def grow_best(X, Y, points, settings: SearchSettings, declared, growth):
         best = min(points, key=lambda p: (p.estimate, p.rank_key()))
         raise NodecastError(_no_point_message(settings, best.estimate, best))
     splits = fold_indices(X.shape[0], settings.folds, settings.seed)
-    probes = _screen_probes(X, declared) if settings.precision else None
+    probes = _screen_probes(X, declared) if settings.tolerance is not None else None
     span = Y.max(axis=0) - Y.min(axis=0)
     result = grow(X, Y, splits, declared, candidates[0], settings, growth,
                   np.where(span > 0, span, 1.0), probes)
@@ -151,7 +152,8 @@ def grow_best(X, Y, points, settings: SearchSettings, declared, growth):
 def checked_estimate(network, settings: SearchSettings, point: GridPoint):
     """The final model's estimate; NodecastError when it misses the tolerance."""
     estimate = _final_estimate(network, settings.precision)
-    if estimate is not None and estimate.max_abs > settings.tolerance:
+    if estimate is not None and settings.tolerance is not None and \
+            estimate.max_abs > settings.tolerance:
         raise NodecastError(_no_point_message(settings, estimate.max_abs, point, refitted=True))
     return estimate
 
@@ -181,14 +183,15 @@ def _declared_box(domain, n_features: int):
 
 def run_search(X, Y, grid: Grid, settings: SearchSettings, declared, progress=None):
     """Score every grid point by cross-validation; returns (points, generator diagnostics)."""
-    if settings.precision is not None and settings.tolerance is None:
-        raise NodecastError("a precision budget needs a tolerance (target units) as well")
+    if settings.tolerance is not None and settings.precision is None:
+        raise NodecastError("a tolerance needs a precision to estimate the export error in")
     splits = fold_indices(X.shape[0], settings.folds, settings.seed)
-    probes = _screen_probes(X, declared) if settings.precision else None
+    budget = settings.precision if settings.tolerance is not None else None
+    probes = _screen_probes(X, declared) if budget else None
     keys = list(itertools.product(grid.neighbors, grid.slope_scales, range(settings.folds)))
     jobs = [(X, Y, splits[fold], declared,
              UnitSettings(k, s, grid.nodes, grid.ridges, settings.seed, settings.activation,
-                          settings.precision), probes) for k, s, fold in keys]
+                          budget), probes) for k, s, fold in keys]
     units: dict = {}
     results = zip(keys, _run(jobs, settings.n_jobs), strict=True)
     for done, ((k, s, _), scores) in enumerate(results, 1):
@@ -245,7 +248,7 @@ def finalise(points, grid: Grid, settings: SearchSettings, fit_final: Callable, 
     for refits, point in enumerate(candidates[:MAX_REFITS], 1):
         model, network = fit_final(point)
         estimate = _final_estimate(network, settings.precision)
-        if estimate is None or estimate.max_abs <= settings.tolerance:
+        if estimate is None or settings.tolerance is None or estimate.max_abs <= settings.tolerance:
             return SelectionResult(points, point, settings, grid, model, estimate, refits,
                                    diagnostics=diagnostics or {})
         tried.append((estimate.max_abs, point))
