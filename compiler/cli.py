@@ -173,7 +173,7 @@ def predict(model, data, output, scores, overwrite):
 
 @cli.command(epilog=_epilog("inspect"))
 @click.argument("model", type=click.Path(dir_okay=False))
-@click.option("--precision", type=click.Choice(["float64", "float32"]),
+@click.option("--precision", type=click.Choice(["float64", "float32", "q31", "q15"]),
               help="Also estimate the export error in this precision.")
 @click.option("--json", "as_json", is_flag=True, help="Print JSON instead of text.")
 def inspect(model, precision, as_json):
