@@ -1,0 +1,89 @@
+"""``--plot``: the cross-validated error against M, one line per k, the chosen point marked.
+
+Each line shows, for one neighbour count k, the best mean CV RMSE over the slope scales and ridge
+values at every M, with the spread over folds as a band; a second panel shows the growth curve
+when there is one. matplotlib is an optional extra (``pip install 'nodecast[plot]'``).
+"""
+
+from __future__ import annotations
+
+import io
+
+from nodecast.compiler.errors import NodecastError
+
+
+def _pyplot():
+    try:
+        import matplotlib
+    except ImportError:
+        raise NodecastError("--plot needs matplotlib: pip install 'nodecast[plot]'") from None
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    return plt
+
+
+def best_per_k(points) -> dict:
+    """For each k: list of (M, mean RMSE, std RMSE) of the best (s, lambda) at that M, first
+    target."""
+    best: dict = {}
+    for p in points:
+        key = (p.neighbors, p.nodes)
+        if key not in best or p.rank_key() < best[key].rank_key():
+            best[key] = p
+    lines: dict = {}
+    for (k, m), p in sorted(best.items(), key=lambda item: (item[0][0] or 0, item[0][1])):
+        lines.setdefault(k, []).append((m, p.rmse_mean[0], p.rmse_std[0]))
+    return lines
+
+
+def plot_search(result, path, overwrite: bool = False) -> None:
+    """Write the PNG of ``result`` (a SelectionResult) to ``path``."""
+    from nodecast.compiler.files import write_atomic
+
+    plt = _pyplot()
+    panels = 2 if result.growth is not None else 1
+    figure, axes = plt.subplots(1, panels, figsize=(6.4 * panels, 4.4), squeeze=False)
+    _grid_panel(axes[0][0], result)
+    if result.growth is not None:
+        _growth_panel(axes[0][1], result.growth)
+    figure.tight_layout()
+    buffer = io.BytesIO()
+    figure.savefig(buffer, format="png", dpi=100, metadata={"Software": None})
+    plt.close(figure)
+    write_atomic(path, buffer.getvalue(), overwrite=overwrite)
+
+
+def _grid_panel(ax, result) -> None:
+    for k, line in best_per_k(result.points).items():
+        m, mean, std = (list(column) for column in zip(*line, strict=True))
+        ax.plot(m, mean, marker="o", label=f"k = {k if k else 'default'}")
+        ax.fill_between(m, [a - b for a, b in zip(mean, std, strict=True)],
+                        [a + b for a, b in zip(mean, std, strict=True)], alpha=0.15)
+    chosen = result.chosen
+    ax.plot([chosen.nodes], [chosen.rmse_mean[0]], marker="*", markersize=16, color="black",
+            linestyle="none", label=f"chosen: {chosen.describe()}")
+    ax.set_xscale("log")
+    ax.set_xticks(list(result.grid.nodes), [str(m) for m in result.grid.nodes])
+    ax.minorticks_off()
+    ax.set_xlabel("hidden nodes M")
+    ax.set_ylabel(f"{result.settings.folds}-fold CV RMSE (target units)")
+    ax.set_title("validation error against M (best slope scale and ridge per point)")
+    ax.legend(fontsize=7)
+    ax.grid(True, alpha=0.3)
+
+
+def _growth_panel(ax, growth) -> None:
+    nodes = [r["nodes"] for r in growth.curve]
+    rmse = [r["rmse_mean"][0] for r in growth.curve]
+    kept = [r["kept"] for r in growth.curve]
+    ax.plot([n for n, k in zip(nodes, kept, strict=True) if k],
+            [e for e, k in zip(rmse, kept, strict=True) if k], marker="o", label="kept batch")
+    ax.plot([n for n, k in zip(nodes, kept, strict=True) if not k],
+            [e for e, k in zip(rmse, kept, strict=True) if not k], marker="x", linestyle="none",
+            color="red", label="rejected batch")
+    ax.set_xlabel("hidden nodes after the batch")
+    ax.set_ylabel("CV RMSE (target units)")
+    ax.set_title(f"growth: batches of {growth.settings.batch} nodes")
+    ax.legend(fontsize=7)
+    ax.grid(True, alpha=0.3)
