@@ -59,3 +59,21 @@ def test_data_driven_nodes_are_all_steep_somewhere_on_the_domain(plots_out):
     ranges = node_ranges(bundle)
     assert ranges["saturated"] == 0
     assert all(lo <= 0.0 <= hi for lo, hi in zip(ranges["z_low"], ranges["z_high"]))
+
+
+def test_ci_gate_passes_then_refuses_a_worse_model(tmp_path):
+    import xml.etree.ElementTree as ET
+
+    _run("ci/model_gate.sh", tmp_path)
+    junit = sorted(p.name for p in (tmp_path / "junit").glob("*.xml"))
+    assert "score.xml" in junit and "pytest.xml" in junit
+    assert any(name.startswith("verify-candidate_predictor") for name in junit)
+    worse = tmp_path / "worse.ncz"
+    subprocess.run(["nodecast", "train", str(tmp_path / "readings.csv"), "--target", "heatsink_temp",
+                    "--nodes", "8", "-o", str(worse)], check=True, capture_output=True)
+    result = subprocess.run(["nodecast", "score", str(worse), str(tmp_path / "held_out.csv"),
+                             "--baseline", str(tmp_path / "candidate.ncz"), "--junit",
+                             str(tmp_path / "worse.xml")], capture_output=True, text=True)
+    assert result.returncode == 1
+    suite = ET.parse(tmp_path / "worse.xml").getroot()
+    assert int(suite.get("failures") or suite.find("testsuite").get("failures")) >= 1
