@@ -7,7 +7,9 @@ stderr, no traceback). Heavy libraries (scikit-learn, onnx, onnxruntime) load in
 from __future__ import annotations
 
 import json
+import signal
 import sys
+import threading
 from pathlib import Path
 
 import click
@@ -284,7 +286,14 @@ cli.add_command(score_command)
 cli.add_command(select_command)
 
 
+def _stop_on_sigterm(signum, frame) -> None:
+    # unwind like Ctrl-C, so that compiler/files.py removes any half-written temporary output
+    raise SystemExit(128 + signum)
+
+
 def main(argv=None) -> None:
+    if threading.current_thread() is threading.main_thread():
+        signal.signal(signal.SIGTERM, _stop_on_sigterm)
     try:
         cli.main(args=argv, prog_name="nodecast", standalone_mode=False)
     except click.exceptions.Exit as exc:
