@@ -77,3 +77,15 @@ def test_ci_gate_passes_then_refuses_a_worse_model(tmp_path):
     assert result.returncode == 1
     suite = ET.parse(tmp_path / "worse.xml").getroot()
     assert int(suite.get("failures") or suite.find("testsuite").get("failures")) >= 1
+
+
+def test_standalone_predictor_runs_isolated_and_matches_the_reference(tmp_path):
+    from nodecast.compiler import load, reference
+    from nodecast.compiler.csvio import read_table
+
+    _run("standalone_predictor/run.sh", tmp_path)
+    bundle = load(tmp_path / "fan.ncz")
+    X = read_table(tmp_path / "held_out.csv").numbers(bundle.network.feature_names)
+    got = read_table(tmp_path / "predictions.csv").numbers(["heatsink_temp"])[:, 0]
+    want = reference.predict(bundle.network, X)[:, 0]
+    assert np.max(np.abs(got - want)) <= 1e-10 * np.ptp(want)  # SPEC: float64 artifacts
