@@ -198,13 +198,17 @@ def inspect(model, precision, as_json):
 @click.option("--flag-out-of-domain", is_flag=True, help="ONNX: add a boolean output per row.")
 @click.option("--opset", type=int, help="ONNX operator set version (default: pinned newest).")
 @click.option("--prefix", default="model", show_default=True, help="C: file and identifier prefix.")
+@click.option("--activation-impl", type=click.Choice(["libm", "rational", "table"]),
+              help="C: how tanh is evaluated (default: libm for float, table for q31/q15).")
+@click.option("--table-size", type=click.IntRange(16, 65536),
+              help="C, --activation-impl table: table intervals (default 512; q31 2048).")
 @click.option("-o", "--output", required=True, type=click.Path(),
               help="Output file (onnx, python) or folder (c).")
 @click.option("--overwrite", is_flag=True, help="Replace existing output files.")
 @click.option("--max-artifact-size", "max_size", default="64M", show_default=True,
               help="Refuse to write an artifact larger than this (bytes, or with K, M, G).")
 def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, prefix, output, overwrite,
-         max_size):
+         max_size, activation_impl, table_size):
     """Compile a bundle into an artifact for a target."""
     from nodecast.compiler import emit as emit_artifact
     from nodecast.compiler.files import parse_size
@@ -217,12 +221,20 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
     if opset is not None:
         options["opset"] = opset
     if target == "c":
-        options["prefix"] = prefix
+        options.update(prefix=prefix, activation_impl=activation_impl, table_size=table_size,
+                       footprint=True)
+    elif activation_impl or table_size:
+        raise NodecastError("--activation-impl and --table-size apply to --to c only")
     artifact = emit_artifact(load_bundle(model), target, output, overwrite=overwrite,
                              max_bytes=parse_size(max_size), **options)
     estimate = artifact.summary.get("estimate", {})
     click.echo(f"wrote {output} ({target}, {artifact.summary.get('precision', '?')}); estimated max "
                f"abs error {estimate.get('max_abs_error', float('nan')):.3e}", err=True)
+    if "footprint" in artifact.summary:
+        from nodecast.compiler.toolchain import format_footprint
+
+        click.echo(format_footprint(artifact.summary["footprint"], artifact.summary["weight_bytes"]),
+                   err=True)
 
 
 @cli.command(epilog=_epilog("verify"))

@@ -77,7 +77,12 @@ def domain_probes(net: Network, count: int = _PROBES, seed: int = 0) -> np.ndarr
 
 def estimate(net: Network, precision: str, X: np.ndarray | None = None,
              activation_error: float = 0.0) -> ErrorEstimate:
-    """Estimate the export error of ``net`` evaluated in ``precision`` ("float32" or "float64")."""
+    """Estimate the export error of ``net`` evaluated in ``precision`` ("float32" or "float64";
+    "q15" and "q31" go to :func:`nodecast.compiler.fixedpoint_error.estimate`)."""
+    if precision in ("q15", "q31"):
+        from nodecast.compiler import fixedpoint_error
+
+        return fixedpoint_error.estimate(net, precision, X, activation_error)
     if precision not in UNIT_ROUNDOFF:
         raise ValueError(f"no floating-point estimate for precision {precision!r}; "
                          f"choose one of {sorted(UNIT_ROUNDOFF)}")

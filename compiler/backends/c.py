@@ -1,0 +1,219 @@
+"""C back-end: a header and a source in C99 that read like a small hand-written library.
+
+``render`` validates the options, formats every number and every piece of user text in Python
+(:mod:`~nodecast.compiler.backends.c_format`), and fills the templates ``templates/c/model.h.j2``
+and ``model.c.j2``. The float32/float64 layout lives in :mod:`~nodecast.compiler.backends.c_float`,
+the q15/q31 one in :mod:`~nodecast.compiler.backends.c_fixed` (formats from
+:mod:`nodecast.compiler.fixedpoint`). The footprint (sizes and stack on the host and on Cortex-M)
+is measured by :mod:`nodecast.compiler.toolchain` when asked for.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from nodecast.compiler import numerics
+from nodecast.compiler.backends import Artifact
+from nodecast.compiler.backends.c_fixed import fixed_context
+from nodecast.compiler.backends.c_float import float_context
+from nodecast.compiler.backends.c_format import c_comment, c_string, check_prefix, double_literal
+from nodecast.compiler.errors import NodecastError
+from nodecast.compiler.fixedpoint import FIXED_PRECISIONS
+from nodecast.compiler.ir import OUT_OF_DOMAIN_POLICIES
+from nodecast.compiler.version import __version__
+
+PRECISIONS = ("float64", "float32", "q31", "q15")
+ACTIVATION_IMPLS = ("libm", "rational", "table")
+_IMPL_TEXT = {
+    "libm": "the C library's {fn}",
+    "rational": "a rational approximation x P(x^2)/Q(x^2), clipped at |x| = 9 (no libm)",
+    "table": "a {size}-interval table with linear interpolation (no libm)",
+}
+_POLICY_TEXT = {
+    "pass": "pass: inputs outside the domain are evaluated as given (the estimate covers the "
+            "domain only)",
+    "clamp": "clamp: each input is clipped into its domain before evaluation",
+    "reject": "reject: {P}_predict returns {P}_ERROR_OUT_OF_DOMAIN and leaves y untouched",
+}
+
+
+def render(bundle, precision: str = "float32", prefix: str = "model", out_of_domain: str = "pass",
+           activation_impl: str | None = None, table_size: int | None = None,
+           footprint: bool = False, **_ignored) -> Artifact:
+    """Render ``<prefix>.h`` and ``<prefix>.c`` for ``bundle``; see docs/c-backend.md."""
+    check_prefix(prefix)
+    if precision not in PRECISIONS:
+        raise NodecastError(f"C takes precision {', '.join(PRECISIONS)}, not {precision!r}")
+    if out_of_domain not in OUT_OF_DOMAIN_POLICIES:
+        raise NodecastError(f"--out-of-domain is clamp, pass or reject, not {out_of_domain!r}")
+    fixed = precision in FIXED_PRECISIONS
+    if fixed and out_of_domain == "pass":
+        raise NodecastError(f"{precision} integers hold the declared domain only, so inputs "
+                            "outside it cannot pass; choose --out-of-domain clamp or reject")
+    impl = activation_impl or ("table" if fixed else "libm")
+    if impl not in ACTIVATION_IMPLS:
+        raise NodecastError(f"--activation-impl is one of {', '.join(ACTIVATION_IMPLS)}, "
+                            f"not {impl!r}")
+    net = bundle.network
+    make_context = fixed_context if fixed else float_context
+    context = make_context(net, precision, impl, table_size)
+    if fixed:
+        from nodecast.compiler.fixedpoint_error import estimate as fixed_estimate
+
+        estimate = fixed_estimate(net, precision, table_size=context["plan"].table_size)
+    else:
+        estimate = numerics.estimate(net, precision, activation_error=context["activation_error"])
+    context.update(_common_context(bundle, precision, prefix, out_of_domain, impl, estimate,
+                                   context))
+    files = {f"{prefix}.h": _render_template("model.h.j2", context),
+             f"{prefix}.c": _render_template("model.c.j2", context)}
+    summary = {"precision": precision, "estimate": estimate.as_dict(), "prefix": prefix,
+               "activation_impl": impl, "activation_error": context["activation_error"],
+               "out_of_domain": out_of_domain, "weight_bytes": context["weight_bytes"],
+               "scratch_bytes": context["scratch_bytes"]}
+    if footprint:
+        from nodecast.compiler.toolchain import footprint as measure_footprint
+
+        summary["footprint"] = measure_footprint(files, prefix, uses_libm=impl == "libm")
+    return Artifact("c", files, False, summary)
+
+
+def _render_template(name: str, context: dict) -> bytes:
+    import jinja2
+
+    env = jinja2.Environment(loader=jinja2.PackageLoader("nodecast.templates", "c"),
+                             undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
+                             keep_trailing_newline=True, autoescape=False)
+    # Every piece of user text was escaped already; ASCII is a last check that nothing slipped by.
+    return env.get_template(name).render(**context).encode("ascii")
+
+
+def _common_context(bundle, precision, prefix, policy, impl, estimate, context) -> dict:
+    net, upper = bundle.network, prefix.upper()
+    fixed = precision in FIXED_PRECISIONS
+    size = context.get("table_size") or (context["plan"].table_size if fixed else 0)
+    impl_text = _IMPL_TEXT[impl].format(fn=context.get("tanh_function", ""), size=size)
+    logistic = net.activation == "logistic"
+    return {
+        "prefix": prefix, "PREFIX": upper, "guard": f"NODECAST_{upper}_H", "version": __version__,
+        "bundle_id": bundle.bundle_id, "precision": precision, "out_of_domain": policy,
+        "activation": net.activation, "activation_impl": impl, "activation_impl_text": impl_text,
+        "activation_error_literal": double_literal(context["activation_error"]),
+        "activation_error_text": f"{context['activation_error']:.3g}"
+                                 + (" (halved for a logistic node)" if logistic else ""),
+        "activation_text": ("logistic, as 1/2 + tanh(z/2)/2" if logistic else "tanh")
+                           + f", tanh from {impl_text}",
+        "table_size": size, "fixed": fixed, "classifier": net.task == "classification",
+        "n_inputs": net.n_features, "n_outputs": net.n_outputs, "n_nodes": net.n_nodes,
+        "io_type": context["word"] if fixed else context["real"],
+        "summary_line": f"{net.task} network: {_count(net.n_features, 'input')} -> "
+                        f"{_count(net.n_outputs, 'output')}, {net.n_nodes} {net.activation} nodes, "
+                        f"{precision}.",
+        "precision_text": _precision_text(precision),
+        "policy_text": _POLICY_TEXT[policy].format(P=upper), "policy_bounds": policy != "pass",
+        "bound_type": context["word"] if fixed else context["real"],
+        "domain_low": context["input_low"] if fixed else context["domain_low"],
+        "domain_high": context["input_high"] if fixed else context["domain_high"],
+        "z_range": _z_range(net), "estimate_lines": _estimate_lines(net, estimate),
+        "input_lines": _input_lines(net, context), "output_lines": _output_lines(net, context),
+        "format_lines": _format_lines(context) if fixed else [],
+        "layout_lines": _layout_lines(fixed, upper),
+        "return_text": _return_text(fixed, policy, upper),
+        "class_names": [c_string(label) for label in net.class_labels],
+    }
+
+
+def _count(number: int, noun: str) -> str:
+    return f"{number} {noun}" + ("" if number == 1 else "s")
+
+
+def _precision_text(precision: str) -> str:
+    return {"float64": "float64 (IEEE 754 binary64) inputs, outputs and arithmetic",
+            "float32": "float32 (IEEE 754 binary32) inputs, outputs and arithmetic",
+            "q31": "q31: int32_t inputs and outputs, 32-bit weights, 64-bit accumulators",
+            "q15": "q15: int16_t inputs and outputs, 16-bit weights, 64-bit accumulators",
+            }[precision]
+
+
+def _z_range(net) -> str:
+    weights = net.hidden_weights / net.input_scale
+    centre = 0.5 * (net.domain_low + net.domain_high)
+    mid = net.hidden_biases + weights @ (centre - net.input_offset)
+    radius = np.abs(weights) @ (0.5 * (net.domain_high - net.domain_low))
+    return f"{float(np.min(mid - radius)):.4g} .. {float(np.max(mid + radius)):.4g}"
+
+
+def _estimate_lines(net, estimate) -> list[str]:
+    return [f"y[{o}] {c_comment(name)}: {value:.3g} [{c_comment(unit)}]"
+            for o, (name, unit, value) in enumerate(zip(net.target_names, net.target_units,
+                                                        estimate.per_output, strict=True))]
+
+
+def _input_lines(net, context) -> list[str]:
+    lines = []
+    for i, (name, unit) in enumerate(zip(net.feature_names, net.feature_units, strict=True)):
+        line = (f"x[{i}] {c_comment(name)} [{c_comment(unit)}], domain "
+                f"{float(net.domain_low[i])!r} .. {float(net.domain_high[i])!r}")
+        if "plan" in context:
+            line += f", Q{context['plan'].input_frac[i]}"
+        lines.append(line)
+    return lines
+
+
+def _output_lines(net, context) -> list[str]:
+    lines = []
+    for o, (name, unit) in enumerate(zip(net.target_names, net.target_units, strict=True)):
+        line = f"y[{o}] {c_comment(name)} [{c_comment(unit)}]"
+        if net.task == "classification":
+            line += f", class {c_comment(net.class_labels[o])}"
+        if "plan" in context:
+            line += f", Q{context['plan'].result_frac[o]}"
+        lines.append(line)
+    return lines
+
+
+def _format_lines(context) -> list[str]:
+    plan, word = context["plan"], context["word"]
+    bits, norm = plan.word_bits, plan.norm_frac
+    product = f"{word} x {word} -> {context['wide']}"
+    hidden_pre = (f", each product first shifted right by {plan.hidden_pre_shift} (rounding) so "
+                  "that n of them fit" if plan.hidden_pre_shift else "")
+    output_pre = (f", each product first shifted right by {plan.output_pre_shift} (rounding)"
+                  if plan.output_pre_shift else "")
+    return [
+        f"Inputs: {word} in the Q format listed per input; the domain is clamped or checked in",
+        f"that format, then each input is centred and normalised into Q{norm} (-1 .. 1).",
+        f"Hidden layer: weights in Q{plan.hidden_frac} times inputs in Q{norm} ({product}),",
+        f"summed with the bias in an int64 accumulator in Q{plan.hidden_acc_frac}{hidden_pre}.",
+        f"Activation: the accumulator is clamped to +-{plan.table_reach:g}, rounded into Q5.26 and",
+        f"interpolated in a {plan.table_size}-interval tanh table; the result is in Q{bits - 1}.",
+        "Logistic nodes are 1/2 + tanh(z/2)/2, the halves folded into the weights and biases.",
+        f"Output layer: weights in Q{', Q'.join(map(str, plan.output_frac))} times tanh in "
+        f"Q{bits - 1} ({product}),",
+        f"summed with the bias in int64{output_pre}, then rounded into the output's Q format and",
+        f"saturated to +-{context['word_max']} instead of overflowing. No sum can overflow: every",
+        "accumulator's bound was checked when the code was generated.",
+        "Right shifts of negative values are taken to be arithmetic, as GCC, Clang and Arm's",
+        "compilers implement them (C99 leaves them implementation-defined).",
+    ]
+
+
+def _layout_lines(fixed: bool, upper: str) -> list[str]:
+    if fixed:
+        return ["Layout: node-major weights; one pass over the nodes computes each node's",
+                "pre-activation, its tanh and its share of every output, so the stack holds only",
+                f"the normalised inputs and the output accumulators ({upper}_SCRATCH_BYTES)."]
+    return ["Layout: hidden weights input-major, so each pass over the nodes is contiguous and",
+            "vectorises; the output sums run in interleaved partial sums. The stack holds the",
+            f"normalised inputs, the node array and the partial sums ({upper}_SCRATCH_BYTES).",
+            "Build with -ffp-contract=off for results that match other builds bit for bit",
+            "(fused multiply-add changes the last bits, within the stated estimate)."]
+
+
+def _return_text(fixed: bool, policy: str, upper: str) -> str:
+    codes = [] if fixed else [f"{upper}_ERROR_NAN_INPUT"]
+    if policy == "reject":
+        codes.append(f"{upper}_ERROR_OUT_OF_DOMAIN")
+    if not codes:
+        return f"{upper}_OK (always)."
+    return f"{upper}_OK, or " + " or ".join(codes) + " (then y is untouched)."

@@ -1,0 +1,85 @@
+"""The q15/q31 variants of the C back-end: the integer tables and shifts of a
+:class:`~nodecast.compiler.fixedpoint.FixedPlan`, formatted for the templates.
+
+Layout for flash and stack: node-major weights (``W[j][i]``, ``O[j][o]``) so one pass over the nodes
+computes each node's pre-activation, its tanh and its share of every output, with no scratch array
+the size of the hidden layer: the stack holds the n normalised inputs and t output accumulators.
+"""
+
+from __future__ import annotations
+
+from nodecast.compiler.backends.c_format import (
+    array_body,
+    array_rows,
+    double_literal,
+    int_literal,
+)
+from nodecast.compiler.errors import NodecastError
+from nodecast.compiler.fixedpoint import Z_FRAC, make_plan
+
+
+def _ints(values, bits: int) -> str:
+    return array_body([int_literal(v, bits) for v in values])
+
+
+def _int_rows(rows, bits: int) -> str:
+    return array_rows([[int_literal(v, bits) for v in row] for row in rows])
+
+
+def _rounding(shift: int) -> int:
+    return 2 ** (shift - 1) if shift > 0 else 0
+
+
+def fixed_context(net, precision: str, impl: str, table_size: int | None) -> dict:
+    """Template values for a q15/q31 artifact."""
+    if impl != "table":
+        raise NodecastError(f"{precision} evaluates its activation from a table; "
+                            f"--activation-impl {impl!r} is for float32 and float64")
+    plan = make_plan(net, precision, table_size)
+    bits = plan.word_bits
+    wide = 32 if bits == 16 else 64  # type of a product and of the normalisation
+    context = {
+        "plan": plan, "word": f"int{bits}_t", "wide": f"int{wide}_t",
+        "word_max": 2 ** (bits - 1) - 1,
+        "input_scale": [double_literal(2.0**f) for f in plan.input_frac],
+        "output_scale": [double_literal(2.0**f) for f in plan.result_frac],
+        "input_low": _ints(plan.input_low, bits), "input_high": _ints(plan.input_high, bits),
+        "input_centre": _ints(plan.input_centre, bits),
+        "input_recip": _ints(plan.input_recip, wide),
+        "norm_round": _rounding(plan.norm_shift),
+        "hidden_weights": _int_rows(plan.hidden_weights, bits),
+        "hidden_biases": _ints(plan.hidden_biases, 64),
+        "hidden_pre_round": int_literal(_rounding(plan.hidden_pre_shift), 64),
+        "output_weights": _int_rows(plan.output_weights, bits),
+        "output_biases": _ints(plan.output_biases, 64),
+        "output_pre_round": int_literal(_rounding(plan.output_pre_shift), 64),
+        "output_shift": array_body([str(a - r) for a, r in zip(plan.output_acc_frac,
+                                                                plan.result_frac, strict=True)]),
+        "table": _ints(plan.table, bits),
+        "activation_error": plan.table_error,
+        "scratch_bytes": (bits // 8) * net.n_features + 8 * net.n_outputs,
+        "weight_bytes": (bits // 8) * (plan.hidden_weights.size + plan.output_weights.size
+                                       + len(plan.table)) + 8 * (net.n_nodes + net.n_outputs),
+    }
+    context.update(_activation_argument(plan))
+    return context
+
+
+def _activation_argument(plan) -> dict:
+    """How the hidden accumulator becomes a Q5.26 tanh argument and a table position."""
+    reach_bits = plan.table_step_bits
+    interval_bits = Z_FRAC - reach_bits  # fraction bits inside one table interval
+    used_bits = 15 if plan.word_bits == 16 else interval_bits
+    drop = max(0, interval_bits - used_bits)
+    shift = plan.hidden_acc_frac - Z_FRAC
+    if shift >= 0:
+        limit = plan.table_size * 2 ** (plan.hidden_acc_frac - reach_bits)
+    else:
+        limit = (plan.table_size * 2 ** (Z_FRAC - reach_bits)) >> -shift
+    return {
+        "z_shift": shift, "z_round": int_literal(_rounding(shift), 64) if shift > 0 else "0",
+        "z_limit": int_literal(limit, 64), "z_max": plan.table_size * 2**interval_bits - 1,
+        "interval_bits": interval_bits, "interval_mask": 2**interval_bits - 1,
+        "frac_drop": drop, "interp_shift": interval_bits - drop,
+        "interp_round": _rounding(interval_bits - drop),
+    }
