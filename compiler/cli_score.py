@@ -39,7 +39,8 @@ def _write(path: str | None, text: str) -> None:
 @click.command("score", epilog=EXAMPLE)
 @click.argument("model", type=click.Path(dir_okay=False))
 @click.argument("data", type=click.Path(dir_okay=False))
-@click.option("--max-rmse", metavar="X[,X..]", help="Gate: RMSE limit in target units (one, or one per target).")
+@click.option("--max-rmse", metavar="X[,X..]",
+              help="Gate: RMSE limit in target units (one, or one per target).")
 @click.option("--min-accuracy", type=click.FloatRange(0, 1),
               help="Gate: smallest accuracy, a share 0..1 (classifiers).")
 @click.option("--baseline", type=click.Path(dir_okay=False),
