@@ -12,6 +12,8 @@ import sys
 
 import click
 
+from nodecast.compiler.errors import NodecastError
+
 EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,250 "
            "--neighbors 10,20,30 --ridge 0,1e-6 --precision float32 --tolerance 0.05 "
            "-o fan.ncz --report cv.json --plot cv.png")
@@ -77,7 +79,7 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
     from nodecast.trainer.training import TrainingJob
 
     if tolerance is not None and precision is None:
-        raise click.UsageError("--tolerance needs --precision")
+        raise NodecastError("--tolerance needs --precision (the precision to estimate it in)")
     job = TrainingJob(
         targets=parse_list(target, option="--target"),
         features=parse_list(features, option="--features"),
@@ -101,8 +103,6 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
 
 
 def _neighbors(items) -> list:
-    from nodecast.compiler.errors import NodecastError
-
     values = []
     for item in items:
         try:

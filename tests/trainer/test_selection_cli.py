@@ -1,0 +1,123 @@
+"""``nodecast select``: train reproduces the chosen model bit for bit, the budget's exit status,
+the report and the plot, and one-line errors for bad input."""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+
+from nodecast.compiler import load
+from nodecast.compiler.cli import main
+
+SEARCH = ["--nodes", "20,60", "--neighbors", "default,15", "--ridge", "0,1e-6,1e-2", "--folds", "3"]
+
+
+def run(*args) -> int:
+    try:
+        main([str(a) for a in args])
+    except SystemExit as exc:
+        return int(exc.code or 0)
+    return 0
+
+
+@pytest.fixture(scope="module")
+def table(tmp_path_factory):
+    from sklearn.datasets import make_friedman1  # Friedman (1991) benchmark, as shipped by sklearn
+
+    X, y = make_friedman1(n_samples=240, n_features=5, noise=0.3, random_state=4)
+    path = tmp_path_factory.mktemp("select") / "rig.csv"
+    lines = ["speed,load,temp,flow,valve,torque"]
+    lines += [",".join(repr(float(v)) for v in row) for row in np.column_stack([X, y])]
+    path.write_text("\n".join(lines) + "\n")
+    return path
+
+
+@pytest.fixture(scope="module")
+def selected(table):
+    out = table.parent
+    code = run("select", table, "--target", "torque", *SEARCH, "--seed", 5,
+               "--domain", "speed=0:1", "--units", "torque=N*m",
+               "-o", out / "m.ncz", "--report", out / "cv.json", "--plot", out / "cv.png")
+    assert code == 0
+    return out
+
+
+def test_train_with_the_chosen_options_reproduces_the_arrays(table, selected):
+    chosen = json.loads((selected / "cv.json").read_text())["chosen"]
+    options = ["--nodes", chosen["nodes"], "--ridge", repr(chosen["ridge"]),
+               "--slope-scale", repr(chosen["slope_scale"])]
+    if chosen["neighbors"] is not None:
+        options += ["--neighbors", chosen["neighbors"]]
+    assert run("train", table, "--target", "torque", *options, "--seed", 5,
+               "--domain", "speed=0:1", "--units", "torque=N*m", "-o", selected / "t.ncz") == 0
+    ours, theirs = load(selected / "m.ncz"), load(selected / "t.ncz")
+    for name, array in theirs.network.arrays().items():
+        assert np.array_equal(ours.network.arrays()[name], array), name
+    assert ours.metadata["settings"] == theirs.metadata["settings"]
+    assert ours.metadata["selection"]["chosen"]["n_nodes"] == chosen["nodes"]
+    assert ours.network.target_units == ("N*m",) and ours.network.domain_low[0] == 0.0
+
+
+def test_report_holds_every_point_and_is_reproducible(table, selected):
+    report = json.loads((selected / "cv.json").read_text())
+    assert len(report["points"]) == 2 * 2 * 3 and report["folds"] == 3
+    assert all(len(p["fold_rmse"]) == 3 for p in report["points"])
+    best = min(report["points"], key=lambda p: p["score"])
+    assert best["rmse_mean"] == report["chosen"]["rmse_mean"]
+    assert run("select", table, "--target", "torque", *SEARCH, "--seed", 5, "--domain",
+               "speed=0:1", "--units", "torque=N*m", "-o", selected / "again.ncz",
+               "--report", selected / "again.json") == 0
+    assert (selected / "again.json").read_bytes() == (selected / "cv.json").read_bytes()
+    assert (selected / "again.ncz").read_bytes() == (selected / "m.ncz").read_bytes()
+
+
+def test_plot_is_a_png(selected):
+    # the eight-byte PNG signature (PNG specification, RFC 2083)
+    assert (selected / "cv.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_budget_reports_the_estimate(table, selected, capsys):
+    code = run("select", table, "--target", "torque", *SEARCH, "--precision", "float32",
+               "--tolerance", "0.5", "-o", selected / "b.ncz", "--report", selected / "b.json")
+    assert code == 0
+    report = json.loads((selected / "b.json").read_text())
+    assert report["final_estimate"]["max_abs_error"] <= 0.5
+    assert "estimated float32 export error" in capsys.readouterr().err
+    assert load(selected / "b.ncz").metadata["selection"]["tolerance"] == 0.5
+
+
+def test_no_point_meeting_the_tolerance_is_exit_2(table, selected, capsys):
+    code = run("select", table, "--target", "torque", *SEARCH, "--precision", "float32",
+               "--tolerance", "1e-12", "-o", selected / "none.ncz")
+    err = capsys.readouterr().err.strip()
+    assert code == 2 and "best estimated export error is" in err and len(err.splitlines()) == 1
+    assert not (selected / "none.ncz").exists()
+
+
+@pytest.mark.parametrize("args, words", [
+    (["--tolerance", "0.1"], "--tolerance needs --precision"),
+    (["--nodes", "0,10"], "nodes takes positive integers"),
+    (["--neighbors", "ten"], "--neighbors takes integers"),
+    (["--ridge", "-1"], "ridges takes finite numbers"),
+    (["--target", "missing"], "missing"),
+    (["--domain", "nope=0:1"], "unknown feature"),
+    (["--folds", "500"], "folds must be an integer"),
+])
+def test_bad_input_is_one_line_and_exit_2(table, tmp_path, capsys, args, words):
+    base = {"--target": "torque", "--nodes": "10", "--folds": "3"}
+    for key, value in zip(args[::2], args[1::2], strict=True):
+        base[key] = value
+    flat = [item for pair in base.items() for item in pair]
+    code = run("select", table, *flat, "-o", tmp_path / "x.ncz")
+    err = capsys.readouterr().err.strip()
+    assert code == 2 and words in err and len(err.splitlines()) == 1, err
+
+
+def test_help_lists_every_option_with_an_example(capsys):
+    assert run("select", "--help") == 0
+    text = capsys.readouterr().out
+    for option in ("--nodes", "--neighbors", "--slope-scales", "--ridge", "--folds", "--precision",
+                   "--tolerance", "--grow", "--report", "--plot", "--jobs", "Example:"):
+        assert option in text
