@@ -97,8 +97,10 @@ class Network:
         self._check_names()
 
     def _check_names(self) -> None:
-        """Names must be valid Unicode (they are written as UTF-8) and distinct within each list:
-        artifacts and output files address features, targets and classes by name."""
+        """Names must be valid Unicode (written as UTF-8), hold no NUL (C strings end there) and be
+        distinct in each list: artifacts and outputs address features, targets and classes by name.
+        Feature names are found in CSV headers, so they must be non-empty, without surrounding
+        spaces."""
         for name in ("feature_names", "target_names", "class_labels", "feature_units",
                      "target_units"):
             values = getattr(self, name)
@@ -107,10 +109,16 @@ class Network:
                     value.encode("utf-8")
                 except UnicodeEncodeError:
                     raise NodecastError(f"{name} entry {value!r} is not valid Unicode") from None
+                if "\x00" in value:  # C strings would end there
+                    raise NodecastError(f"{name} entry {value!r} holds a NUL character")
             if name in ("feature_names", "target_names", "class_labels"):
                 repeated = sorted(value for value, count in Counter(values).items() if count > 1)
                 if repeated:
                     raise NodecastError(f"{name} repeats {repeated[0]!r}; names must be distinct")
+        for value in self.feature_names:  # CSV readers match header cells with spaces stripped
+            if value == "" or value.strip() != value:
+                raise NodecastError(f"feature name {value!r} is empty or starts or ends with "
+                                    "white space; CSV headers could never match it")
 
     def _check_shapes(self) -> None:
         m, n = self.hidden_weights.shape
