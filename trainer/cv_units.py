@@ -14,6 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from nodecast.compiler import numerics
+from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import Network
 from nodecast.trainer import solvers
 from nodecast.trainer.folds import SplitData, draw_layer, hidden_outputs, split_data
@@ -85,8 +86,17 @@ def _evaluate(X, Y, split, declared, settings: UnitSettings, probes) -> UnitScor
             max_abs[r, p] = np.max(np.abs(error), axis=0)
             if estimate is not None:
                 net = fold_network(layer, m, beta, bias, data, settings.activation)
-                estimate[r, p] = numerics.estimate(net, settings.precision, X=probes).max_abs
+                estimate[r, p] = _estimate(net, settings.precision, probes)
     return UnitScores(rmse, max_abs, estimate, dict(layer.diagnostics))
+
+
+def _estimate(net: Network, precision: str, probes) -> float:
+    """The estimate's max over outputs; infinity for a model the precision cannot represent
+    (a fixed-point plan whose accumulators could overflow), which no tolerance accepts."""
+    try:
+        return numerics.estimate(net, precision, X=probes).max_abs
+    except NodecastError:
+        return float("inf")
 
 
 def _blocks(layer, data: SplitData, activation: str):

@@ -97,7 +97,12 @@ class GridPoint:
                 "ridge": self.ridge, "rmse_mean": list(self.rmse_mean),
                 "rmse_std": list(self.rmse_std), "fold_rmse": [list(f) for f in self.fold_rmse],
                 "max_abs_error": list(self.max_abs_error), "score": self.score,
-                "estimate": self.estimate, "meets_budget": self.meets_budget}
+                "estimate": _finite_or_none(self.estimate), "meets_budget": self.meets_budget}
+
+
+def _finite_or_none(value):
+    """JSON has no infinity: an estimate the precision cannot represent is written as null."""
+    return value if value is None or math.isfinite(value) else None
 
 
 def tabulate(grid: Grid, units: dict, target_range: np.ndarray, tolerance: float | None):

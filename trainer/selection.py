@@ -247,7 +247,13 @@ def finalise(points, grid: Grid, settings: SearchSettings, fit_final: Callable, 
     tried = []
     for refits, point in enumerate(candidates[:MAX_REFITS], 1):
         model, network = fit_final(point)
-        estimate = _final_estimate(network, settings.precision)
+        try:
+            estimate = _final_estimate(network, settings.precision)
+        except NodecastError:
+            if settings.tolerance is None:
+                raise
+            tried.append((float("inf"), point))
+            continue
         if estimate is None or settings.tolerance is None or estimate.max_abs <= settings.tolerance:
             return SelectionResult(points, point, settings, grid, model, estimate, refits,
                                    diagnostics=diagnostics or {})
