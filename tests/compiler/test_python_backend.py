@@ -26,11 +26,12 @@ from nodecast.compiler.verify.runners import python as runner
 from nodecast.compiler.version import __version__
 
 REPO = Path(__file__).resolve().parents[2]
-HOSTILE = [
+HOSTILE = [  # the first would close a pasted docstring and run code (it does, unescaped)
+    '"""; import pathlib; pathlib.Path("MARKER").write_text("x"); print("PWNED"); """',
     '"""\nimport pathlib; pathlib.Path("MARKER").write_text("x"); print("PWNED")\n"""',
     "'''; print('PWNED'); '''",
     "back\\slash\\", "\\\"\"\"", "{{ 7 * 7 }}", "{% if true %}PWNED{% endif %}", "*/ #",
-    "line\nbreak\r\n# -*- coding: latin-1 -*-", "\u2028sep\u202eoverride\x00nul\x0c",
+    "line\nbreak\r\n# -*- coding: latin-1 -*-", "\u2028sep\u202eoverride\x0cform",
     "température 😀", "x" * 150 + " with spaces " + "\\" * 41 + '"' * 7,
 ]
 
