@@ -3,6 +3,7 @@ temperature from four sensor readings. The formula and its constants are made up
 
 from __future__ import annotations
 
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -40,7 +41,7 @@ def write_csv(path: Path, table: np.ndarray) -> None:
 
 
 def write_data(folder: Path) -> tuple[np.ndarray, np.ndarray]:
-    """Write readings.csv (2,000 noisy rows) and held_out.csv (500 noiseless rows) into ``folder``."""
+    """Write readings.csv (2,000 noisy rows) and held_out.csv (500 noiseless rows)."""
     folder.mkdir(parents=True, exist_ok=True)
     train_rows, test_rows = make_readings(2000, seed=1), make_readings(500, seed=2, noise=0.0)
     write_csv(folder / "readings.csv", train_rows)
@@ -59,6 +60,7 @@ def run_demo(folder: Path, echo=print) -> int:
     from nodecast.compiler.backends import BACKENDS
     from nodecast.compiler.csvio import read_table
     from nodecast.compiler.verify import format_table, verify
+    from nodecast.compiler.verify.report import to_json
     from nodecast.trainer.training import TrainingJob, train
 
     train_rows, test_rows = write_data(folder)
@@ -67,10 +69,10 @@ def run_demo(folder: Path, echo=print) -> int:
     table = read_table(folder / "readings.csv")
     bundle = train(table, job)
     save(bundle, folder / "fan.ncz", overwrite=True)
-    baseline = train(table, TrainingJob(**{**job.__dict__, "params": {"n_nodes": 200, "method": "interval"}}))
+    baseline = train(table, replace(job, params={"n_nodes": 200, "method": "interval"}))
     echo(f"trained fan.ncz (bundle {bundle.bundle_id[:12]}): held-out RMSE "
-         f"{_held_out_rmse(bundle.network, test_rows):.4f} degC; fixed-interval U(-1, 1) baseline of the "
-         f"same size {_held_out_rmse(baseline.network, test_rows):.4f} degC")
+         f"{_held_out_rmse(bundle.network, test_rows):.4f} degC; fixed-interval U(-1, 1) "
+         f"baseline of the same size {_held_out_rmse(baseline.network, test_rows):.4f} degC")
     status = 0
     for target, name in (("onnx", "fan.onnx"), ("c", "fan_c"), ("python", "fan_predictor.py")):
         try:
@@ -81,15 +83,9 @@ def run_demo(folder: Path, echo=print) -> int:
                 continue
             raise
         report = verify(bundle, folder / name, data=test_rows[:, :-1])
-        (folder / f"verify_{target}.json").write_text(_json(report.as_dict()), encoding="utf-8")
+        (folder / f"verify_{target}.json").write_text(to_json(report.as_dict()), encoding="utf-8")
         echo(f"--- {target}: {name}")
         echo(format_table(report))
         status = status or (0 if report.passed else 1)
     echo(f"demo {'passed' if status == 0 else 'FAILED'}; outputs in {folder}")
     return status
-
-
-def _json(document) -> str:
-    import json
-
-    return json.dumps(document, indent=2, sort_keys=True) + "\n"
