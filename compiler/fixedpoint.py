@@ -41,7 +41,7 @@ Z_FRAC = 26  # activation argument in Q5.26: |z| < 32 fits an int32 with a bit t
 _SATURATION = {"q15": 6.0, "q31": 8.0}  # table reach: 1 - tanh(6) = 1.2e-5, 1 - tanh(8) = 2.3e-7
 _NORM_SHIFT = {"q15": 15, "q31": 30}
 _MIN_HALF_STEPS = 8  # a feature needs at least 16 input steps across its domain
-_ACC_LIMIT = 2**62
+ACC_LIMIT = 2**62
 INTERPOLATION_ROUNDING = 0.52  # steps of Q(W-1): half a step, plus the truncated fraction's share
 
 
@@ -220,9 +220,9 @@ def _hidden_layer(net: Network, bits: int, frac, centre, half) -> dict:
     t_max = 2**norm_frac + 2
     bound = max((sum(abs(v) for v in row) for row in weights), default=0) * t_max
     bound += float(np.max(np.abs(bt), initial=0.0)) * 2.0 ** (weight_frac + norm_frac)
-    pre_shift = 0 if bits == 16 else _pre_shift(float(bound))
+    pre_shift = _pre_shift(float(bound))
     acc_frac = weight_frac + norm_frac - pre_shift
-    return {"hidden_weights": weights, "hidden_biases": _quantise(bt, acc_frac, _ACC_LIMIT),
+    return {"hidden_weights": weights, "hidden_biases": _quantise(bt, acc_frac, ACC_LIMIT),
             "hidden_frac": weight_frac, "hidden_pre_shift": pre_shift, "hidden_acc_frac": acc_frac,
             "at": at, "bt": bt}
 
@@ -232,12 +232,13 @@ def _output_layer(net: Network, bits: int) -> dict:
     weight_frac = tuple(_frac_bits(float(np.max(np.abs(beta[:, o]), initial=0.0)), bits - 1)
                         for o in range(net.n_outputs))
     weights = _quantise(beta, np.asarray(weight_frac)[None, :], 2 ** (bits - 1) - 1)
-    bound = max(sum(abs(v) for v in weights[:, o]) for o in range(net.n_outputs)) * 2 ** (bits - 1)
-    pre_shift = 0 if bits == 16 else _pre_shift(float(bound))
+    bound = max(sum(abs(v) for v in weights[:, o]) * 2 ** (bits - 1)
+                + abs(float(ct[o])) * 2.0 ** (weight_frac[o] + bits - 1) for o in range(net.n_outputs))
+    pre_shift = _pre_shift(float(bound))
     acc_frac = tuple(f + bits - 1 - pre_shift for f in weight_frac)
     result = tuple(min(_frac_bits(float(r), bits - 2), acc)
                    for r, acc in zip(_output_ranges(net), acc_frac, strict=True))
-    biases = _quantise(ct, np.asarray(acc_frac), _ACC_LIMIT)
+    biases = _quantise(ct, np.asarray(acc_frac), ACC_LIMIT)
     return {"output_weights": weights, "output_biases": biases,
             "output_frac": weight_frac, "output_pre_shift": pre_shift, "output_acc_frac": acc_frac,
             "result_frac": result, "beta": beta, "ct": ct}

@@ -19,6 +19,9 @@ from nodecast.compiler.ir import Network
 from nodecast.compiler.numerics import COVERAGE, ErrorEstimate, domain_probes
 
 _TANH_CURVATURE = 0.7698  # max |tanh''| = 4 / (3 sqrt 3)
+# The table's error summed over the nodes is heavier-tailed than a normal error: on four test models
+# its maximum over 65,536 probes reached 5.8 times its root mean square (4.8 over 4,096 probes).
+TABLE_COVERAGE = 6.0
 _BLOCK = 256
 
 
@@ -37,8 +40,9 @@ def estimate(net: Network, precision: str, X: np.ndarray | None = None,
     artifact clamps or rejects anything outside it. ``worst_case`` is the same sum with every term
     taken in absolute value and the table's error at its maximum. The table's own error, also known
     exactly at each probe, varies with x like a random function (every node sits at its own place
-    between two entries), so it adds as the larger of its maximum over the probes and ``COVERAGE``
-    times its root mean square over them.
+    between two entries), so it adds as the larger of its maximum over the probes and
+    ``TABLE_COVERAGE`` times its root mean square over them (capped by sum |weight| times the
+    table's maximum error, which bounds it).
     """
     plan = make_plan(net, precision, table_size)
     X = domain_probes(net) if X is None else np.asarray(X, dtype=np.float64)
@@ -51,7 +55,9 @@ def estimate(net: Network, precision: str, X: np.ndarray | None = None,
         typical, worst = np.maximum(typical, block[0]), np.maximum(worst, block[1])
         table_max = np.maximum(table_max, np.abs(block[2]).max(axis=0))
         table_squares += (block[2] ** 2).sum(axis=0)
-    table = np.maximum(table_max, COVERAGE * np.sqrt(table_squares / X.shape[0]))
+    linear = np.abs(plan.beta).sum(axis=0) * plan.table_error
+    spread = np.minimum(TABLE_COVERAGE * np.sqrt(table_squares / X.shape[0]), linear)
+    table = np.maximum(table_max, spread)
     return ErrorEstimate(precision, tuple(float(v) for v in typical + table),
                          tuple(float(v) for v in worst), int(X.shape[0]))
 

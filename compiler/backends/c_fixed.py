@@ -15,7 +15,7 @@ from nodecast.compiler.backends.c_format import (
     int_literal,
 )
 from nodecast.compiler.errors import NodecastError
-from nodecast.compiler.fixedpoint import Z_FRAC, make_plan
+from nodecast.compiler.fixedpoint import ACC_LIMIT, Z_FRAC, make_plan
 
 
 def _ints(values, bits: int) -> str:
@@ -76,6 +76,7 @@ def _activation_argument(plan) -> dict:
         limit = plan.table_size * 2 ** (plan.hidden_acc_frac - reach_bits)
     else:
         limit = (plan.table_size * 2 ** (Z_FRAC - reach_bits)) >> -shift
+    limit = min(limit, ACC_LIMIT)  # beyond the accumulator's own bound the clamp never acts
     return {
         "z_shift": shift, "z_round": int_literal(_rounding(shift), 64) if shift > 0 else "0",
         "z_limit": int_literal(limit, 64), "z_max": plan.table_size * 2**interval_bits - 1,
