@@ -208,8 +208,9 @@ def inspect(model, precision, as_json):
 @click.option("-o", "--output", required=True, type=click.Path(),
               help="Output file (onnx, python) or folder (c).")
 @click.option("--overwrite", is_flag=True, help="Replace existing output files.")
-@click.option("--max-artifact-size", "max_size", default="64M", show_default=True,
-              help="Refuse to write an artifact larger than this (bytes, or with K, M, G).")
+@click.option("--max-artifact-size", "max_size",
+              help="Refuse to write an artifact larger than this, in bytes or with K, M, G "
+                   "(default 64M).")
 def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, prefix, output, overwrite,
          max_size, activation_impl, table_size):
     """Compile a bundle into an artifact for a target."""
@@ -228,8 +229,9 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
                        footprint=True)
     elif activation_impl or table_size:
         raise NodecastError("--activation-impl and --table-size apply to --to c only")
+    max_bytes = None if max_size is None else parse_size(max_size)
     artifact = emit_artifact(load_bundle(model), target, output, overwrite=overwrite,
-                             max_bytes=parse_size(max_size), **options)
+                             max_bytes=max_bytes, **options)
     estimate = artifact.summary.get("estimate", {})
     click.echo(f"wrote {output} ({target}, {artifact.summary.get('precision', '?')}); estimated max "
                f"abs error {estimate.get('max_abs_error', float('nan')):.3e}", err=True)

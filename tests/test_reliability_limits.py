@@ -1,0 +1,82 @@
+"""Resource limits: emit refuses an artifact over a stated size (64 MiB by default) unless the user
+raises the limit explicitly, and writes nothing when it refuses."""
+
+from __future__ import annotations
+
+import shutil
+
+import numpy as np
+import pytest
+
+from nodecast.compiler import emit, files
+from nodecast.compiler.bundle import Bundle, save
+from nodecast.compiler.cli import main
+from nodecast.compiler.errors import NodecastError
+from nodecast.compiler.ir import Network
+
+
+def _bundle(n_nodes=400, n_features=8) -> Bundle:
+    rng = np.random.default_rng(0)
+    n, m = n_features, n_nodes
+    return Bundle(Network(
+        hidden_weights=rng.normal(size=(m, n)), hidden_biases=rng.normal(size=m),
+        activation="tanh", output_weights=rng.normal(size=(m, 1)), output_bias=[0.0],
+        input_offset=np.zeros(n), input_scale=np.ones(n), output_offset=[0.0],
+        output_scale=[1.0], domain_low=np.zeros(n), domain_high=np.ones(n),
+        feature_names=tuple(f"x{i}" for i in range(n)), target_names=("y",)), {})
+
+
+def run_cli(args, capsys) -> tuple[int, str]:
+    with pytest.raises(SystemExit) as info:
+        main([str(arg) for arg in args])
+        raise SystemExit(0)
+    return info.value.code, capsys.readouterr().err
+
+
+KINDS = ["onnx", "python"] + (["c"] if shutil.which("gcc") else [])
+
+
+@pytest.mark.parametrize("kind", KINDS)
+def test_emit_refuses_an_artifact_over_the_limit_and_writes_nothing(kind, tmp_path):
+    bundle = _bundle()
+    size = sum(map(len, emit(bundle, kind).files.values()))
+    # 4001 parameters take 16 kB even as IEEE 754 binary32, the narrowest default precision
+    assert size > 4 * (400 * 8 + 400 + 400 + 1)
+    target = tmp_path / ("out" if kind == "c" else f"out.{kind}")
+    with pytest.raises(NodecastError) as info:
+        emit(bundle, kind, target, max_bytes=size - 1)
+    message = str(info.value)
+    assert f"would be {size} bytes" in message and "--max-artifact-size" in message
+    assert not target.exists()
+    emit(bundle, kind, target, max_bytes=size)  # exactly at the limit is allowed
+    assert target.exists()
+
+
+def test_default_limit_applies_without_the_option(tmp_path, monkeypatch, capsys):
+    path = tmp_path / "m.ncz"
+    save(_bundle(), path)
+    monkeypatch.setattr(files, "MAX_ARTIFACT_BYTES", 10_000)
+    code, err = run_cli(["emit", path, "--to", "onnx", "-o", tmp_path / "m.onnx"], capsys)
+    assert code == 2 and "over the limit 10K" in err and "pass --max-artifact-size" in err
+    assert files.MAX_ARTIFACT_BYTES != 64 * 2**20  # patched; the shipped default is 64 MiB:
+    monkeypatch.undo()
+    assert files.MAX_ARTIFACT_BYTES == 64 * 2**20
+    assert not (tmp_path / "m.onnx").exists()
+    code, err = run_cli(["emit", path, "--to", "onnx", "-o", tmp_path / "m.onnx",
+                         "--max-artifact-size", "1M"], capsys)
+    assert code == 0, err
+
+
+@pytest.mark.parametrize("text, size", [("500", 500), ("200K", 200 * 1024), ("64M", 64 * 2**20),
+                                        ("2GiB", 2 * 2**30), ("1 mb", 2**20)])
+def test_sizes_are_read_in_binary_units(text, size):
+    assert files.parse_size(text) == size
+
+
+@pytest.mark.parametrize("text", ["", "-1", "1.5M", "64T", "lots", "\u0663K"])
+def test_bad_sizes_are_refused_through_the_cli(text, tmp_path, capsys):
+    path = tmp_path / "m.ncz"
+    save(_bundle(n_nodes=5), path)
+    code, err = run_cli(["emit", path, "--to", "onnx", "-o", tmp_path / "m.onnx",
+                         "--max-artifact-size", text], capsys)
+    assert code == 2 and "--max-artifact-size takes a size" in err
