@@ -6,4 +6,4 @@ class NodecastError(ValueError):
 
 
 class BundleError(NodecastError):
-    """A bundle file that cannot be trusted: corrupt, truncated, tampered with or from the future."""
+    """A bundle that cannot be trusted: corrupt, truncated, tampered with or from the future."""
