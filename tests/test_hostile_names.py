@@ -21,6 +21,8 @@ import sys
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from nodecast.compiler import emit, reference
 from nodecast.compiler.backends import BACKENDS
@@ -299,3 +301,59 @@ def test_hostile_csv_header_and_labels_survive_train_emit_verify(tmp_path):
         verified = nodecast("verify", "m.ncz", output, "--data", "d.csv", "--probes", "256")
         assert verified.returncode == 0, (kind, verified.stdout, verified.stderr)
     assert not list(tmp_path.glob("planted*"))
+
+
+# -- any text at all (hypothesis) ------------------------------------------------------------------
+
+names_text = st.text(st.characters(exclude_categories=("Cs",), exclude_characters="\x00"),
+                     min_size=1, max_size=40).filter(lambda s: s.strip() == s != "")
+_C_ESCAPES = {"n": b"\n", "t": b"\t", "r": b"\r", '"': b'"', "\\": b"\\", "?": b"?", "'": b"'"}
+
+
+def _decode_c_string(literal: str) -> bytes:
+    """The bytes of a C string literal, by ISO C99 6.4.4.4 (simple and octal escapes only)."""
+    assert literal[0] == literal[-1] == '"'
+    body, out, i = literal[1:-1], bytearray(), 0
+    while i < len(body):
+        if body[i] != "\\":
+            assert body[i] != '"'
+            out += body[i].encode("ascii")
+            i += 1
+        elif body[i + 1] in "01234567":
+            digits = re.match(r"[0-7]{1,3}", body[i + 1:]).group()
+            out.append(int(digits, 8))
+            i += 1 + len(digits)
+        else:
+            out += _C_ESCAPES[body[i + 1]]
+            i += 2
+    return bytes(out)
+
+
+@settings(max_examples=500, deadline=None, derandomize=True, database=None)
+@given(st.text(st.characters(exclude_categories=("Cs",)), max_size=60))
+def test_c_escapes_keep_any_text_inert(text):
+    from nodecast.compiler.backends.c_format import c_comment, c_string
+
+    comment = c_comment(text)
+    assert comment.isascii() and "*/" not in comment and "/*" not in comment
+    assert "\n" not in comment and "\r" not in comment and "??" not in comment
+    literal = c_string(text)
+    assert literal.isascii() and "??" not in literal and "\n" not in literal
+    assert _decode_c_string(literal) == text.encode("utf-8")
+
+
+@settings(max_examples=30, deadline=None, derandomize=True, database=None)
+@given(st.lists(names_text, min_size=2, max_size=2, unique=True), names_text)
+def test_any_names_leave_the_python_and_onnx_skeletons_unchanged(features, unit):
+    import onnx
+
+    hostile = Bundle(_network(features, ["y"]).replace(feature_units=(unit, unit)), {})
+    plain = Bundle(hostile.network.replace(feature_names=("a", "b"), feature_units=("u", "u")), {})
+    python = [emit(b, "python").files["predictor.py"] for b in (hostile, plain)]
+    assert _python_skeleton(python[0]) == _python_skeleton(python[1])
+    namespace = {}
+    exec(compile(python[0], "predictor.py", "exec"), namespace)
+    assert namespace["FEATURE_NAMES"] == tuple(features)
+    assert namespace["FEATURE_UNITS"] == (unit, unit)
+    models = [onnx.load_from_string(emit(b, "onnx").files["model.onnx"]) for b in (hostile, plain)]
+    assert _onnx_skeleton(models[0]) == _onnx_skeleton(models[1])
