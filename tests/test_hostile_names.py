@@ -186,11 +186,10 @@ def _emit_c(bundle, folder, precision="float64"):
 
 
 @pytest.mark.skipif(shutil.which("gcc") is None, reason="needs gcc")
-@pytest.mark.parametrize("precision", ["float64", "q15"])
-def test_c_sources_keep_names_in_comments_and_strings_only(pair, tmp_path, precision):
-    hostile, plain = pair
-    if precision == "q15" and hostile.network.task == "regression":
-        pytest.skip("one fixed-point case suffices")
+@pytest.mark.parametrize("classifier, precision", [(False, "float64"), (True, "float64"),
+                                                   (True, "q15")])
+def test_c_sources_keep_names_in_comments_and_strings_only(classifier, precision, tmp_path):
+    hostile, plain = _pair(classifier)
     options = {"out_of_domain": "clamp"} if precision == "q15" else {}
     folders = []
     for name, bundle in (("hostile", hostile), ("plain", plain)):
