@@ -20,6 +20,10 @@ from nodecast.compiler.verify.runners import c as c_runner
 
 STRICT = ("-std=c99", "-Wall", "-Wextra", "-Wpedantic", "-Wconversion", "-Wshadow",
           "-Wdouble-promotion", "-Werror")
+# IEEE 754 binary64 extremes: the largest finite values, infinities, NaN, the smallest subnormal and
+# normal numbers, signed zero, and values beyond float32's range (3.4028235e38 is FLT_MAX).
+EXTREMES = (1e308, -1e308, np.inf, -np.inf, np.nan, 5e-324, -5e-324, 2.2250738585072014e-308,
+            -0.0, 3.4028235e38, 3.5e38, -3.5e38)
 INSTALL_HINT = ("apt-get install --no-install-recommends gcc g++ gcc-arm-none-eabi "
                 "libnewlib-arm-none-eabi qemu-system-arm")
 
@@ -46,6 +50,19 @@ def run_c(folder: Path, X, emulate: str | None = None, extra_flags=()) -> np.nda
         return c_runner.run(folder, X, info)
     text = c_runner.run_host(folder, np.asarray(X, dtype=np.float64), info, extra_flags)
     return c_runner.parse_output(text, len(X), info)
+
+
+def extreme_rows(net) -> np.ndarray:
+    """Each extreme in one feature (the others mid-domain), then in every feature at once."""
+    middle = 0.5 * (net.domain_low + net.domain_high)
+    rows = []
+    for value in EXTREMES:
+        for i in range(net.n_features):
+            row = middle.copy()
+            row[i] = value
+            rows.append(row)
+        rows.append(np.full(net.n_features, value))
+    return np.array(rows)
 
 
 def single_node_bundle(activation: str, reach: float = 8.0) -> Bundle:
