@@ -3,6 +3,7 @@ raises the limit explicitly, and writes nothing when it refuses."""
 
 from __future__ import annotations
 
+import re
 import shutil
 
 import numpy as np
@@ -80,3 +81,29 @@ def test_bad_sizes_are_refused_through_the_cli(text, tmp_path, capsys):
     code, err = run_cli(["emit", path, "--to", "onnx", "-o", tmp_path / "m.onnx",
                          "--max-artifact-size", text], capsys)
     assert code == 2 and "--max-artifact-size takes a size" in err
+
+
+def _limit_address_space():  # a wrong guess must fail fast here, never swap the shared machine
+    import resource
+
+    resource.setrlimit(resource.RLIMIT_AS, (4 * 2**30, 4 * 2**30))
+
+
+@pytest.mark.xfail(reason="the memory estimate belongs to the trainer and is not in this tree "
+                          "yet; today a MemoryError traceback ends the run", strict=False)
+def test_training_refuses_a_model_that_cannot_fit_in_memory_with_an_estimate(tmp_path):
+    import subprocess
+    import sys
+
+    rng = np.random.default_rng(0)
+    rows = "\n".join(",".join(map(repr, map(float, row))) for row in rng.random((200, 4)))
+    (tmp_path / "d.csv").write_text("a,b,c,y\n" + rows + "\n")
+    # 300,000 nodes: the M x M factor alone is 300000^2 x 8 bytes = 720 GB (671 GiB)
+    result = subprocess.run([sys.executable, "-m", "nodecast.compiler.cli", "train", "d.csv",
+                             "--target", "y", "--nodes", "300000", "--method", "interval",
+                             "-o", "m.ncz"], cwd=tmp_path,
+                            capture_output=True, text=True, timeout=300,
+                            preexec_fn=_limit_address_space)
+    assert result.returncode == 2 and "Traceback" not in result.stderr
+    assert re.search(r"\d+(\.\d+)? ?(GB|GiB|TB|TiB)", result.stderr)
+    assert len(result.stderr.strip().splitlines()) == 1 and not (tmp_path / "m.ncz").exists()
