@@ -56,8 +56,9 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
 @click.option("--validation-fraction", type=click.FloatRange(0, 0.9), default=0.2,
               show_default=True, help="As for train: share of rows held out for the bundle's "
                                       "validation metrics (the bundle's model uses all rows).")
-@click.option("--jobs", type=click.IntRange(min=1), default=1, show_default=True,
-              help="Parallel (fold, k, s) units; the result is the same for any value.")
+@click.option("--jobs", default="auto", show_default=True,
+              help="Parallel (fold, k, s) units, or 'auto' (every core for large searches); the "
+                   "result is the same for any value.")
 @click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
               help="Bundle (.ncz).")
 @click.option("--report", type=click.Path(dir_okay=False), help="Write every number as JSON here.")
@@ -88,7 +89,7 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
     grid = make_grid(parse_list(nodes, int, "--nodes"), _neighbors(parse_list(neighbors)),
                      parse_list(slope_scales, float, "--slope-scales"),
                      parse_list(ridge, float, "--ridge"))
-    settings = SearchSettings(folds, seed, activation, precision, tolerance, jobs)
+    settings = SearchSettings(folds, seed, activation, precision, tolerance, _jobs(jobs))
     growth = GrowthSettings(grow_batch, grow_threshold, grow_patience,
                             grow_pool or 2 * max(grid.nodes)) if grow else None
     result, bundle = run_selection(read_table(data), job, grid, settings, growth, _progress())
@@ -100,6 +101,14 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
 
         plot_search(result, plot, overwrite=True)
     click.echo(_summary(result, bundle, output), err=True)
+
+
+def _jobs(text: str) -> int | None:
+    if text == "auto":
+        return None
+    if text.isdigit() and int(text) >= 1:
+        return int(text)
+    raise NodecastError(f"--jobs takes a positive integer or 'auto', got {text!r}")
 
 
 def _neighbors(items) -> list:

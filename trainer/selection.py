@@ -25,6 +25,7 @@ from nodecast.trainer.cv_units import UnitSettings, evaluate_unit
 from nodecast.trainer.folds import fold_indices, input_box
 from nodecast.trainer.grid import Grid, GridPoint, make_grid, ranked, tabulate
 
+PARALLEL_WORK = 2e9  # N_train * max(M)^2 of the units above which n_jobs=None runs them in parallel
 SCREEN_PROBES = 256  # Sobol probes (plus the box's corners) for the per-fold estimates
 MAX_REFITS = 5  # candidates refitted on all rows when the final estimate misses the tolerance
 
@@ -38,7 +39,7 @@ class SearchSettings:
     activation: str = "logistic"
     precision: str | None = None
     tolerance: float | None = None
-    n_jobs: int = 1
+    n_jobs: int | None = None
 
 
 @dataclass(eq=False)
@@ -76,7 +77,7 @@ class SelectionResult:
 
 def select(X, y, nodes=(50, 100, 250), neighbors=(None,), slope_scales=(1.0,), ridges=(0.0, 1e-6),
            folds=10, *, seed=0, domain=None, activation="logistic", precision=None, tolerance=None,
-           n_jobs=1, progress=None, grow=None) -> SelectionResult:
+           n_jobs=None, progress=None, grow=None) -> SelectionResult:
     """Choose (M, k, s, lambda) by k-fold cross-validation and refit the choice on all rows.
 
     Parameters
@@ -92,7 +93,9 @@ def select(X, y, nodes=(50, 100, 250), neighbors=(None,), slope_scales=(1.0,), r
     precision, tolerance : reject points whose estimated export error in ``precision`` ("float32",
         and whatever :func:`nodecast.compiler.numerics.estimate` supports) exceeds ``tolerance``
         (target units); a precision alone only reports the final model's estimate.
-    n_jobs : int, parallel units (joblib); the result is the same for every value.
+    n_jobs : int or None, parallel units (joblib); None: every core once the units' work
+        (N_train * max(M)^2 summed) exceeds ``PARALLEL_WORK``, else 1. The result is the same for
+        every value.
     progress : callable(done, total) or None, called after each unit.
     grow : GrowthSettings or None; if given, the model is grown batch by batch with the chosen
         (k, s, lambda) (:mod:`nodecast.trainer.growth`) instead of refitting the chosen M.
@@ -193,7 +196,9 @@ def run_search(X, Y, grid: Grid, settings: SearchSettings, declared, progress=No
              UnitSettings(k, s, grid.nodes, grid.ridges, settings.seed, settings.activation,
                           budget), probes) for k, s, fold in keys]
     units: dict = {}
-    results = zip(keys, _run(jobs, settings.n_jobs), strict=True)
+    n_jobs = settings.n_jobs or _auto_jobs(len(keys), X.shape[0] - len(splits[0][1]),
+                                           max(grid.nodes))
+    results = zip(keys, _run(jobs, n_jobs), strict=True)
     for done, ((k, s, _), scores) in enumerate(results, 1):
         units.setdefault((k, s), []).append(scores)
         if progress is not None:
@@ -201,6 +206,14 @@ def run_search(X, Y, grid: Grid, settings: SearchSettings, declared, progress=No
     span = Y.max(axis=0) - Y.min(axis=0)
     points = tabulate(grid, units, np.where(span > 0, span, 1.0), settings.tolerance)
     return points, _total_diagnostics(units)
+
+
+def _auto_jobs(units: int, rows: int, nodes: int) -> int:
+    """Parallel only when the work pays for starting worker processes (about a second)."""
+    import os
+
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()
+    return min(cores or 1, units) if units * rows * nodes**2 >= PARALLEL_WORK else 1
 
 
 def _run(jobs, n_jobs: int):

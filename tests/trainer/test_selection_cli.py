@@ -104,6 +104,7 @@ def test_no_point_meeting_the_tolerance_is_exit_2(table, selected, capsys):
     (["--target", "missing"], "missing"),
     (["--domain", "nope=0:1"], "unknown feature"),
     (["--folds", "500"], "folds must be an integer"),
+    (["--jobs", "0"], "--jobs takes a positive integer"),
 ])
 def test_bad_input_is_one_line_and_exit_2(table, tmp_path, capsys, args, words):
     base = {"--target": "torque", "--nodes": "10", "--folds": "3"}
