@@ -154,3 +154,14 @@ def test_bad_settings_are_one_clear_error(friedman, bad, message):
     settings = dict(nodes=[10], neighbors=[12], ridges=[1e-6], folds=3) | bad
     with pytest.raises(NodecastError, match=message):
         select(X, y, **settings)
+
+
+def test_several_targets_are_scored_each_and_ranked_together(friedman):
+    X, y = friedman
+    Y = np.column_stack([y, 100.0 * np.sin(3 * X[:, 0])])  # second target on another scale
+    result = select(X, Y, nodes=[10, 30], neighbors=[12], ridges=[1e-6], folds=3)
+    assert all(len(p.rmse_mean) == 2 for p in result.points)
+    span = Y.max(axis=0) - Y.min(axis=0)
+    for p in result.points:
+        assert p.score == pytest.approx(np.mean(np.array(p.rmse_mean) / span), rel=1e-12)
+    assert result.model.predict(X).shape == (300, 2)
