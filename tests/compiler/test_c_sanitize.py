@@ -61,3 +61,41 @@ def test_the_sanitizers_catch_a_read_past_a_table(friedman_bundle_factory, tmp_p
     middle = 0.5 * (bundle.network.domain_low + bundle.network.domain_high)
     with pytest.raises(NodecastError, match="failed"):
         run_c(tmp_path, middle[None, :], extra_flags=SANITIZE)
+
+
+NAN_MAIN = r"""
+#include <math.h>
+#include <stdio.h>
+#include "model.h"
+int main(void)
+{
+    volatile double nan_value = NAN;
+    WORD x[MODEL_N_INPUTS];
+    WORD y[MODEL_N_OUTPUTS];
+    int i;
+    for (i = 0; i < MODEL_N_INPUTS; ++i) {
+        x[i] = MODEL_Q_FROM_REAL(nan_value, MODEL_INPUT_SCALE_0);
+    }
+    printf("%ld %d\n", (long)x[0], model_predict(x, y));
+    return 0;
+}
+"""
+
+
+@pytest.mark.parametrize("precision, word, minimum", [("q15", "int16_t", -2**15),
+                                                      ("q31", "int32_t", -2**31)])
+def test_conversion_macro_maps_nan_outside_the_domain(friedman_bundle_factory, tmp_path,
+                                                      monkeypatch, precision, word, minimum):
+    """No undefined float-to-integer conversion of NaN (C99 6.3.1.4): NaN becomes the word's
+    minimum, which a rejecting artifact refuses."""
+    need("gcc")
+    import subprocess
+
+    monkeypatch.setenv("ASAN_OPTIONS", "detect_leaks=0")
+    bundle = friedman_bundle_factory(n_nodes=40, rows=400, seed=7)
+    emit_c(bundle, tmp_path, precision=precision, out_of_domain="reject")
+    (tmp_path / "nan.c").write_text(NAN_MAIN)
+    subprocess.run(["gcc", "-std=c99", f"-DWORD={word}", *SANITIZE, "model.c", "nan.c", "-o",
+                    "nan", "-lm"], cwd=tmp_path, check=True)
+    ran = subprocess.run(["./nan"], cwd=tmp_path, capture_output=True, text=True, check=True)
+    assert ran.stdout.split() == [str(minimum), "2"] and "runtime error" not in ran.stderr
