@@ -205,6 +205,9 @@ def inspect(model, precision, as_json):
               help="C: how tanh is evaluated (default: libm for float, table for q31/q15).")
 @click.option("--table-size", type=click.IntRange(16, 65536),
               help="C, --activation-impl table: table intervals (default 512; q31 2048).")
+@click.option("--bare-metal", is_flag=True,
+              help="C: also write startup.c and mps2.ld, to run your own main.c bare metal on "
+                   "QEMU's MPS2 Cortex-M3/M4 boards (the board support verify --emulate uses).")
 @click.option("-o", "--output", required=True, type=click.Path(),
               help="Output file (onnx, python) or folder (c).")
 @click.option("--overwrite", is_flag=True, help="Replace existing output files.")
@@ -212,7 +215,7 @@ def inspect(model, precision, as_json):
               help="Refuse to write an artifact larger than this, in bytes or with K, M, G "
                    "(default 64M).")
 def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, prefix, output, overwrite,
-         max_size, activation_impl, table_size):
+         max_size, activation_impl, table_size, bare_metal):
     """Compile a bundle into an artifact for a target."""
     from nodecast.compiler import emit as emit_artifact
     from nodecast.compiler.files import parse_size
@@ -226,9 +229,9 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
         options["opset"] = opset
     if target == "c":
         options.update(prefix=prefix, activation_impl=activation_impl, table_size=table_size,
-                       footprint=True)
-    elif activation_impl or table_size:
-        raise NodecastError("--activation-impl and --table-size apply to --to c only")
+                       footprint=True, bare_metal=bare_metal)
+    elif activation_impl or table_size or bare_metal:
+        raise NodecastError("--activation-impl, --table-size and --bare-metal apply to --to c only")
     max_bytes = None if max_size is None else parse_size(max_size)
     artifact = emit_artifact(load_bundle(model), target, output, overwrite=overwrite,
                              max_bytes=max_bytes, **options)

@@ -89,3 +89,21 @@ def test_standalone_predictor_runs_isolated_and_matches_the_reference(tmp_path):
     got = read_table(tmp_path / "predictions.csv").numbers(["heatsink_temp"])[:, 0]
     want = reference.predict(bundle.network, X)[:, 0]
     assert np.max(np.abs(got - want)) <= 1e-10 * np.ptp(want)  # SPEC: float64 artifacts
+
+
+def test_firmware_example_runs_on_emulated_cortex_m4_within_the_estimate(tmp_path):
+    import os
+    import shutil
+
+    missing = [tool for tool in ("arm-none-eabi-gcc", "qemu-system-arm", "make")
+               if shutil.which(tool) is None]
+    if missing:
+        if os.environ.get("CI") == "true":
+            raise AssertionError(f"CI must install {', '.join(missing)} (see .ci/run)")
+        pytest.skip(f"needs {', '.join(missing)}")
+    result = _run("firmware/run.sh", tmp_path)
+    assert "within the estimate" in result.stdout
+    assert json.loads((tmp_path / "verify_m4.json").read_text())["passed"] is True
+    lines = (tmp_path / "firmware" / "results.txt").read_text().split("\n")
+    assert len([line for line in lines if line.startswith("0 ")]) == 16  # every reading accepted
+    assert "cortex-m0" in result.stderr  # emit printed the footprint table

@@ -14,6 +14,7 @@ import numpy as np
 
 from nodecast.compiler import numerics
 from nodecast.compiler.backends import Artifact
+from nodecast.compiler.backends.c_board import board_files
 from nodecast.compiler.backends.c_fixed import fixed_context
 from nodecast.compiler.backends.c_float import float_context
 from nodecast.compiler.backends.c_format import c_comment, c_string, check_prefix, double_literal
@@ -39,7 +40,7 @@ _POLICY_TEXT = {
 
 def render(bundle, precision: str = "float32", prefix: str = "model", out_of_domain: str = "pass",
            activation_impl: str | None = None, table_size: int | None = None,
-           footprint: bool = False, **_ignored) -> Artifact:
+           footprint: bool = False, bare_metal: bool = False, **_ignored) -> Artifact:
     """Render ``<prefix>.h`` and ``<prefix>.c`` for ``bundle``; see docs/c-backend.md."""
     check_prefix(prefix)
     if precision not in PRECISIONS:
@@ -75,6 +76,8 @@ def render(bundle, precision: str = "float32", prefix: str = "model", out_of_dom
         from nodecast.compiler.toolchain import footprint as measure_footprint
 
         summary["footprint"] = measure_footprint(files, prefix, uses_libm=impl == "libm")
+    if bare_metal:
+        files.update(board_files())
     return Artifact("c", files, False, summary)
 
 

@@ -22,7 +22,8 @@ def main(model_path: str, data_path: str) -> int:
     domain = np.array(json.loads(meta["nodecast.domain"]))
     targets = json.loads(meta["nodecast.target_names"])
     dtype = np.float32 if meta["nodecast.precision"] == "float32" else np.float64
-    print("model inputs: " + ", ".join(f"{f} [{u}]" for f, u in zip(features, units)), file=sys.stderr)
+    described = ", ".join(f"{f} [{u}]" for f, u in zip(features, units, strict=True))
+    print(f"model inputs: {described}", file=sys.stderr)
 
     with open(data_path, newline="", encoding="utf-8-sig") as handle:
         rows = list(csv.DictReader(handle))

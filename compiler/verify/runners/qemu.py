@@ -9,27 +9,18 @@ precision in hardware, double in software), enabled by the start-up code.
 from __future__ import annotations
 
 import tempfile
-from importlib import resources
 from pathlib import Path
 
 import numpy as np
 
 from nodecast.compiler import toolchain
+from nodecast.compiler.backends.c_board import board_files
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.verify.runners.c import harness_source
-from nodecast.compiler.version import __version__
 
 QEMU = "qemu-system-arm"
 MACHINES = {"cortex-m3": "mps2-an385", "cortex-m4": "mps2-an386"}
 QEMU_TIMEOUT = 900
-
-
-def _startup_source() -> bytes:
-    import jinja2
-
-    env = jinja2.Environment(loader=jinja2.PackageLoader("nodecast.templates", "harness"),
-                             undefined=jinja2.StrictUndefined, keep_trailing_newline=True)
-    return env.get_template("startup.c.j2").render(version=__version__).encode("ascii")
 
 
 def build_image(path: Path, X: np.ndarray, info: dict, folder: Path) -> Path:
@@ -41,9 +32,8 @@ def build_image(path: Path, X: np.ndarray, info: dict, folder: Path) -> Path:
     for name in (f"{prefix}.h", f"{prefix}.c"):
         (folder / name).write_bytes((path / name).read_bytes())
     (folder / "harness.c").write_bytes(harness_source(info, X))
-    (folder / "startup.c").write_bytes(_startup_source())
-    (folder / "mps2.ld").write_bytes(resources.files("nodecast.templates").joinpath(
-        "harness", "mps2.ld").read_bytes())
+    for name, data in board_files().items():
+        (folder / name).write_bytes(data)
     flags = toolchain.ARM_CPU_FLAGS[info["emulate"]]
     toolchain.run([compiler, *flags, "-std=c99", "-O2", *toolchain.REPRODUCIBLE,
                    "-ffunction-sections", "-fdata-sections", "-nostartfiles", "-T", "mps2.ld",
