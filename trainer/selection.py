@@ -26,7 +26,7 @@ from nodecast.trainer.folds import fold_indices, input_box
 from nodecast.trainer.grid import Grid, GridPoint, make_grid, ranked, tabulate
 
 PARALLEL_WORK = 2e9  # N_train * max(M)^2 of the units above which n_jobs=None runs them in parallel
-SCREEN_PROBES = 256  # Sobol probes (plus the box's corners) for the per-fold estimates
+SCREEN_PROBES = 256  # Sobol probes, and at most as many of the box's corners, per fold estimate
 MAX_REFITS = 5  # candidates refitted on all rows when the final estimate misses the tolerance
 
 
@@ -234,7 +234,10 @@ def _run(jobs, n_jobs: int):
 def _screen_probes(X, declared) -> np.ndarray:
     low, high = input_box(X, *declared)
     box = SimpleNamespace(n_features=X.shape[1], domain_low=low, domain_high=high)
-    return numerics.domain_probes(box, count=SCREEN_PROBES)
+    probes = numerics.domain_probes(box, count=SCREEN_PROBES)
+    corners = probes[SCREEN_PROBES:]
+    step = max(1, -(-corners.shape[0] // SCREEN_PROBES))
+    return np.vstack([probes[:SCREEN_PROBES], corners[::step]])
 
 
 def _total_diagnostics(units: dict) -> dict:
