@@ -1,8 +1,9 @@
 """``--plot``: the cross-validated error against M, one line per k, the chosen point marked.
 
 Each line shows, for one neighbour count k, the best mean CV RMSE over the slope scales and ridge
-values at every M, with the spread over folds as a band; a second panel shows the growth curve
-when there is one. matplotlib is an optional extra (``pip install 'nodecast[plot]'``).
+values at every M (among the points within the precision budget, when there is one), with the
+spread over folds as a band; a second panel shows the growth curve when there is one. matplotlib
+is an optional extra (``pip install 'nodecast[plot]'``).
 """
 
 from __future__ import annotations
@@ -24,10 +25,10 @@ def _pyplot():
 
 
 def best_per_k(points) -> dict:
-    """For each k: list of (M, mean RMSE, std RMSE) of the best (s, lambda) at that M, first
-    target."""
+    """For each k: list of (M, mean RMSE, std RMSE) of the best (s, lambda) at that M among the
+    points within the precision budget, first target."""
     best: dict = {}
-    for p in points:
+    for p in (p for p in points if p.meets_budget):
         key = (p.neighbors, p.nodes)
         if key not in best or p.rank_key() < best[key].rank_key():
             best[key] = p
@@ -68,7 +69,8 @@ def _grid_panel(ax, result) -> None:
     ax.minorticks_off()
     ax.set_xlabel("hidden nodes M")
     ax.set_ylabel(f"{result.settings.folds}-fold CV RMSE (target units)")
-    ax.set_title("validation error against M (best slope scale and ridge per point)")
+    within = " within the budget" if result.settings.tolerance is not None else ""
+    ax.set_title(f"validation error against M (best slope scale and ridge{within})", fontsize=10)
     ax.legend(fontsize=7)
     ax.grid(True, alpha=0.3)
 
