@@ -40,7 +40,8 @@ def parse_list(text: str | None, kind=str, option: str = "") -> tuple:
     try:
         return tuple(kind(item) for item in items)
     except ValueError:
-        raise NodecastError(f"{option} takes a comma-separated list of {kind.__name__}, got {text!r}") from None
+        raise NodecastError(f"{option} takes a comma-separated list of {kind.__name__}, "
+                            f"got {text!r}") from None
 
 
 def parse_domain(text: str | None) -> dict[str, tuple[float, float]]:
@@ -166,7 +167,7 @@ def predict(model, data, output, scores, overwrite):
     if net.task == "classification":
         labels = [net.class_labels[i] for i in Y.argmax(axis=1)]
         header = ["label"] + ([f"score:{name}" for name in net.target_names] if scores else [])
-        rows = [[label] + (list(row) if scores else []) for label, row in zip(labels, Y)]
+        rows = [[label] + (list(row) if scores else []) for label, row in zip(labels, Y, strict=True)]
     else:
         header, rows = list(net.target_names), Y.tolist()
     text = write_table(header, rows)

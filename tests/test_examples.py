@@ -58,7 +58,7 @@ def test_data_driven_nodes_are_all_steep_somewhere_on_the_domain(plots_out):
     # data-driven nodes put their inflection at a training point, so each is steep somewhere
     ranges = node_ranges(bundle)
     assert ranges["saturated"] == 0
-    assert all(lo <= 0.0 <= hi for lo, hi in zip(ranges["z_low"], ranges["z_high"]))
+    assert all(lo <= 0.0 <= hi for lo, hi in zip(ranges["z_low"], ranges["z_high"], strict=True))
 
 
 def test_ci_gate_passes_then_refuses_a_worse_model(tmp_path):

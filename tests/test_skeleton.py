@@ -70,7 +70,7 @@ def test_data_driven_node_has_inflection_and_local_slope_at_its_anchor():
     g = get_activation("logistic")
     assert np.allclose(g.function(np.zeros(1)), 0.5)
     _, neighbours = NearestNeighbors(n_neighbors=k).fit(U).kneighbors(U[anchors])
-    for node, (anchor, rows) in enumerate(zip(anchors, neighbours)):
+    for node, (anchor, rows) in enumerate(zip(anchors, neighbours, strict=True)):
         design = np.column_stack([np.ones(k), U[rows] - U[anchor]])
         coeffs, *_ = np.linalg.lstsq(design, T[rows], rcond=None)
         # gradient of g(a.u + b) at the anchor is g'(0) a = a / 4; it equals the fitted slope
@@ -82,7 +82,8 @@ def test_help_imports_no_heavy_library():
             "for args in (['--help'], ['train', '--help'], ['emit', '--help'], ['verify', '--help'],"
             " ['predict', '--help'], ['inspect', '--help'], ['demo', '--help']):\n"
             "    try:\n        main(args)\n    except SystemExit:\n        pass\n"
-            "heavy = [m for m in ('sklearn', 'onnx', 'onnxruntime', 'scipy', 'matplotlib') if m in sys.modules]\n"
+            "heavy = [m for m in ('sklearn', 'onnx', 'onnxruntime', 'scipy', 'matplotlib')"
+            " if m in sys.modules]\n"
             "print('HEAVY', heavy)\n")
     result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert result.returncode == 0, result.stderr

@@ -166,7 +166,7 @@ def _metadata(bundle, summary) -> dict[str, str]:
         "nodecast.target_units": json.dumps(list(net.target_units)),
         "nodecast.class_labels": json.dumps(list(net.class_labels)),
         "nodecast.domain": json.dumps([[float(lo), float(hi)] for lo, hi in
-                                       zip(net.domain_low, net.domain_high)]),
+                                       zip(net.domain_low, net.domain_high, strict=True)]),
         "nodecast.precision": summary["precision"],
         "nodecast.out_of_domain": summary["out_of_domain"],
         "nodecast.input_scaling": summary["input_scaling"],
@@ -180,10 +180,10 @@ def _doc(bundle, summary) -> str:
              f"Input {INPUT_NAME!r} [batch, {net.n_features}] {summary['precision']}, features in order "
              "(name, unit, declared domain):"]
     for i, (name, unit, lo, hi) in enumerate(zip(net.feature_names, net.feature_units,
-                                                 net.domain_low, net.domain_high)):
+                                                 net.domain_low, net.domain_high, strict=True)):
         lines.append(f"  {i}: {json.dumps(name)} {json.dumps(unit)} {float(lo)!r} .. {float(hi)!r}")
     lines.append(f"Output {OUTPUT_NAME!r} [batch, {net.n_outputs}] (name, unit):")
-    for i, (name, unit) in enumerate(zip(net.target_names, net.target_units)):
+    for i, (name, unit) in enumerate(zip(net.target_names, net.target_units, strict=True)):
         lines.append(f"  {i}: {json.dumps(name)} {json.dumps(unit)}")
     if net.task == "classification":
         lines.append(f"Output {LABEL_NAME!r} [batch]: the class label of the highest score "

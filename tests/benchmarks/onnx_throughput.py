@@ -10,8 +10,6 @@ from __future__ import annotations
 import json
 import time
 
-import numpy as np
-
 
 def _best_of(repeats, function):
     best = float("inf")
@@ -40,9 +38,8 @@ def main() -> None:
         data = emit(bundle, "onnx", precision=precision).files["model.onnx"]
         session = ort.InferenceSession(data, options, providers=["CPUExecutionProvider"])
         batch = rows.astype(precision)
-        seconds = _best_of(5, lambda: session.run(None, {"features": batch}))
-        one = batch[:1]
-        latency = _best_of(2000, lambda: session.run(None, {"features": one}))
+        seconds = _best_of(5, lambda s=session, b=batch: s.run(None, {"features": b}))
+        latency = _best_of(2000, lambda s=session, b=batch[:1]: s.run(None, {"features": b}))
         result[f"onnxruntime_{precision}_rows_per_s"] = rows.shape[0] / seconds
         result[f"onnxruntime_{precision}_single_row_us"] = latency * 1e6
     with threadpool_limits(1):
