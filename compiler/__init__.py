@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 from nodecast.compiler.bundle import Bundle, load, save
 from nodecast.compiler.errors import BundleError, NodecastError
 from nodecast.compiler.ir import Network
@@ -24,6 +26,11 @@ def emit(bundle: Bundle, to: str, path=None, overwrite: bool = False, max_bytes:
     )
 
     artifact = render(bundle, to, **options)
+    estimate = artifact.summary.get("estimate", {}).get("max_abs_error", 0.0)
+    if not math.isfinite(estimate):
+        raise NodecastError(f"the {to} {artifact.summary.get('precision', '')} artifact's error "
+                            "cannot be bounded (the model's values overflow that precision); "
+                            "choose a wider precision or a better-regularised model")
     check_artifact_size(to, artifact.files, MAX_ARTIFACT_BYTES if max_bytes is None else max_bytes)
     if path is not None:
         if artifact.single_file:

@@ -38,6 +38,7 @@ from nodecast.compiler.ir import Network
 UNIT_ROUNDOFF = {"float64": 2.0**-53, "float32": 2.0**-24}
 COVERAGE = 4.0
 _TERM_ROUNDINGS = 3.0  # stored weight, activation value, product
+_OUTPUT_ROUNDINGS = 2.0  # the folded output bias, the last addition
 _PROBES = 2048
 _BLOCK = 512
 
@@ -98,10 +99,21 @@ def estimate(net: Network, precision: str, X: np.ndarray | None = None,
         worst = np.maximum(worst, block_worst)
     systematic = activation_error * np.abs(net.output_weights).sum(axis=0)
     per_output = (COVERAGE * unit * typical + systematic) * net.output_scale
+    # the output itself, in target units: the folded bias (offset-sized) and the final sum round
+    # at the size of y, however small the terms; a target far from zero makes this dominate
+    output_rounding = _OUTPUT_ROUNDINGS * unit * _max_abs_output(net, X)
+    per_output = per_output + output_rounding
     gamma = lambda k: k * unit / (1.0 - k * unit)  # noqa: E731
-    bound = (gamma(m + 4) * worst[0] + gamma(n + 3) * worst[1] + systematic) * net.output_scale
+    bound = ((gamma(m + 4) * worst[0] + gamma(n + 3) * worst[1] + systematic) * net.output_scale
+             + output_rounding)
     return ErrorEstimate(precision, tuple(float(v) for v in per_output),
                          tuple(float(v) for v in bound), int(X.shape[0]))
+
+
+def _max_abs_output(net: Network, X: np.ndarray) -> np.ndarray:
+    from nodecast.compiler.reference import predict
+
+    return np.max(np.abs(predict(net, X)), axis=0)
 
 
 def _block_terms(net: Network, X: np.ndarray, rounds_inputs: bool):

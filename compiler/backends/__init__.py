@@ -38,4 +38,8 @@ def render(bundle, to: str, **options) -> Artifact:
         if exc.name == BACKENDS[to]:
             raise NodecastError(f"target {to!r} is not available in this version") from None
         raise
-    return module.render(bundle, **options)
+    try:
+        return module.render(bundle, **options)
+    except OverflowError as exc:  # a value beyond what the target's number formats can hold
+        raise NodecastError(f"cannot emit {to}: a value of the model does not fit the target's "
+                            f"number format ({exc})") from None

@@ -27,6 +27,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from nodecast.compiler.errors import NodecastError
+
 SAFETY_FACTOR = 2.0
 
 
@@ -86,6 +88,10 @@ def derive(estimate, reference_estimate, abs_tol=None, rel_tol=None,
         source, given = "rel-tol", float(rel_tol)
     else:
         values, source, given = _derived(SAFETY_FACTOR, est, ref), "derived", None
+    if not all(np.isfinite(values)):
+        raise NodecastError(f"no finite tolerance for this {estimate.precision} artifact: its error "
+                            "estimate is not finite (the model's values overflow that precision); "
+                            "give --abs-tol to verify it anyway")
     return Tolerance(values, source, estimate.precision, est, ref, given=given)
 
 
