@@ -152,7 +152,8 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
             got = got_all[start : start + family.X.shape[0]]
             start += family.X.shape[0]
             record = compare_family(net, family, got, want, info["out_of_domain"],
-                                    info["precision"], np.asarray(tol.per_output), out_range)
+                                    info["precision"], np.asarray(tol.per_output), out_range,
+                                    info.get("input_frac_bits"))
             results.append({"engine": engine, **record})
     passed = all(r["passed"] for r in results)
     document = {

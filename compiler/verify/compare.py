@@ -5,7 +5,8 @@ artifact's out-of-domain policy, within a tolerance.
   the input itself; "reject" must also return a rejected (all-NaN) row for every input outside the
   domain, and must not reject inputs inside it. A row that lies outside the domain in float64 but
   inside it once rounded to the artifact's input precision (or the reverse) sits on the boundary:
-  either behaviour is accepted there, and a row the artifact evaluated is compared as usual.
+  either behaviour is accepted there, and a row the artifact evaluated is compared as usual. For
+  q15/q31 the rounding is the artifact's own conversion into its integer input format.
 * Errors are absolute, in target units, per output; a NaN or infinite output where the reference is
   finite counts as an infinite error. The relative error divides by the output's range over the
   in-domain probes. The worst input is the row with the largest error-to-tolerance ratio.
@@ -22,6 +23,7 @@ import numpy as np
 from nodecast.compiler import reference
 
 INPUT_DTYPES = {"float32": np.float32}
+WORD_BITS = {"q15": 16, "q31": 32}
 
 
 def expected_outputs(net, X: np.ndarray, policy: str) -> np.ndarray:
@@ -29,7 +31,31 @@ def expected_outputs(net, X: np.ndarray, policy: str) -> np.ndarray:
     return reference.predict(net, X, "clamp" if policy == "clamp" else "pass")
 
 
-def _outside_in_precision(net, X: np.ndarray, precision: str) -> np.ndarray:
+def _q_from_real(X: np.ndarray, frac_bits, word_bits: int) -> np.ndarray:
+    """The C header's ``_Q_FROM_REAL`` on float64 values, as integers held in float64 (exact):
+    x 2^f rounded half away from zero by adding +-0.5 in double and truncating, saturated to
+    +-word_max; NaN becomes -word_max - 1. X (n_rows, n_inputs), frac_bits (n_inputs,)."""
+    word_max = 2.0 ** (word_bits - 1) - 1
+    scaled = np.ldexp(X, np.asarray(frac_bits))
+    with np.errstate(invalid="ignore"):
+        q = np.trunc(scaled + np.where(X >= 0.0, 0.5, -0.5))
+        q = np.where(scaled >= word_max, word_max, np.where(scaled <= -word_max, -word_max, q))
+    return np.where(np.isnan(X), -word_max - 1, q)
+
+
+def _outside_fixed(net, X: np.ndarray, frac_bits, word_bits: int) -> np.ndarray:
+    """Rows outside the domain as a q15/q31 artifact sees them: its integer input against its
+    integer bounds (round(bound 2^f), as :mod:`nodecast.compiler.fixedpoint` tabulates them)."""
+    low = np.rint(np.ldexp(net.domain_low, np.asarray(frac_bits)))
+    high = np.rint(np.ldexp(net.domain_high, np.asarray(frac_bits)))
+    Xq = _q_from_real(np.asarray(X, dtype=np.float64), frac_bits, word_bits)
+    return ~np.all((Xq >= low) & (Xq <= high), axis=1)
+
+
+def _outside_in_precision(net, X: np.ndarray, precision: str,
+                          input_frac_bits=None) -> np.ndarray:
+    if precision in WORD_BITS and input_frac_bits is not None:
+        return _outside_fixed(net, X, input_frac_bits, WORD_BITS[precision])
     dtype = INPUT_DTYPES.get(precision)
     if dtype is None:
         return reference.outside_domain(net, X)
@@ -38,13 +64,15 @@ def _outside_in_precision(net, X: np.ndarray, precision: str) -> np.ndarray:
     return ~np.all((Xp >= low) & (Xp <= high), axis=1)
 
 
-def _policy(net, X, rejected, policy, precision) -> tuple[np.ndarray, str | None]:
+def _policy(net, X, rejected, policy, precision,
+            input_frac_bits=None) -> tuple[np.ndarray, str | None]:
     """(rows to compare with the reference, a description of any policy violation or None)."""
     if policy != "reject":
         bad = int(rejected.sum())
         message = f"{bad} row(s) rejected although the policy is {policy!r}" if bad else None
         return ~rejected, message
-    out64, out_p = reference.outside_domain(net, X), _outside_in_precision(net, X, precision)
+    out64 = reference.outside_domain(net, X)
+    out_p = _outside_in_precision(net, X, precision, input_frac_bits)
     must, may = out64 & out_p, out64 | out_p
     problems = []
     if np.any(must & ~rejected):
@@ -73,7 +101,8 @@ def _errors(got: np.ndarray, want: np.ndarray) -> np.ndarray:
     return np.where(np.isfinite(err), err, np.inf)
 
 
-def compare_family(net, family, got, want, policy, precision, tol, out_range) -> dict:
+def compare_family(net, family, got, want, policy, precision, tol, out_range,
+                   input_frac_bits=None) -> dict:
     """The result record of one family (see the report schema in :mod:`nodecast.compiler.verify`).
 
     Parameters
@@ -81,9 +110,11 @@ def compare_family(net, family, got, want, policy, precision, tol, out_range) ->
     got, want : ndarray of shape (n_rows, n_outputs), the artifact's and the expected outputs.
     tol : ndarray of shape (n_outputs,), the tolerance in target units.
     out_range : ndarray of shape (n_outputs,), the output range over the in-domain probes.
+    input_frac_bits : sequence of n_features ints or None, a q15/q31 artifact's input formats
+        (Q(f): x arrives as round(x 2^f)); the domain test then uses the quantised inputs.
     """
     rejected = np.all(np.isnan(got), axis=1)
-    compared, violation = _policy(net, family.X, rejected, policy, precision)
+    compared, violation = _policy(net, family.X, rejected, policy, precision, input_frac_bits)
     err = _errors(got[compared], want[compared])
     result = {"family": family.name, "count": int(family.X.shape[0]),
               "compared": int(compared.sum()), "rejected": int(rejected.sum()),

@@ -58,6 +58,8 @@ def describe(path: Path, emulate: str | None = None, **_options) -> dict:
                 "emulate": emulate,
                 "engines": [f"qemu-{emulate}" if emulate else f"host-{toolchain.host_compiler()}"]}
         if info["precision"] in ("q15", "q31"):
+            info["input_frac_bits"] = [int(macros[f"INPUT_FRAC_BITS_{i}"])
+                                       for i in range(info["n_inputs"])]
             info["output_frac_bits"] = [int(macros[f"OUTPUT_FRAC_BITS_{o}"])
                                         for o in range(info["n_outputs"])]
     except (KeyError, ValueError) as exc:
