@@ -8,6 +8,8 @@ from pathlib import Path
 
 import numpy as np
 
+from nodecast.compiler.errors import NodecastError
+
 FEATURES = ("ambient_temp", "fan_speed", "load_current", "supply_voltage")
 UNITS = {"ambient_temp": "degC", "fan_speed": "rpm", "load_current": "A", "supply_voltage": "V",
          "heatsink_temp": "degC"}
@@ -36,13 +38,18 @@ def make_readings(n_rows: int, seed: int, noise: float = 0.3) -> np.ndarray:
 
 def write_csv(path: Path, table: np.ndarray) -> None:
     from nodecast.compiler.csvio import write_table
+    from nodecast.compiler.files import write_atomic
 
-    path.write_text(write_table(list(FEATURES) + [TARGET], table.tolist()), encoding="utf-8")
+    text = write_table(list(FEATURES) + [TARGET], table.tolist())
+    write_atomic(path, text.encode("utf-8"), overwrite=True)  # the demo's folder is its own
 
 
 def write_data(folder: Path) -> tuple[np.ndarray, np.ndarray]:
     """Write readings.csv (2,000 noisy rows) and held_out.csv (500 noiseless rows)."""
-    folder.mkdir(parents=True, exist_ok=True)
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise NodecastError(f"cannot create the demo folder {folder}: {exc.strerror or exc}") from None
     train_rows, test_rows = make_readings(2000, seed=1), make_readings(500, seed=2, noise=0.0)
     write_csv(folder / "readings.csv", train_rows)
     write_csv(folder / "held_out.csv", test_rows)

@@ -28,6 +28,10 @@ class TrainingJob:
 
 def feature_columns(header, job: TrainingJob) -> tuple[str, ...]:
     if job.features:
+        both = [name for name in job.features if name in job.targets]
+        if both:
+            raise NodecastError(f"column(s) {', '.join(map(repr, both))} cannot be both a feature "
+                                "and a target (the model would read its own answer)")
         return job.features
     features = tuple(name for name in header if name not in job.targets)
     if not features:

@@ -17,7 +17,7 @@ nodecast train "$out/readings.csv" --target heatsink_temp --domain "$domain" --n
 nodecast emit "$out/candidate.ncz" --to onnx -o "$out/candidate.onnx" --overwrite
 nodecast emit "$out/candidate.ncz" --to python -o "$out/candidate_predictor.py" --overwrite
 targets=("$out/candidate.onnx" "$out/candidate_predictor.py")
-if command -v cc >/dev/null 2>&1; then   # the C artifact is built and run with the host compiler
+if command -v "${CC:-gcc}" >/dev/null 2>&1; then   # C is built and run with the host compiler
   nodecast emit "$out/candidate.ncz" --to c -o "$out/candidate_c" --overwrite
   targets+=("$out/candidate_c")
 fi
