@@ -28,7 +28,7 @@ Report schema (``Report.as_dict()``; also what ``verify --report`` writes):
     ``policy``, ``policy_honoured``, ``policy_violation``, ``tolerance`` (per output, as applied to
     this family), ``max_abs_error``, ``max_rel_error``, ``worst_input``, ``worst_output``,
     ``within_tolerance``, ``passed``; classifiers also ``labels`` (``disagreements``,
-    ``near_tie_flips``, ``near_ties``).
+    ``near_tie_flips``, ``near_ties``, and ``label_outputs_wrong`` when the artifact outputs labels).
 ``notes`` (list of str)
     Plain-language reasons: why a tolerance was too tight, what a failure suggests.
 """
@@ -81,6 +81,18 @@ def _run(module, path: Path, X: np.ndarray, info: dict, n_outputs: int) -> np.nd
         raise NodecastError(f"{path} returned outputs of shape {got.shape} for {X.shape[0]} rows; "
                             f"expected ({X.shape[0]}, {n_outputs})")
     return got
+
+
+def _run_labels(module, path: Path, X: np.ndarray, info: dict, net) -> np.ndarray | None:
+    """A classifier artifact's own label outputs (n_rows,), when its runner can fetch them."""
+    fetch = getattr(module, "run_labels", None)
+    if net.task != "classification" or fetch is None:
+        return None
+    labels = fetch(path, X, info)
+    if labels is not None and np.shape(labels) != (X.shape[0],):
+        raise NodecastError(f"{path} returned labels of shape {np.shape(labels)} for "
+                            f"{X.shape[0]} rows")
+    return labels
 
 
 def _tolerances(net, families, wanted, info, abs_tol, rel_tol):
@@ -147,13 +159,15 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
     results = []
     for engine in engines:
         got_all = _run(module, path, X_all, {**info, "engine": engine}, net.n_outputs)
+        labels_all = _run_labels(module, path, X_all, {**info, "engine": engine}, net)
         start = 0
         for family, want, tol in zip(families, wanted, per_family, strict=True):
-            got = got_all[start : start + family.X.shape[0]]
+            rows = slice(start, start + family.X.shape[0])
             start += family.X.shape[0]
-            record = compare_family(net, family, got, want, info["out_of_domain"],
+            record = compare_family(net, family, got_all[rows], want, info["out_of_domain"],
                                     info["precision"], np.asarray(tol.per_output), out_range,
-                                    info.get("input_frac_bits"))
+                                    info.get("input_frac_bits"),
+                                    None if labels_all is None else labels_all[rows])
             results.append({"engine": engine, **record})
     passed = all(r["passed"] for r in results)
     document = {

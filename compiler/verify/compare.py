@@ -13,7 +13,9 @@ artifact's out-of-domain policy, within a tolerance.
 * Classifiers: the scores are checked like any output, and the labels (highest score) are compared.
   A probe whose reference top-two score gap is within the sum of those two scores' tolerances is a
   near-tie: rounding may legitimately swap its label, so a swapped label there is counted
-  (``near_tie_flips``) but does not fail. A swapped label anywhere else fails.
+  (``near_tie_flips``) but does not fail. A swapped label anywhere else fails. An artifact that
+  also outputs labels must output, on every evaluated row, the class of its own highest score
+  (``label_outputs_wrong`` counts the rows where it does not; any fails).
 """
 
 from __future__ import annotations
@@ -96,13 +98,20 @@ def _label_counts(got: np.ndarray, want: np.ndarray, tol: np.ndarray) -> dict:
             "disagreements": int(np.sum(flipped & ~near_tie))}
 
 
+def _wrong_label_outputs(net, got: np.ndarray, labels: np.ndarray) -> int:
+    """Rows with finite scores whose label output is not the class of the highest score there."""
+    finite = np.all(np.isfinite(got), axis=1)
+    own = np.asarray(net.class_labels, dtype=object)[np.argmax(got[finite], axis=1)]
+    return int(np.sum(np.asarray(labels, dtype=object)[finite] != own))
+
+
 def _errors(got: np.ndarray, want: np.ndarray) -> np.ndarray:
     err = np.abs(got - want)
     return np.where(np.isfinite(err), err, np.inf)
 
 
 def compare_family(net, family, got, want, policy, precision, tol, out_range,
-                   input_frac_bits=None) -> dict:
+                   input_frac_bits=None, labels=None) -> dict:
     """The result record of one family (see the report schema in :mod:`nodecast.compiler.verify`).
 
     Parameters
@@ -112,6 +121,7 @@ def compare_family(net, family, got, want, policy, precision, tol, out_range,
     out_range : ndarray of shape (n_outputs,), the output range over the in-domain probes.
     input_frac_bits : sequence of n_features ints or None, a q15/q31 artifact's input formats
         (Q(f): x arrives as round(x 2^f)); the domain test then uses the quantised inputs.
+    labels : ndarray of n_rows str or None, a classifier artifact's own label outputs.
     """
     rejected = np.all(np.isnan(got), axis=1)
     compared, violation = _policy(net, family.X, rejected, policy, precision, input_frac_bits)
@@ -131,5 +141,9 @@ def compare_family(net, family, got, want, policy, precision, tol, out_range,
     if net.task == "classification" and err.size:
         result["labels"] = _label_counts(got[compared], want[compared], tol)
         failed_labels = result["labels"]["disagreements"]
+        if labels is not None:
+            wrong = _wrong_label_outputs(net, got[compared], np.asarray(labels)[compared])
+            result["labels"]["label_outputs_wrong"] = wrong
+            failed_labels += wrong
     result["passed"] = bool(violation is None and result["within_tolerance"] and not failed_labels)
     return result

@@ -69,6 +69,9 @@ def format_table(report) -> str:
                      f"{'yes' if r['passed'] else 'NO ':<3} {labels}{_vector(r['worst_input'])}")
         if r["policy_violation"]:
             lines.append(f"    policy {r['policy']!r} not honoured: {r['policy_violation']}")
+        if r.get("labels", {}).get("label_outputs_wrong"):
+            lines.append(f"    {r['labels']['label_outputs_wrong']} label output(s) are not the "
+                         "class of the artifact's own highest score")
     tol = doc["tolerance"]
     for name, unit, t, e in zip(doc["outputs"]["names"], doc["outputs"]["units"],
                                 tol["per_output"], tol["estimate"], strict=True):
@@ -94,6 +97,9 @@ def _family_failure(result: dict, names) -> str | None:
                      f"{_vector(result['worst_input'])}")
     if result.get("labels", {}).get("disagreements"):
         parts.append(f"{result['labels']['disagreements']} label(s) differ away from near-ties")
+    if result.get("labels", {}).get("label_outputs_wrong"):
+        parts.append(f"{result['labels']['label_outputs_wrong']} label output(s) are not the "
+                     "class of the artifact's own highest score")
     return "; ".join(parts)
 
 

@@ -7,11 +7,12 @@ import numpy as np
 import pytest
 from test_c_support import emit_c, need
 
-from nodecast.compiler import reference
-from nodecast.compiler.verify import verify
+from nodecast.compiler import emit, reference
+from nodecast.compiler.verify import format_table, verify
 from nodecast.compiler.verify.compare import _outside_fixed, compare_family
 from nodecast.compiler.verify.probes import ProbeFamily
 from nodecast.compiler.verify.runners import c as c_runner
+from nodecast.compiler.verify.runners import onnx as onnx_runner
 
 
 @pytest.fixture(scope="module")
@@ -77,3 +78,49 @@ def test_a_row_well_outside_must_still_be_rejected(friedman_bundle, q15_reject):
     refused = compare_family(net, family, np.full_like(want, np.nan), want, "reject", "q15", tol,
                              out_range, info["input_frac_bits"])
     assert refused["passed"] and refused["rejected"] == 1
+
+
+@pytest.fixture(scope="module")
+def iris_onnx(classifier_bundle, tmp_path_factory):
+    """The classifier's ONNX file, and a copy whose class_labels initializer is permuted."""
+    import onnx
+    from onnx import numpy_helper
+
+    folder = tmp_path_factory.mktemp("iris-onnx")
+    honest = folder / "iris.onnx"
+    honest.write_bytes(emit(classifier_bundle, "onnx", precision="float64").files["model.onnx"])
+    model = onnx.load(str(honest))
+    (table,) = [t for t in model.graph.initializer if t.name == "class_labels"]
+    labels = numpy_helper.to_array(table)
+    table.CopyFrom(numpy_helper.from_array(labels[[1, 2, 0]], "class_labels"))
+    permuted = folder / "permuted.onnx"
+    onnx.save(model, str(permuted))
+    return honest, permuted
+
+
+def test_onnx_runner_fetches_the_label_output(classifier_bundle, friedman_bundle, iris_onnx,
+                                              tmp_path):
+    honest, _ = iris_onnx
+    info = onnx_runner.describe(honest)
+    X = np.array([[5.1, 3.5, 1.4, 0.2], [6.7, 3.0, 5.2, 2.3]])  # iris rows 1 and 146 (Fisher 1936)
+    for engine in onnx_runner.ENGINES:  # onnxruntime and the ONNX project's reference evaluator
+        labels = onnx_runner.run_labels(honest, X, {**info, "engine": engine})
+        assert list(labels) == ["setosa", 'virgin"ica']
+    regressor = tmp_path / "y.onnx"
+    regressor.write_bytes(emit(friedman_bundle, "onnx").files["model.onnx"])
+    assert onnx_runner.run_labels(regressor, np.zeros((1, 5)), onnx_runner.describe(regressor)) is None
+
+
+def test_verify_checks_the_label_output(classifier_bundle, iris_onnx):
+    honest, permuted = iris_onnx
+    good = verify(classifier_bundle, honest, count=128)
+    assert good.passed
+    assert all(r["labels"]["label_outputs_wrong"] == 0 for r in good.as_dict()["families"]
+               if "labels" in r)
+    # the scores are untouched, only the label table is permuted: only the label check can see it
+    bad = verify(classifier_bundle, permuted, count=128)
+    records = [r for r in bad.as_dict()["families"] if "labels" in r]
+    assert not bad.passed and records
+    assert all(r["labels"]["label_outputs_wrong"] > 0 for r in records if r["family"] == "sobol")
+    assert all(r["within_tolerance"] and r["labels"]["disagreements"] == 0 for r in records)
+    assert "label output(s) are not the class" in format_table(bad)

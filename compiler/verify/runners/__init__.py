@@ -9,6 +9,10 @@
     Outputs of shape (n_rows, n_outputs) in target units for X of shape (n_rows, n_features);
     rejected rows come back as NaN rows. ``info`` is what ``describe`` returned, plus ``engine``.
 
+A runner may also have ``run_labels(path, X, info) -> ndarray of n_rows str, or None``: the class
+labels the artifact itself outputs (None when this artifact has none). Verify calls it for
+classifiers and requires each label to be the class of the artifact's own highest score.
+
 The kind is detected from the artifact itself (:func:`detect_kind`).
 """
 

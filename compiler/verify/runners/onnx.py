@@ -1,7 +1,8 @@
 """Run an ONNX artifact in two independent engines: onnxruntime (the runtime users deploy, one
 thread so results do not depend on the machine's cores) and ``onnx.reference.ReferenceEvaluator``
 (the ONNX project's reference implementation of its operator specification), a second opinion that
-shares no kernels with onnxruntime. Verify checks each engine against the float64 model."""
+shares no kernels with onnxruntime. Verify checks each engine against the float64 model, and a
+classifier's ``label`` output (:func:`run_labels`) against the engine's own scores."""
 
 from __future__ import annotations
 
@@ -14,7 +15,7 @@ from nodecast.compiler.errors import NodecastError
 
 ENGINES = ("onnxruntime", "onnx.reference")
 PRECISIONS = ("float32", "float64")
-INPUT_NAME, OUTPUT_NAME = "features", "outputs"
+INPUT_NAME, OUTPUT_NAME, LABEL_NAME = "features", "outputs", "label"
 
 
 def _load(path: Path):
@@ -44,42 +45,56 @@ def describe(path: Path, **_options) -> dict:
             "error_estimate": stated, "engines": list(ENGINES)}
 
 
-def _onnxruntime(path: Path, X: np.ndarray) -> np.ndarray:
+def _onnxruntime(path: Path, X: np.ndarray, output: str) -> np.ndarray:
     import onnxruntime as ort
 
     options = ort.SessionOptions()
     options.intra_op_num_threads = 1
     options.inter_op_num_threads = 1
     session = ort.InferenceSession(str(path), options, providers=["CPUExecutionProvider"])
-    (outputs,) = session.run([OUTPUT_NAME], {INPUT_NAME: X})
+    (outputs,) = session.run([output], {INPUT_NAME: X})
     return outputs
 
 
-def _reference_evaluator(path: Path, X: np.ndarray) -> np.ndarray:
+def _reference_evaluator(path: Path, X: np.ndarray, output: str) -> np.ndarray:
     from onnx.reference import ReferenceEvaluator
 
     evaluator = ReferenceEvaluator(_load(path))
     # its Sigmoid evaluates both branches of a stable formula and keeps the finite one: the other
     # may overflow (inf / inf), which is harmless there; any NaN that reached the outputs is caught
     with np.errstate(over="ignore", under="ignore", invalid="ignore"):
-        (outputs,) = evaluator.run([OUTPUT_NAME], {INPUT_NAME: X})
+        (outputs,) = evaluator.run([output], {INPUT_NAME: X})
     return outputs
 
 
-def run(path: Path, X: np.ndarray, info: dict) -> np.ndarray:
-    """Outputs of shape (n_rows, n_outputs) from ``info["engine"]`` (default onnxruntime)."""
+def _evaluate(path: Path, X: np.ndarray, info: dict, output: str) -> np.ndarray:
+    """The graph output named ``output`` for rows X, from ``info["engine"]`` (default onnxruntime)."""
     engine = info.get("engine", ENGINES[0])
     if engine not in ENGINES:
         raise NodecastError(f"unknown ONNX engine {engine!r}; choose one of {', '.join(ENGINES)}")
     dtype = np.float32 if info["precision"] == "float32" else np.float64
     evaluate = _onnxruntime if engine == "onnxruntime" else _reference_evaluator
     try:
-        outputs = evaluate(path, np.ascontiguousarray(X, dtype=dtype))
+        return evaluate(path, np.ascontiguousarray(X, dtype=dtype), output)
     except NodecastError:
         raise
     except Exception as exc:  # a model that loads but cannot run: bad input, not a crash
         raise NodecastError(f"{engine} cannot run {path}: {_one_line(exc)}") from None
-    return np.asarray(outputs, dtype=np.float64)
+
+
+def run(path: Path, X: np.ndarray, info: dict) -> np.ndarray:
+    """Outputs of shape (n_rows, n_outputs) from ``info["engine"]`` (default onnxruntime)."""
+    return np.asarray(_evaluate(path, X, info, OUTPUT_NAME), dtype=np.float64)
+
+
+def run_labels(path: Path, X: np.ndarray, info: dict) -> np.ndarray | None:
+    """The ``label`` output, an array of n_rows str, from ``info["engine"]``; None when the graph
+    has no such output (regression models)."""
+    if LABEL_NAME not in (o.name for o in _load(path).graph.output):
+        return None
+    labels = _evaluate(path, X, info, LABEL_NAME)
+    return np.array([v.decode("utf-8") if isinstance(v, bytes) else str(v)
+                     for v in np.asarray(labels, dtype=object).ravel()], dtype=object)
 
 
 def _one_line(exc: BaseException, limit: int = 300) -> str:
