@@ -1,4 +1,10 @@
-"""scikit-learn estimators for networks with random hidden nodes."""
+"""scikit-learn estimators for networks with random hidden nodes.
+
+A fit works in normalised coordinates (SPEC "Method"): inputs mapped to [0, 1] by the input box
+(the declared domain, or the training data's range), regression targets to [0, 1] by their range.
+The generator draws the hidden layer from the normalised rows; the output layer is accumulated over
+row blocks (:mod:`nodecast.trainer.solvers`), so memory does not grow with the rows beyond the data.
+"""
 
 from __future__ import annotations
 
@@ -11,8 +17,10 @@ from sklearn.utils.validation import check_is_fitted, validate_data
 from nodecast.compiler.activations import get_activation
 from nodecast.trainer import solvers
 from nodecast.trainer.generators import GENERATORS
+from nodecast.trainer.hidden import PreactivationRange, block_bounds, design_blocks
+from nodecast.trainer.memory import check_fits_in_memory
 
-_BLOCK_ROWS = 4096
+DEFAULT_RIDGE = 1e-6  # see docs/training.md, "The default ridge"
 
 
 def _normaliser(low: np.ndarray, high: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -21,9 +29,18 @@ def _normaliser(low: np.ndarray, high: np.ndarray) -> tuple[np.ndarray, np.ndarr
     return low.copy(), np.where(span > 0, span, 1.0)
 
 
+def _is_count(value, minimum: int = 1) -> bool:
+    return isinstance(value, (int, np.integer)) and not isinstance(value, bool) and value >= minimum
+
+
+def _is_positive(value) -> bool:
+    return isinstance(value, (int, float, np.number)) and np.isfinite(value) and value > 0
+
+
 class _RandomNodeBase(BaseEstimator):
     def __init__(self, n_nodes=200, method="data-driven", n_neighbors=None, slope_scale=1.0,
-                 ridge=1e-6, activation="logistic", interval=1.0, domain=None, random_state=None):
+                 ridge=DEFAULT_RIDGE, activation="logistic", interval=1.0, domain=None,
+                 random_state=None):
         self.n_nodes = n_nodes
         self.method = method
         self.n_neighbors = n_neighbors
@@ -34,32 +51,37 @@ class _RandomNodeBase(BaseEstimator):
         self.domain = domain
         self.random_state = random_state
 
-    def _check_params(self, n_features: int) -> None:
+    def _check_params(self) -> None:
         if self.method not in GENERATORS:
             raise ValueError(f"method must be one of {sorted(GENERATORS)}, got {self.method!r}")
         get_activation(self.activation)
-        if not (isinstance(self.n_nodes, (int, np.integer)) and self.n_nodes >= 1):
+        if not _is_count(self.n_nodes):
             raise ValueError(f"n_nodes must be a positive integer, got {self.n_nodes!r}")
-        if self.n_neighbors is not None and not (
-                isinstance(self.n_neighbors, (int, np.integer)) and self.n_neighbors >= 1):
+        if self.n_neighbors is not None and not _is_count(self.n_neighbors):
             raise ValueError(f"n_neighbors must be a positive integer or None, got {self.n_neighbors!r}")
-        if not np.isfinite(self.ridge) or self.ridge < 0:
+        if not (_is_positive(self.ridge) or self.ridge == 0):
             raise ValueError(f"ridge must be a finite number >= 0, got {self.ridge!r}")
-        if not np.isfinite(self.slope_scale) or self.slope_scale <= 0:
-            raise ValueError(f"slope_scale must be a positive number, got {self.slope_scale!r}")
+        for name in ("slope_scale", "interval"):
+            if not _is_positive(getattr(self, name)):
+                raise ValueError(f"{name} must be a finite positive number, got {getattr(self, name)!r}")
 
     def _input_box(self, X: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         if self.domain is None:
             return X.min(axis=0), X.max(axis=0)
         low, high = (np.asarray(side, dtype=np.float64).reshape(-1) for side in self.domain)
-        if low.shape != (X.shape[1],) or high.shape != low.shape or np.any(low > high):
-            raise ValueError("domain must be (low, high), each of one value per feature, low <= high")
+        if low.shape != (X.shape[1],) or high.shape != low.shape:
+            raise ValueError(f"domain must be (low, high) with one value per feature each "
+                             f"({X.shape[1]}), got shapes {low.shape} and {high.shape}")
+        if not (np.all(np.isfinite(low)) and np.all(np.isfinite(high)) and np.all(low <= high)):
+            raise ValueError("domain bounds must be finite with low <= high for every feature")
         return low, high
 
     def _fit_targets(self, X: np.ndarray, Y: np.ndarray) -> None:
         """Draw the hidden layer from normalised data and solve the output layer."""
-        self._check_params(X.shape[1])
-        self.n_features_in_ = X.shape[1]
+        self._check_params()
+        if X.shape[0] < 2:
+            raise ValueError(f"need at least 2 samples to fit, got n_samples = {X.shape[0]}")
+        check_fits_in_memory(X.shape[0], X.shape[1], int(self.n_nodes), Y.shape[1])
         rng = check_random_state(self.random_state)
         activation = get_activation(self.activation)
         self.domain_low_, self.domain_high_ = self._input_box(X)
@@ -68,46 +90,87 @@ class _RandomNodeBase(BaseEstimator):
         U = (X - self.input_offset_) / self.input_scale_
         T = (Y - self.output_offset_) / self.output_scale_
         layer = GENERATORS[self.method](
-            U, T, self.n_nodes, rng, activation, n_neighbors=self.n_neighbors,
-            slope_scale=self.slope_scale, interval=self.interval)
+            U, T, int(self.n_nodes), rng, activation, n_neighbors=self.n_neighbors,
+            slope_scale=float(self.slope_scale), interval=float(self.interval))
         self.hidden_weights_, self.hidden_biases_ = layer.weights, layer.biases
-        self.diagnostics_ = dict(layer.diagnostics)
-        factor = solvers.accumulate(
-            (self._hidden(U[i : i + _BLOCK_ROWS]), T[i : i + _BLOCK_ROWS])
-            for i in range(0, U.shape[0], _BLOCK_ROWS))
+        self.diagnostics_ = {**layer.diagnostics, **self._data_diagnostics(X)}
+        factor, ranges = self._accumulate(U, T, activation)
         self.coef_, self.intercept_ = solvers.solve(factor, float(self.ridge))
+        self.training_z_low_, self.training_z_high_ = ranges.low, ranges.high
+
+    def _data_diagnostics(self, X: np.ndarray) -> dict[str, int]:
+        outside = np.any((X < self.domain_low_) | (X > self.domain_high_), axis=1)
+        return {"constant_features": int(np.sum(self.domain_high_ == self.domain_low_)),
+                "rows_outside_domain": int(outside.sum())}
+
+    def _accumulate(self, U: np.ndarray, T: np.ndarray, activation):
+        """The output layer's factor over row blocks, and each node's pre-activation range."""
+        bounds = block_bounds(U.shape[0], self.hidden_weights_.shape[0])
+        ranges = PreactivationRange(self.hidden_weights_.shape[0])
+        blocks = design_blocks(U, self.hidden_weights_, self.hidden_biases_, activation, bounds,
+                               ranges)
+        factor = solvers.accumulate_designs(
+            (D, T[start:stop]) for (start, stop), D in zip(bounds, blocks, strict=True))
+        return factor, ranges
 
     def _target_scaling(self, Y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         return _normaliser(Y.min(axis=0), Y.max(axis=0))
 
-    def _hidden(self, U: np.ndarray) -> np.ndarray:
-        g = get_activation(self.activation).function
-        return g(U @ self.hidden_weights_.T + self.hidden_biases_)
-
     def _decision(self, X) -> np.ndarray:
+        """Outputs in target units (classifiers: per-class scores), shape (n_samples, t)."""
         check_is_fitted(self)
         X = validate_data(self, X, reset=False, dtype=np.float64)
         U = (X - self.input_offset_) / self.input_scale_
-        return self.output_offset_ + self.output_scale_ * (self._hidden(U) @ self.coef_ + self.intercept_)
+        out = np.empty((U.shape[0], self.coef_.shape[1]))
+        bounds = block_bounds(U.shape[0], self.hidden_weights_.shape[0], growing=False)
+        blocks = design_blocks(U, self.hidden_weights_, self.hidden_biases_,
+                               get_activation(self.activation), bounds)
+        for (start, stop), design in zip(bounds, blocks, strict=True):
+            out[start:stop] = design[:, 1:] @ self.coef_ + self.intercept_
+        return self.output_offset_ + self.output_scale_ * out
+
+
+_PARAMETERS = """
+    Parameters
+    ----------
+    n_nodes : int, default 200
+        Hidden nodes M.
+    method : {"data-driven", "interval", "domain-anchored"}, default "data-driven"
+        Hidden-node generator (:mod:`nodecast.trainer.generators`).
+    n_neighbors : int or None, default None
+        Neighbours k of the data-driven local fits (None: max(10, 2 (n + 1)); at most the rows).
+    slope_scale : float, default 1.0
+        Factor s on the data-driven slopes (1 is the published method).
+    ridge : float, default 1e-6
+        Penalty lambda on the output weights in normalised coordinates, objective
+        ||H beta + c - T||^2 + lambda ||beta||^2 (0: minimum-norm least squares).
+    activation : {"logistic", "tanh"}, default "logistic"
+    interval : float, default 1.0
+        u of the U(-u, u) weight draws of the baseline methods.
+    domain : (low, high) or None, default None
+        The declared input box, one value per feature each (None: the training data's range).
+        Rows outside it are counted in ``diagnostics_``, not dropped.
+    random_state : int, RandomState instance or None, default None
+
+    Attributes
+    ----------
+    hidden_weights_ : ndarray of shape (n_nodes, n_features), on normalised inputs.
+    hidden_biases_ : ndarray of shape (n_nodes,)
+    coef_ : ndarray of shape (n_nodes, n_outputs); intercept_ : ndarray of shape (n_outputs,)
+    input_offset_, input_scale_, domain_low_, domain_high_ : ndarray of shape (n_features,)
+    output_offset_, output_scale_ : ndarray of shape (n_outputs,)
+    training_z_low_, training_z_high_ : ndarray of shape (n_nodes,), each node's pre-activation
+        range over the training rows.
+    diagnostics_ : dict of counts (degenerate neighbourhoods, constant features, rows outside the
+        domain), see docs/training.md.
+"""
 
 
 class RandomNodeRegressor(RegressorMixin, _RandomNodeBase):
-    """Regression network with random hidden nodes (data-driven by default).
-
-    Parameters
-    ----------
-    n_nodes : int, hidden nodes M.
-    method : {"data-driven", "interval", "domain-anchored"}
-    n_neighbors : int or None, neighbours k of the data-driven local fits (None: max(10, 2 (n + 1))).
-    slope_scale : float, factor s on the data-driven slopes (1 is the published method).
-    ridge : float, penalty lambda on the output weights (0: minimum-norm least squares).
-    activation : {"logistic", "tanh"}
-    interval : float, u of the U(-u, u) draws of the baseline methods.
-    domain : (low, high) or None, the declared input box (None: the training data's range).
-    random_state : int, RandomState instance or None.
-    """
+    __doc__ = "Regression network with random hidden nodes (data-driven by default).\n" + _PARAMETERS
 
     def fit(self, X, y):
+        """Fit to X of shape (n_samples, n_features) and y of shape (n_samples,) or (n_samples, t)."""
         X, y = validate_data(self, X, y, multi_output=True, y_numeric=True, dtype=np.float64)
         self._y_was_1d_ = y.ndim == 1
         self._fit_targets(X, y.reshape(X.shape[0], -1).astype(np.float64))
@@ -120,18 +183,24 @@ class RandomNodeRegressor(RegressorMixin, _RandomNodeBase):
 
 
 class RandomNodeClassifier(ClassifierMixin, _RandomNodeBase):
-    """Classification network with random hidden nodes, fitted to one-hot targets.
+    __doc__ = """Classification network with random hidden nodes, fitted to one-hot targets.
 
-    ``decision_function`` returns one score per class: the least-squares fit of the class's
-    indicator (near 1 for the class, near 0 otherwise). Scores are not probabilities: they may fall
-    outside [0, 1] and need not sum to 1. ``predict`` returns the label of the highest score.
-    Parameters as for :class:`RandomNodeRegressor`.
-    """
+    Each class is one output, fitted by least squares to the class's indicator (1 for rows of the
+    class, 0 otherwise; no target scaling). ``decision_function`` returns these per-class scores:
+    they estimate the class indicator, so they are near 1 for the class and near 0 elsewhere, but
+    they are not probabilities: they may fall outside [0, 1] and need not sum to 1. ``predict``
+    returns the original label (``classes_``, any sortable labels, strings included) of the
+    highest score; ties go to the first class in ``classes_`` order.
+    """ + _PARAMETERS + """    classes_ : ndarray of shape (n_classes,), the sorted original labels.
+"""
 
     def fit(self, X, y):
+        """Fit to X of shape (n_samples, n_features) and labels y of shape (n_samples,)."""
         X, y = validate_data(self, X, y, dtype=np.float64)
         check_classification_targets(y)
         self.classes_, codes = np.unique(y, return_inverse=True)
+        if self.classes_.size < 2:
+            raise ValueError(f"need samples of at least 2 classes, got 1 class ({self.classes_[0]!r})")
         onehot = np.zeros((X.shape[0], self.classes_.size))
         onehot[np.arange(X.shape[0]), codes] = 1.0
         self._fit_targets(X, onehot)
@@ -145,4 +214,5 @@ class RandomNodeClassifier(ClassifierMixin, _RandomNodeBase):
         return self._decision(X)
 
     def predict(self, X):
+        """Labels, ndarray of shape (n_samples,), from ``classes_``."""
         return self.classes_[np.argmax(self.decision_function(X), axis=1)]

@@ -2,7 +2,8 @@
 
 from __future__ import annotations
 
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 from sklearn.utils.validation import check_is_fitted
@@ -41,8 +42,20 @@ def to_bundle(estimator, feature_names: Sequence[str] | None = None,
         "settings": {key: _plain(value) for key, value in sorted(estimator.get_params().items())},
         "diagnostics": {key: _plain(value) for key, value in sorted(estimator.diagnostics_.items())},
     }
+    record.update(_training_ranges(estimator))
     record.update(metadata or {})
     return Bundle(network=network, metadata=record)
+
+
+def _training_ranges(estimator) -> dict:
+    """Each node's pre-activation range over the training rows, as the fit recorded it; nothing
+    when the estimator's layer was replaced after the fit (the recorded ranges would not match)."""
+    low, high = getattr(estimator, "training_z_low_", None), getattr(estimator, "training_z_high_", None)
+    m = estimator.hidden_weights_.shape[0]
+    if low is None or high is None or np.shape(low) != (m,) or np.shape(high) != (m,):
+        return {}
+    return {"node_ranges": {"training_z_low": [float(v) for v in low],
+                            "training_z_high": [float(v) for v in high]}}
 
 
 def _plain(value):

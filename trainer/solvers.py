@@ -1,11 +1,25 @@
-"""Output-layer solvers that never form H^T H.
+"""Output-layer solvers that never form H^T H of the raw design.
 
 The output layer minimises ||H beta + 1 c^T - Y||^2 + ridge ||beta||^2 with the bias c not penalised.
-Rows arrive in blocks; a blocked QR keeps only the triangular factor R of [1, H] and Q^T Y, so memory
-does not grow with the number of rows and the condition number is not squared. With the ones column
-first, the bias eliminates exactly: beta solves the trailing problem min ||R22 beta - q2||^2 +
-ridge ||beta||^2, then c = (q1 - R12 beta) / R11. The leading block of R22 is the factor of the first
-m columns of H, so every prefix of the nodes is solved from the same factor.
+Rows arrive in blocks; only the triangular factor R of the design D = [1, H] (shape (M + 1, M + 1))
+and Q^T Y are kept, so memory does not grow with the number of rows, and everything is float64.
+
+Accumulating a block D_k onto the factor R of the rows before it, in one of two exact ways:
+
+* a preconditioned Cholesky update: W = D_k R^-1 (a backward-stable triangular solve), then
+  [R; D_k] = [I; W] R and the factor of [I; W] is the Cholesky factor C of I + W^T W. Its smallest
+  eigenvalue is at least 1, so the Cholesky step is well conditioned whatever the condition of H;
+  the new factor is C R and Q^T Y becomes C^-T (Q^T Y + W^T Y_k). The rounding errors act as a
+  backward error of about eps (1 + ||W||^2) on the data, so the update is taken only while the
+  Gershgorin bound of ||W||^2 stays below ``UPDATE_LIMIT`` (rows like the ones already seen, which
+  is the usual case after the first block); it costs about two Gram matrices of the block.
+* otherwise (the first block, rows unlike any before, a singular factor) a Householder QR of the
+  stacked [R, Q^T Y; D_k, Y_k] (LAPACK ``dgeqrt``), the textbook stable method.
+
+Neither squares the condition number of H, so lambda = 0 and tiny lambda stay honest. With the ones
+column first the bias eliminates exactly: beta solves min ||R22 beta - q2||^2 + ridge ||beta||^2 and
+c = (q1 - R12 beta) / R11. The leading block of R22 is the factor of the first m columns of H, so
+every prefix of the nodes is solved from the same factor.
 """
 
 from __future__ import annotations
@@ -14,6 +28,11 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.linalg
+from scipy.linalg import blas, lapack
+
+_CONTROLLER = []  # the threadpoolctl controller, made on first use (after numpy and scipy load)
+UPDATE_LIMIT = 64.0  # largest accepted bound on ||W||_2^2 of a Cholesky update (see above)
+_PANEL = 32  # dgeqrt panel width: the fastest measured for a few hundred columns
 
 
 @dataclass(frozen=True, eq=False)
@@ -26,33 +45,106 @@ class QRFactor:
 
 
 def accumulate(blocks) -> QRFactor:
-    """Fold (H_block, Y_block) pairs into one QR factor, in float64."""
-    R = qty = None
-    n_rows = 0
+    """Fold (H_block, Y_block) pairs into one factor, in float64.
+
+    blocks : iterable of (ndarray of shape (rows, M), ndarray of shape (rows,) or (rows, t)).
+    """
+    return accumulate_designs(_with_ones(blocks))
+
+
+def _with_ones(blocks):
+    buffer = None
     for H, Y in blocks:
-        design = np.hstack([np.ones((H.shape[0], 1)), np.asarray(H, dtype=np.float64)])
-        Y = np.asarray(Y, dtype=np.float64).reshape(H.shape[0], -1)
+        H = np.asarray(H, dtype=np.float64)
+        if buffer is None or buffer.shape[0] < H.shape[0] or buffer.shape[1] != H.shape[1] + 1:
+            buffer = np.empty((H.shape[0], H.shape[1] + 1))
+        design = buffer[: H.shape[0]]
+        design[:, 0], design[:, 1:] = 1.0, H
+        yield design, Y
+
+
+def accumulate_designs(blocks) -> QRFactor:
+    """:func:`accumulate` for blocks (D, Y) whose design D = [1, H] of shape (rows, M + 1), C order,
+    already holds the ones column."""
+    R = qty = scratch = None
+    n_rows = 0
+    for design, Y in blocks:
+        if design.shape[0] == 0:
+            continue
+        Y = np.asarray(Y, dtype=np.float64).reshape(design.shape[0], -1)
+        update = None
         if R is not None:
-            design, Y = np.vstack([R, design]), np.vstack([qty, Y])
-        Q, R = scipy.linalg.qr(design, mode="economic", overwrite_a=True, check_finite=False)
-        qty = Q.T @ Y
-        n_rows += H.shape[0]
+            if scratch is None or scratch.shape[0] < design.shape[0]:
+                scratch = np.empty(design.shape)
+            update = _cholesky_update(R, qty, design, Y, scratch[: design.shape[0]])
+        R, qty = update if update is not None else _householder_update(R, qty, design, Y)
+        n_rows += design.shape[0]
     if R is None:
         raise ValueError("no rows to fit")
-    p = R.shape[1]
-    if R.shape[0] < p:  # fewer rows than unknowns: pad the factor with zero rows
-        R = np.vstack([R, np.zeros((p - R.shape[0], p))])
-        qty = np.vstack([qty, np.zeros((p - qty.shape[0], qty.shape[1]))])
-    return QRFactor(R, qty, n_rows)
+    return QRFactor(np.ascontiguousarray(R), qty, n_rows)
+
+
+def _one_thread():
+    """A context in which BLAS runs on one thread. OpenBLAS's threaded Cholesky and QR of a few
+    hundred columns are many times slower than its single-threaded ones on a busy machine
+    (measured in tests/benchmarks/trainer_fit.py); the large products keep their threads."""
+    if not _CONTROLLER:
+        from threadpoolctl import ThreadpoolController
+
+        _CONTROLLER.append(ThreadpoolController())
+    return _CONTROLLER[0].limit(limits=1, user_api="blas")
+
+
+def _cholesky_update(R, qty, design, Y, scratch):
+    """The factor of [R; design] by the preconditioned Cholesky update, or None where refused.
+
+    scratch : ndarray of the shape of ``design`` (C order), overwritten with W = design R^-1.
+    """
+    np.copyto(scratch, design)
+    W_T = blas.dtrsm(1.0, R, scratch.T, side=0, lower=0, trans_a=1, overwrite_b=1)
+    gram = blas.dsyrk(1.0, W_T)  # upper triangle of W^T W
+    gram += np.triu(gram, 1).T
+    bound = np.max(np.sum(np.abs(gram), axis=1))  # Gershgorin: ||W||_2^2 <= bound
+    if not bound <= UPDATE_LIMIT:  # also refuses NaN from a singular R
+        return None
+    gram[np.diag_indices_from(gram)] += 1.0
+    rotated_y = qty + blas.dgemm(1.0, W_T, Y)
+    with _one_thread():
+        C, info = lapack.dpotrf(gram, lower=0, clean=1, overwrite_a=1)
+        if info != 0:
+            return None
+        new_qty = scipy.linalg.solve_triangular(C, rotated_y, trans="T", check_finite=False)
+        return blas.dtrmm(1.0, C, R, side=0, lower=0), new_qty
+
+
+def _householder_update(R, qty, design, Y):
+    """The factor of [R, qty; design, Y] by Householder QR (R None: of [design, Y] alone)."""
+    p, t = design.shape[1], Y.shape[1]
+    top = 0 if R is None else p
+    stacked = np.empty((top + design.shape[0], p + t), order="F")
+    if R is not None:
+        stacked[:p, :p], stacked[:p, p:] = R, qty
+    stacked[top:, :p], stacked[top:, p:] = design, Y
+    panel = max(1, min(_PANEL, *stacked.shape))
+    with _one_thread():
+        reduced, _, info = lapack.dgeqrt(panel, stacked, overwrite_a=1)
+    if info != 0:
+        raise ValueError(f"LAPACK dgeqrt failed (info {info})")
+    k = min(reduced.shape[0], p)
+    factor = np.zeros((p, p + t))
+    factor[:k] = np.triu(reduced[:k])
+    return np.asfortranarray(factor[:, :p]), np.ascontiguousarray(factor[:, p:])
 
 
 def _trailing_minimum_norm(R22: np.ndarray, q2: np.ndarray) -> np.ndarray:
-    # SVD-based least squares of the triangular factor: the singular values are those of H itself.
+    # SVD-based least squares of the triangular factor: its singular values are those of the
+    # centred H, and values below eps times the largest count as zero (Moore-Penrose solution).
     beta, *_ = scipy.linalg.lstsq(R22, q2, lapack_driver="gelsd", check_finite=False)
     return beta
 
 
 def _trailing_ridge(R22: np.ndarray, q2: np.ndarray, ridge: float) -> np.ndarray:
+    # Ridge as the least-squares problem of [R22; sqrt(ridge) I]: a QR, never normal equations.
     m = R22.shape[0]
     stacked = np.vstack([R22, np.sqrt(ridge) * np.eye(m)])
     rhs = np.vstack([q2, np.zeros((m, q2.shape[1]))])
@@ -61,7 +153,8 @@ def _trailing_ridge(R22: np.ndarray, q2: np.ndarray, ridge: float) -> np.ndarray
 
 
 def solve(factor: QRFactor, ridge: float, n_nodes: int | None = None) -> tuple[np.ndarray, np.ndarray]:
-    """Output weights (m, t) and bias (t,) for the first ``n_nodes`` nodes (all by default).
+    """Output weights of shape (m, t) and bias of shape (t,) for the first ``n_nodes`` nodes (all
+    by default).
 
     ``ridge = 0`` gives the minimum-norm least-squares solution (Moore-Penrose), stable when H is
     rank-deficient; ``ridge > 0`` the ridge solution by a second QR, never by normal equations.
@@ -71,6 +164,5 @@ def solve(factor: QRFactor, ridge: float, n_nodes: int | None = None) -> tuple[n
     m = factor.R.shape[0] - 1 if n_nodes is None else n_nodes
     R22, q2 = factor.R[1 : m + 1, 1 : m + 1], factor.qty[1 : m + 1]
     beta = _trailing_ridge(R22, q2, ridge) if ridge > 0 else _trailing_minimum_norm(R22, q2)
-    r11 = factor.R[0, 0]
-    bias = (factor.qty[0] - factor.R[0, 1 : m + 1] @ beta) / r11
+    bias = (factor.qty[0] - factor.R[0, 1 : m + 1] @ beta) / factor.R[0, 0]
     return beta, bias

@@ -1,13 +1,14 @@
-"""Fixed-interval baseline: weights and biases drawn from U(-u, u) (u = 1 is the customary default)."""
+"""Fixed-interval baseline: weights and biases drawn from U(-u, u), in normalised coordinates
+(u = 1 is the customary default, known to fail on non-linear maps: most nodes are nearly linear
+over the unit box)."""
 
 from __future__ import annotations
-
-import numpy as np
 
 from nodecast.trainer.generators.base import HiddenLayer
 
 
 def generate(U, T, n_nodes, rng, activation, *, interval=1.0, **_unused) -> HiddenLayer:
+    """Layer of ``n_nodes`` nodes for inputs U of shape (N, n); ``T`` and ``activation`` unused."""
     n = U.shape[1]
     weights = rng.uniform(-interval, interval, size=(n_nodes, n))
     biases = rng.uniform(-interval, interval, size=n_nodes)

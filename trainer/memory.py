@@ -1,0 +1,42 @@
+"""How much memory a fit needs, estimated before any large array exists, and how much there is."""
+
+from __future__ import annotations
+
+import os
+
+from nodecast.trainer.hidden import block_rows
+
+_FLOAT = 8  # bytes of a float64
+
+
+def fit_memory_bytes(n_rows: int, n_features: int, n_nodes: int, n_outputs: int) -> int:
+    """Peak bytes of one fit, beyond the caller's own copy of the data.
+
+    Counted: the normalised inputs and targets and the neighbour search's copy of the inputs
+    (3 N n + N t), a hidden block and its design copy (2 r (M + 1), r rows per block), the stacked
+    matrix of a Householder step (r + M + 1 rows of M + 1 + t), and about six (M + 1)^2 matrices of
+    the factor, its update and the final solve.
+    """
+    p = n_nodes + 1
+    rows = min(block_rows(n_nodes), max(n_rows, 1))
+    data = 3 * n_rows * n_features + n_rows * n_outputs
+    blocks = 2 * rows * p + (rows + p) * (p + n_outputs)
+    return _FLOAT * (data + blocks + 6 * p * p)
+
+
+def available_memory_bytes() -> int | None:
+    """Physical memory not in use now (POSIX sysconf), or None where the system does not say."""
+    try:
+        pages, size = os.sysconf("SC_AVPHYS_PAGES"), os.sysconf("SC_PAGE_SIZE")
+    except (AttributeError, ValueError, OSError):
+        return None
+    return pages * size if pages > 0 and size > 0 else None
+
+
+def check_fits_in_memory(n_rows: int, n_features: int, n_nodes: int, n_outputs: int) -> None:
+    """Raise ValueError, with the estimate, when a fit would not fit into the available memory."""
+    need, have = fit_memory_bytes(n_rows, n_features, n_nodes, n_outputs), available_memory_bytes()
+    if have is not None and need > have:
+        raise ValueError(f"{n_nodes} nodes need about {need / 2**30:.3g} GiB of memory to fit "
+                         f"{n_rows} rows, more than the {have / 2**30:.3g} GiB available; "
+                         "use fewer nodes")
