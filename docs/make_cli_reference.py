@@ -13,8 +13,10 @@ from nodecast.compiler.cli import cli
 TARGET = Path(__file__).with_name("cli-reference.md")
 
 
-def _help(command: click.Command, name: str) -> str:
-    context = click.Context(command, info_name=name, terminal_width=100, max_content_width=100)
+def _help(command: click.Command, name: str, parent: click.Context | None = None) -> str:
+    # the group's context settings (help option names, width) reach every command, as at run time
+    settings = {**cli.context_settings, "terminal_width": 100, "max_content_width": 100}
+    context = click.Context(command, info_name=name, parent=parent, **settings)
     return command.get_help(context)
 
 
@@ -24,8 +26,9 @@ def render() -> str:
              "`python3 docs/make_cli_reference.py`; do not edit by hand.", "",
              "```text", _help(cli, "nodecast"), "```"]
     for name in sorted(cli.commands):
-        parts += ["", f"## nodecast {name}", "", "```text", _help(cli.commands[name], f"nodecast {name}"),
-                  "```"]
+        parent = click.Context(cli, info_name="nodecast", **cli.context_settings)
+        parts += ["", f"## nodecast {name}", "", "```text",
+                  _help(cli.commands[name], name, parent), "```"]
     return "\n".join(parts) + "\n"
 
 
