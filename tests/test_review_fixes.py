@@ -70,3 +70,11 @@ def test_demo_into_an_impossible_folder_is_a_one_line_error(tmp_path):
     (tmp_path / "file").write_text("x")
     result = _nodecast("demo", "-o", str(tmp_path / "file" / "sub"), cwd=tmp_path)
     assert result.returncode == 2 and "Traceback" not in result.stderr
+
+
+def test_emulate_is_refused_for_artifacts_that_are_not_c(friedman_bundle, tmp_path):
+    from nodecast.compiler.verify import verify
+
+    emit(friedman_bundle, "onnx", tmp_path / "m.onnx")
+    with pytest.raises(NodecastError, match="emulate"):
+        verify(friedman_bundle, tmp_path / "m.onnx", emulate="cortex-m4")

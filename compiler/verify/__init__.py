@@ -148,6 +148,9 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
     """
     net, path = bundle.network, Path(artifact)
     kind = detect_kind(path)
+    if run_options.get("emulate") and kind != "c":
+        raise NodecastError(f"--emulate runs C artifacts on an emulated CPU; {path} is a {kind} "
+                            "artifact, which runs on the host only")
     module = runner(kind)
     info = _describe(module, path, bundle, run_options)
     families = probe_families(net, data, count, seed)
