@@ -192,8 +192,6 @@ def test_c_code_is_clean_under_sanitizers_on_extreme_inputs(precision, policy, a
 
 
 @pytest.mark.skipif(shutil.which("gcc") is None, reason="needs gcc")
-@pytest.mark.xfail(reason="reported to the C back-end: <PREFIX>_Q_FROM_REAL casts NaN to an "
-                          "integer, undefined behaviour (C99 6.3.1.4)", strict=False)
 def test_c_fixed_point_conversion_macro_is_defined_for_nan(artifact_folder):
     if not _sanitizers_work(artifact_folder):
         pytest.skip("gcc has no sanitizer runtime here")
