@@ -82,13 +82,10 @@ def render(bundle, precision: str = "float32", prefix: str = "model", out_of_dom
 
 
 def _render_template(name: str, context: dict) -> bytes:
-    import jinja2
+    from nodecast.templates import render
 
-    env = jinja2.Environment(loader=jinja2.PackageLoader("nodecast.templates", "c"),
-                             undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
-                             keep_trailing_newline=True, autoescape=False)
     # Every piece of user text was escaped already; ASCII is a last check that nothing slipped by.
-    return env.get_template(name).render(**context).encode("ascii")
+    return render("c", name, **context).encode("ascii")
 
 
 def _common_context(bundle, precision, prefix, policy, impl, estimate, context) -> dict:

@@ -14,11 +14,9 @@ LINKER_SCRIPT = "mps2.ld"
 
 
 def startup_source() -> bytes:
-    import jinja2
+    from nodecast.templates import render
 
-    env = jinja2.Environment(loader=jinja2.PackageLoader("nodecast.templates", "harness"),
-                             undefined=jinja2.StrictUndefined, keep_trailing_newline=True)
-    return env.get_template("startup.c.j2").render(version=__version__).encode("ascii")
+    return render("harness", "startup.c.j2", version=__version__).encode("ascii")
 
 
 def linker_script() -> bytes:

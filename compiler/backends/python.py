@@ -18,9 +18,7 @@ layout only.
 
 from __future__ import annotations
 
-import functools
 import math
-from importlib import resources
 
 import numpy as np
 
@@ -29,23 +27,13 @@ from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import OUT_OF_DOMAIN_POLICIES
 from nodecast.compiler.numerics import estimate
 from nodecast.compiler.version import __version__
+from nodecast.templates import render as render_template
 
 PRECISIONS = ("float64",)
 FILE_NAME = "predictor.py"
 TEMPLATE = "predictor.py.j2"
 LINE_LIMIT = 100  # pyproject [tool.ruff] line-length: the generated file passes ruff as it is
 _NOQA_LONG_LINE = "  # noqa: E501"
-
-
-@functools.lru_cache(maxsize=1)
-def _template():
-    import jinja2
-
-    source = (resources.files("nodecast.templates") / "python" / TEMPLATE).read_text("utf-8")
-    environment = jinja2.Environment(
-        undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
-        keep_trailing_newline=True, autoescape=False)
-    return environment.from_string(source)
 
 
 def render(bundle, precision: str = "float64", out_of_domain: str = "pass", **_ignored) -> Artifact:
@@ -66,7 +54,7 @@ def render(bundle, precision: str = "float64", out_of_domain: str = "pass", **_i
                             f"{', '.join(OUT_OF_DOMAIN_POLICIES)}, not {out_of_domain!r}")
     net = bundle.network
     error = estimate(net, precision)
-    text = _template().render(**_context(bundle, error, out_of_domain))
+    text = render_template("python", TEMPLATE, **_context(bundle, error, out_of_domain))
     data = text.encode("utf-8")
     summary = {"precision": precision, "out_of_domain": out_of_domain, "estimate": error.as_dict(),
                "bytes": len(data), "nodes": net.n_nodes, "features": net.n_features,

@@ -71,20 +71,16 @@ def describe(path: Path, emulate: str | None = None, **_options) -> dict:
 
 def harness_source(info: dict, rows: np.ndarray | None = None) -> bytes:
     """The harness main for ``info``'s artifact: rows from stdin, or compiled in (semihosted)."""
-    import jinja2
-
     from nodecast.compiler.backends.c_format import array_body
+    from nodecast.templates import render
 
-    env = jinja2.Environment(loader=jinja2.PackageLoader("nodecast.templates", "harness"),
-                             undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
-                             keep_trailing_newline=True, autoescape=False)
     bits = [] if rows is None else np.ascontiguousarray(rows, dtype="<f8").view("<u8").ravel()
     context = {"version": __version__, "prefix": info["prefix"], "PREFIX": info["prefix"].upper(),
                "precision": info["precision"], "io_type": _IO_TYPES[info["precision"]],
                "n_inputs": info["n_inputs"], "semihosted": rows is not None,
                "row_count": 0 if rows is None else int(rows.shape[0]),
                "rows": array_body([f"UINT64_C(0x{int(b):016x})" for b in bits]) or "    0,"}
-    return env.get_template("main.c.j2").render(**context).encode("ascii")
+    return render("harness", "main.c.j2", **context).encode("ascii")
 
 
 def parse_output(text: str, n_rows: int, info: dict) -> np.ndarray:
