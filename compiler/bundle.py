@@ -29,7 +29,7 @@ from typing import Any
 import numpy as np
 
 from nodecast.compiler.bundle_schema import check_manifest, check_metadata, json_problem
-from nodecast.compiler.errors import BundleError
+from nodecast.compiler.errors import BundleError, one_line
 from nodecast.compiler.files import write_atomic
 from nodecast.compiler.ir import ARRAY_FIELDS, Network
 from nodecast.compiler.version import __version__
@@ -150,11 +150,7 @@ def from_bytes(data: bytes, label: str = "bundle") -> Bundle:
     except (zipfile.BadZipFile, zipfile.LargeZipFile, EOFError, OSError, NotImplementedError,
             RuntimeError, UnicodeDecodeError, ValueError, KeyError, TypeError,
             OverflowError) as exc:
-        raise BundleError(f"{label} is not a readable bundle: {_one_line(exc)}") from None
-
-
-def _one_line(exc: BaseException) -> str:
-    return " ".join(str(exc).split()) or type(exc).__name__
+        raise BundleError(f"{label} is not a readable bundle: {one_line(exc)}") from None
 
 
 def _check_directory_size(data: bytes, label: str) -> None:
@@ -206,7 +202,7 @@ def _read_entry(archive: zipfile.ZipFile, name: str, limit: int, archive_bytes: 
         with archive.open(info) as handle:
             payload = handle.read(limit + 1)
     except zipfile.BadZipFile as exc:
-        raise BundleError(f"{label}: entry {name!r} is damaged ({_one_line(exc)})") from None
+        raise BundleError(f"{label}: entry {name!r} is damaged ({one_line(exc)})") from None
     if len(payload) > limit:
         raise BundleError(f"{label}: entry {name!r} is larger than declared")
     return payload
@@ -283,7 +279,7 @@ def _read_archive(archive: zipfile.ZipFile, archive_bytes: int, label: str) -> B
         network = Network(activation=text["activation"], task=text["task"], **arrays,
                           **{name: tuple(text[name]) for name in _TEXT_FIELDS})
     except (ValueError, TypeError) as exc:
-        raise BundleError(f"{label}: network is inconsistent: {_one_line(exc)}") from None
+        raise BundleError(f"{label}: network is inconsistent: {one_line(exc)}") from None
     problem = check_metadata(manifest["metadata"])
     if problem:
         raise BundleError(f"{label}: {problem}")

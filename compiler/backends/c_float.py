@@ -25,6 +25,7 @@ from nodecast.compiler.backends.c_format import (
     float_literal,
 )
 from nodecast.compiler.errors import NodecastError
+from nodecast.compiler.numerics import UNIT_ROUNDOFF
 from nodecast.compiler.passes.scaling import (
     folded_input_layer,
     folded_output_layer,
@@ -34,7 +35,6 @@ from nodecast.compiler.passes.scaling import (
 FLOAT_IMPLS = ("libm", "rational", "table")
 DEFAULT_FLOAT_TABLE = 512
 OUTPUT_LANES = 8
-UNIT_ROUNDOFF = {"float32": 2.0**-24, "float64": 2.0**-53}
 RATIONAL_CLIP = 9.0
 RATIONAL_NUMERATOR = tuple(float.fromhex(h) for h in (
     "0x1.fffffcdb6827ep-1", "0x1.11e20ab7d80cfp-3", "0x1.c8fe0e7bda777p-9",

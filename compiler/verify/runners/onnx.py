@@ -11,7 +11,7 @@ from pathlib import Path
 
 import numpy as np
 
-from nodecast.compiler.errors import NodecastError
+from nodecast.compiler.errors import NodecastError, one_line
 
 ENGINES = ("onnxruntime", "onnx.reference")
 PRECISIONS = ("float32", "float64")
@@ -24,7 +24,7 @@ def _load(path: Path):
     try:
         return onnx.load(str(path))
     except Exception as exc:  # onnx raises DecodeError, OSError and others for unreadable files
-        raise NodecastError(f"{path} is not a readable ONNX model: {_one_line(exc)}") from None
+        raise NodecastError(f"{path} is not a readable ONNX model: {one_line(exc)}") from None
 
 
 def describe(path: Path, **_options) -> dict:
@@ -79,7 +79,7 @@ def _evaluate(path: Path, X: np.ndarray, info: dict, output: str) -> np.ndarray:
     except NodecastError:
         raise
     except Exception as exc:  # a model that loads but cannot run: bad input, not a crash
-        raise NodecastError(f"{engine} cannot run {path}: {_one_line(exc)}") from None
+        raise NodecastError(f"{engine} cannot run {path}: {one_line(exc)}") from None
 
 
 def run(path: Path, X: np.ndarray, info: dict) -> np.ndarray:
@@ -97,5 +97,3 @@ def run_labels(path: Path, X: np.ndarray, info: dict) -> np.ndarray | None:
                      for v in np.asarray(labels, dtype=object).ravel()], dtype=object)
 
 
-def _one_line(exc: BaseException, limit: int = 300) -> str:
-    return (" ".join(str(exc).split()) or type(exc).__name__)[:limit]
