@@ -59,6 +59,19 @@ def parse_domain(text: str | None) -> dict[str, tuple[float, float]]:
     return domain
 
 
+def parse_ridge(text: str) -> float | str:
+    """--ridge: 'auto' or a finite number >= 0."""
+    if text.strip().lower() == "auto":
+        return "auto"
+    try:
+        value = float(text)
+    except ValueError:
+        value = float("nan")
+    if not (value >= 0 and value < float("inf")):
+        raise NodecastError(f"--ridge takes 'auto' or a finite number >= 0, got {text!r}")
+    return value
+
+
 def parse_units(text: str | None) -> dict[str, str]:
     units = {}
     for item in parse_list(text, option="--units"):
@@ -100,8 +113,10 @@ def cli():
               show_default=True, help="Slope-scale factor s of the data-driven nodes.")
 @click.option("--interval", type=click.FloatRange(min=0, min_open=True), default=1.0,
               show_default=True, help="u of the U(-u, u) draws of the baseline generators.")
-@click.option("--ridge", type=click.FloatRange(min=0), default=1e-6, show_default=True,
-              help="Ridge lambda on the output weights (0: minimum-norm least squares).")
+@click.option("--ridge", default="auto", show_default=True,
+              help="Ridge lambda on the output weights, a number >= 0 (0: minimum-norm least "
+                   "squares) or 'auto' (generalized cross-validation, float32-safe; see "
+                   "docs/training.md).")
 @click.option("--activation", type=click.Choice(["logistic", "tanh"]), default="logistic",
               show_default=True)
 @click.option("--task", type=click.Choice(["regression", "classification"]), default="regression",
@@ -128,7 +143,7 @@ def train(data, target, features, domain, units, method, nodes, neighbors, slope
         task=task, domain=parse_domain(domain), units=parse_units(units), seed=seed,
         validation_fraction=validation_fraction,
         params=dict(n_nodes=nodes, method=method, n_neighbors=neighbors, slope_scale=slope_scale,
-                    interval=interval, ridge=ridge, activation=activation))
+                    interval=interval, ridge=parse_ridge(ridge), activation=activation))
     bundle = run_training(read_table(data), job)
     save(bundle, output, overwrite=overwrite)
     click.echo(f"wrote {output} (bundle {bundle.bundle_id[:12]}); {_metrics_line(bundle)}", err=True)

@@ -15,12 +15,12 @@ from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import check_is_fitted, validate_data
 
 from nodecast.compiler.activations import get_activation
-from nodecast.trainer import solvers
+from nodecast.trainer import ridge_choice, solvers
 from nodecast.trainer.generators import GENERATORS
 from nodecast.trainer.hidden import PreactivationRange, block_bounds, design_blocks
 from nodecast.trainer.memory import check_fits_in_memory
 
-DEFAULT_RIDGE = 1e-6  # see docs/training.md, "The default ridge"
+DEFAULT_RIDGE = "auto"  # chosen per fit, see nodecast.trainer.ridge_choice and docs/training.md
 
 
 def _normaliser(low: np.ndarray, high: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -59,8 +59,9 @@ class _RandomNodeBase(BaseEstimator):
             raise ValueError(f"n_nodes must be a positive integer, got {self.n_nodes!r}")
         if self.n_neighbors is not None and not _is_count(self.n_neighbors):
             raise ValueError(f"n_neighbors must be a positive integer or None, got {self.n_neighbors!r}")
-        if not (_is_positive(self.ridge) or self.ridge == 0):
-            raise ValueError(f"ridge must be a finite number >= 0, got {self.ridge!r}")
+        if not (self.ridge == "auto" or _is_positive(self.ridge)
+                or (isinstance(self.ridge, (int, float, np.number)) and self.ridge == 0)):
+            raise ValueError(f"ridge must be 'auto' or a finite number >= 0, got {self.ridge!r}")
         for name in ("slope_scale", "interval"):
             if not _is_positive(getattr(self, name)):
                 raise ValueError(f"{name} must be a finite positive number, got {getattr(self, name)!r}")
@@ -95,8 +96,32 @@ class _RandomNodeBase(BaseEstimator):
         self.hidden_weights_, self.hidden_biases_ = layer.weights, layer.biases
         self.diagnostics_ = {**layer.diagnostics, **self._data_diagnostics(X)}
         factor, ranges = self._accumulate(U, T, activation)
-        self.coef_, self.intercept_ = solvers.solve(factor, float(self.ridge))
         self.training_z_low_, self.training_z_high_ = ranges.low, ranges.high
+        if self.ridge == "auto":
+            self.ridge_, self.ridge_choice_ = ridge_choice.choose(factor, self._float32_error(factor))
+        else:
+            self.ridge_, self.ridge_choice_ = float(self.ridge), {"rule": "given"}
+        self.coef_, self.intercept_ = solvers.solve(factor, self.ridge_)
+
+    def _float32_error(self, factor):
+        """callable(ridge) -> estimated float32 export error (normalised units) of that solution."""
+        from nodecast.compiler import numerics
+        from nodecast.compiler.ir import Network
+
+        n, t = self.hidden_weights_.shape[1], factor.qty.shape[1]
+
+        def error(ridge: float) -> float:
+            beta, bias = solvers.solve(factor, ridge)
+            net = Network(
+                hidden_weights=self.hidden_weights_, hidden_biases=self.hidden_biases_,
+                activation=self.activation, output_weights=beta, output_bias=bias,
+                input_offset=self.input_offset_, input_scale=self.input_scale_,
+                output_offset=np.zeros(t), output_scale=np.ones(t), domain_low=self.domain_low_,
+                domain_high=self.domain_high_, feature_names=[f"x{i}" for i in range(n)],
+                target_names=[f"y{i}" for i in range(t)])
+            return numerics.estimate(net, "float32").max_abs
+
+        return error
 
     def _data_diagnostics(self, X: np.ndarray) -> dict[str, int]:
         outside = np.any((X < self.domain_low_) | (X > self.domain_high_), axis=1)
@@ -141,9 +166,11 @@ _PARAMETERS = """
         Neighbours k of the data-driven local fits (None: max(10, 2 (n + 1)); at most the rows).
     slope_scale : float, default 1.0
         Factor s on the data-driven slopes (1 is the published method).
-    ridge : float, default 1e-6
+    ridge : float or "auto", default "auto"
         Penalty lambda on the output weights in normalised coordinates, objective
-        ||H beta + c - T||^2 + lambda ||beta||^2 (0: minimum-norm least squares).
+        ||H beta + c - T||^2 + lambda ||beta||^2 (0: minimum-norm least squares). "auto":
+        generalized cross-validation on a grid, raised where needed until the estimated float32
+        export error is at most 2% of the estimated error (:mod:`nodecast.trainer.ridge_choice`).
     activation : {"logistic", "tanh"}, default "logistic"
     interval : float, default 1.0
         u of the U(-u, u) weight draws of the baseline methods.
@@ -161,6 +188,7 @@ _PARAMETERS = """
     output_offset_, output_scale_ : ndarray of shape (n_outputs,)
     training_z_low_, training_z_high_ : ndarray of shape (n_nodes,), each node's pre-activation
         range over the training rows.
+    ridge_ : float, the lambda used; ridge_choice_ : dict, how it was chosen.
     diagnostics_ : dict of counts (degenerate neighbourhoods, constant features, rows outside the
         domain), see docs/training.md.
 """
@@ -181,16 +209,24 @@ class RandomNodeRegressor(RegressorMixin, _RandomNodeBase):
         out = self._decision(X)
         return out[:, 0] if self._y_was_1d_ else out
 
+    def __sklearn_tags__(self):
+        tags = super().__sklearn_tags__()
+        tags.target_tags.multi_output = True
+        return tags
+
 
 class RandomNodeClassifier(ClassifierMixin, _RandomNodeBase):
     __doc__ = """Classification network with random hidden nodes, fitted to one-hot targets.
 
     Each class is one output, fitted by least squares to the class's indicator (1 for rows of the
-    class, 0 otherwise; no target scaling). ``decision_function`` returns these per-class scores:
-    they estimate the class indicator, so they are near 1 for the class and near 0 elsewhere, but
-    they are not probabilities: they may fall outside [0, 1] and need not sum to 1. ``predict``
-    returns the original label (``classes_``, any sortable labels, strings included) of the
-    highest score; ties go to the first class in ``classes_`` order.
+    class, 0 otherwise; no target scaling). ``class_scores`` returns these per-class scores (the
+    bundle's outputs): they estimate the class indicator, so they are near 1 for the class and
+    near 0 elsewhere, and they sum to 1 in every row (the indicators do, and the fit is linear in
+    the targets with an unpenalised bias), but they are not probabilities: single scores may fall
+    below 0 or above 1. ``predict`` returns the original label (``classes_``, any sortable labels,
+    strings included) of the highest score; ties go to the first class in ``classes_`` order.
+    ``decision_function`` follows scikit-learn: the scores, or for two classes the score of
+    ``classes_[1]`` minus that of ``classes_[0]`` (positive means ``classes_[1]``).
     """ + _PARAMETERS + """    classes_ : ndarray of shape (n_classes,), the sorted original labels.
 """
 
@@ -209,10 +245,16 @@ class RandomNodeClassifier(ClassifierMixin, _RandomNodeBase):
     def _target_scaling(self, Y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         return np.zeros(Y.shape[1]), np.ones(Y.shape[1])
 
-    def decision_function(self, X):
-        """Per-class scores, ndarray of shape (n_samples, n_classes)."""
+    def class_scores(self, X):
+        """Per-class scores, ndarray of shape (n_samples, n_classes), columns in ``classes_`` order."""
         return self._decision(X)
+
+    def decision_function(self, X):
+        """ndarray of shape (n_samples, n_classes), or (n_samples,) for two classes."""
+        scores = self._decision(X)
+        return scores[:, 1] - scores[:, 0] if scores.shape[1] == 2 else scores
 
     def predict(self, X):
         """Labels, ndarray of shape (n_samples,), from ``classes_``."""
-        return self.classes_[np.argmax(self.decision_function(X), axis=1)]
+        check_is_fitted(self)
+        return self.classes_[np.argmax(self._decision(X), axis=1)]

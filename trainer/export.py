@@ -43,6 +43,9 @@ def to_bundle(estimator, feature_names: Sequence[str] | None = None,
         "diagnostics": {key: _plain(value) for key, value in sorted(estimator.diagnostics_.items())},
     }
     record.update(_training_ranges(estimator))
+    if hasattr(estimator, "ridge_"):
+        record["ridge"] = {**_plain_record(getattr(estimator, "ridge_choice_", {})),
+                           "value": float(estimator.ridge_)}
     record.update(metadata or {})
     return Bundle(network=network, metadata=record)
 
@@ -56,6 +59,10 @@ def _training_ranges(estimator) -> dict:
         return {}
     return {"node_ranges": {"training_z_low": [float(v) for v in low],
                             "training_z_high": [float(v) for v in high]}}
+
+
+def _plain_record(record: dict) -> dict:
+    return {str(key): _plain(value) for key, value in sorted(record.items())}
 
 
 def _plain(value):

@@ -37,11 +37,13 @@ _PANEL = 32  # dgeqrt panel width: the fastest measured for a few hundred column
 
 @dataclass(frozen=True, eq=False)
 class QRFactor:
-    """R of shape (M + 1, M + 1) and Q^T Y of shape (M + 1, t) for the design [1, H]."""
+    """R of shape (M + 1, M + 1) and Q^T Y of shape (M + 1, t) for the design [1, H]; ``y_squares``
+    (shape (t,)) the sums of the squared targets, for residual sums (None where unknown)."""
 
     R: np.ndarray
     qty: np.ndarray
     n_rows: int
+    y_squares: np.ndarray | None = None
 
 
 def accumulate(blocks) -> QRFactor:
@@ -66,12 +68,14 @@ def _with_ones(blocks):
 def accumulate_designs(blocks) -> QRFactor:
     """:func:`accumulate` for blocks (D, Y) whose design D = [1, H] of shape (rows, M + 1), C order,
     already holds the ones column."""
-    R = qty = scratch = None
+    R = qty = scratch = y_squares = None
     n_rows = 0
     for design, Y in blocks:
         if design.shape[0] == 0:
             continue
         Y = np.asarray(Y, dtype=np.float64).reshape(design.shape[0], -1)
+        squares = np.einsum("ij,ij->j", Y, Y)
+        y_squares = squares if y_squares is None else y_squares + squares
         update = None
         if R is not None:
             if scratch is None or scratch.shape[0] < design.shape[0]:
@@ -81,13 +85,13 @@ def accumulate_designs(blocks) -> QRFactor:
         n_rows += design.shape[0]
     if R is None:
         raise ValueError("no rows to fit")
-    return QRFactor(np.ascontiguousarray(R), qty, n_rows)
+    return QRFactor(np.ascontiguousarray(R), qty, n_rows, y_squares)
 
 
-def _one_thread():
-    """A context in which BLAS runs on one thread. OpenBLAS's threaded Cholesky and QR of a few
-    hundred columns are many times slower than its single-threaded ones on a busy machine
-    (measured in tests/benchmarks/trainer_fit.py); the large products keep their threads."""
+def single_blas_thread():
+    """A context in which BLAS runs on one thread. OpenBLAS's threaded Cholesky, QR and SVD of a
+    few hundred columns were measured many times slower than its single-threaded ones on a busy
+    two-core machine; the large products of a fit keep their threads."""
     if not _CONTROLLER:
         from threadpoolctl import ThreadpoolController
 
@@ -109,7 +113,7 @@ def _cholesky_update(R, qty, design, Y, scratch):
         return None
     gram[np.diag_indices_from(gram)] += 1.0
     rotated_y = qty + blas.dgemm(1.0, W_T, Y)
-    with _one_thread():
+    with single_blas_thread():
         C, info = lapack.dpotrf(gram, lower=0, clean=1, overwrite_a=1)
         if info != 0:
             return None
@@ -126,7 +130,7 @@ def _householder_update(R, qty, design, Y):
         stacked[:p, :p], stacked[:p, p:] = R, qty
     stacked[top:, :p], stacked[top:, p:] = design, Y
     panel = max(1, min(_PANEL, *stacked.shape))
-    with _one_thread():
+    with single_blas_thread():
         reduced, _, info = lapack.dgeqrt(panel, stacked, overwrite_a=1)
     if info != 0:
         raise ValueError(f"LAPACK dgeqrt failed (info {info})")
@@ -136,10 +140,13 @@ def _householder_update(R, qty, design, Y):
     return np.asfortranarray(factor[:, :p]), np.ascontiguousarray(factor[:, p:])
 
 
-def _trailing_minimum_norm(R22: np.ndarray, q2: np.ndarray) -> np.ndarray:
+def _trailing_minimum_norm(R22: np.ndarray, q2: np.ndarray, n_rows: int) -> np.ndarray:
     # SVD-based least squares of the triangular factor: its singular values are those of the
-    # centred H, and values below eps times the largest count as zero (Moore-Penrose solution).
-    beta, *_ = scipy.linalg.lstsq(R22, q2, lapack_driver="gelsd", check_finite=False)
+    # centred H. Values below eps * max(N, M + 1) times the largest count as zero, the numerical
+    # rank rule of numpy.linalg.lstsq and pinv (common practice): below it a singular value is
+    # rounding noise of the factor, and keeping it would give a weight of rounding noise / noise.
+    cutoff = np.finfo(np.float64).eps * max(n_rows, R22.shape[0] + 1)
+    beta, *_ = scipy.linalg.lstsq(R22, q2, cond=cutoff, lapack_driver="gelsd", check_finite=False)
     return beta
 
 
@@ -156,13 +163,16 @@ def solve(factor: QRFactor, ridge: float, n_nodes: int | None = None) -> tuple[n
     """Output weights of shape (m, t) and bias of shape (t,) for the first ``n_nodes`` nodes (all
     by default).
 
-    ``ridge = 0`` gives the minimum-norm least-squares solution (Moore-Penrose), stable when H is
-    rank-deficient; ``ridge > 0`` the ridge solution by a second QR, never by normal equations.
+    ``ridge = 0`` gives the minimum-norm least-squares solution (Moore-Penrose, numerical rank by
+    numpy's rule eps * max(N, M + 1)), stable when H is rank-deficient; ``ridge > 0`` the ridge
+    solution by a second QR, never by normal equations.
     """
     if not np.isfinite(ridge) or ridge < 0:
         raise ValueError(f"ridge must be a finite number >= 0, got {ridge!r}")
     m = factor.R.shape[0] - 1 if n_nodes is None else n_nodes
     R22, q2 = factor.R[1 : m + 1, 1 : m + 1], factor.qty[1 : m + 1]
-    beta = _trailing_ridge(R22, q2, ridge) if ridge > 0 else _trailing_minimum_norm(R22, q2)
+    with single_blas_thread():
+        beta = (_trailing_ridge(R22, q2, ridge) if ridge > 0
+                else _trailing_minimum_norm(R22, q2, factor.n_rows))
     bias = (factor.qty[0] - factor.R[0, 1 : m + 1] @ beta) / factor.R[0, 0]
     return beta, bias

@@ -48,15 +48,36 @@ def _check_finite(X: np.ndarray, names, what: str) -> None:
 
 
 def _domain(job: TrainingJob, features, X: np.ndarray):
+    """The input box: declared bounds where given, the data's range elsewhere; and the number of
+    rows outside it. Rows outside a declared domain are kept (and counted); a declared range that
+    is not finite, has LO > HI, or leaves no row inside the box is refused."""
     unknown = sorted(set(job.domain) - set(features))
     if unknown:
         raise NodecastError(f"--domain names unknown feature(s): {', '.join(map(repr, unknown))}")
     low, high = X.min(axis=0), X.max(axis=0)
     for i, name in enumerate(features):
-        if name in job.domain:
-            low[i], high[i] = job.domain[name]
-    outside = int(np.sum(np.any((X < low) | (X > high), axis=1)))
-    return low, high, outside
+        if name not in job.domain:
+            continue
+        lo, hi = (float(v) for v in job.domain[name])
+        if not (np.isfinite(lo) and np.isfinite(hi) and lo <= hi):
+            raise NodecastError(f"--domain {name}={lo!r}:{hi!r}: bounds must be finite with LO <= HI")
+        if not np.any((X[:, i] >= lo) & (X[:, i] <= hi)):
+            raise NodecastError(f"--domain {name}={lo!r}:{hi!r} contains none of the {X.shape[0]} "
+                                f"rows ({name} spans {low[i]!r} .. {high[i]!r} in the data); "
+                                "declare a domain that covers the data")
+        low[i], high[i] = lo, hi
+    outside = np.any((X < low) | (X > high), axis=1)
+    if outside.all():
+        raise NodecastError(f"the declared --domain contains none of the {X.shape[0]} rows (each is "
+                            "outside in some feature); declare a domain that covers the data")
+    return low, high, int(outside.sum())
+
+
+def _check_target_varies(y: np.ndarray, names) -> None:
+    for j, name in enumerate(names):
+        if np.ptp(y[:, j]) == 0:
+            raise NodecastError(f"target {name!r} holds the single value {y[0, j]!r} in every row; "
+                                "there is nothing to learn")
 
 
 def make_estimator(job: TrainingJob, low, high):
@@ -73,7 +94,8 @@ def train(table, job: TrainingJob) -> Bundle:
     X = table.numbers(features)
     _check_finite(X, features, "feature")
     if X.shape[0] < 2:
-        raise NodecastError(f"{table.source}: need at least 2 data rows to train, got {X.shape[0]}")
+        raise NodecastError(f"{table.source}: need at least 2 data rows to train, got {X.shape[0]}"
+                            + (" (the file has a header only)" if X.shape[0] == 0 else ""))
     if job.task == "classification":
         if len(job.targets) != 1:
             raise NodecastError("classification takes exactly one --target column (the labels)")
@@ -83,6 +105,7 @@ def train(table, job: TrainingJob) -> Bundle:
     else:
         y = table.numbers(job.targets)
         _check_finite(y, job.targets, "target")
+        _check_target_varies(y, job.targets)
     low, high, outside = _domain(job, features, X)
     estimator = make_estimator(job, low, high)
     try:
