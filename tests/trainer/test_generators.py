@@ -86,16 +86,26 @@ def test_duplicate_rows_and_too_few_neighbours_are_counted_not_fatal():
     assert np.all(np.isfinite(few.weights))
 
 
-def test_flat_neighbourhoods_fall_back_to_a_random_direction_of_typical_length():
+def test_flat_neighbourhoods_fall_back_to_a_random_direction_of_fixed_length():
     U, T = _unit_data(rows=500, features=2)
-    T = np.where(U[:, :1] < 0.5, 0.25, U[:, :1])  # flat on the left half of the box
+    T = np.where(U[:, :1] < 0.5, 0.25, 0.25 + 2.0 * (U[:, :1] - 0.5) ** 2)  # flat on the left
     layer = _draw("data-driven", U, T, n_nodes=100, n_neighbors=8)
     flat = layer.diagnostics["flat_neighbourhoods"]
     assert 20 <= flat <= 80
+    # fallback: slope length 1 (normalised), so the logistic weight has length 4; no node is flat
     lengths = np.linalg.norm(layer.weights, axis=1)
+    assert np.sum(np.isclose(lengths, 4.0, rtol=1e-12)) == flat
     assert np.all(lengths > 0)
-    # the fallback length is the median of the fitted ones: no node is left constant
-    assert np.min(lengths) > 0.05 * np.median(lengths)
+
+
+def test_a_draw_of_fewer_nodes_is_the_prefix_of_a_larger_draw_even_with_flat_nodes():
+    U, T = _unit_data(rows=500, features=2)
+    T = np.column_stack([np.where(U[:, 0] < 0.5, 0.25, U[:, 0]), U[:, 1] ** 2])
+    small = _draw("data-driven", U, T, n_nodes=40, n_neighbors=8)
+    large = _draw("data-driven", U, T, n_nodes=120, n_neighbors=8)
+    assert small.diagnostics["flat_neighbourhoods"] > 0
+    assert np.array_equal(small.weights, large.weights[:40])
+    assert np.array_equal(small.biases, large.biases[:40])
 
 
 def test_a_constant_feature_gets_no_weight_and_is_counted_by_the_estimator():

@@ -12,9 +12,14 @@ Degenerate cases never crash and are counted in the layer's diagnostics:
   points on a lower-dimensional set) gets the minimum-norm fit (SVD, singular values below
   ``_RANK_TOLERANCE`` times the largest count as zero): ``rank_deficient_fits``;
 * k < n + 1 makes every fit underdetermined: ``underdetermined_fits``;
-* a flat local target (slope norm below ``_FLAT``) falls back to a random direction with the median
-  length of the other slopes (1 if all are flat), still anchored at x*: ``flat_neighbourhoods``;
+* a flat local target (slope norm below ``_FLAT``) falls back to a random direction of length
+  ``FALLBACK_SLOPE`` (a rise of the whole target range across the whole box), still anchored at
+  x*: ``flat_neighbourhoods``;
 * more nodes than rows reuse anchors, in further shuffled rounds: ``repeated_anchors``.
+
+The draw of M nodes is the prefix of the draw of more nodes with the same seed (what model
+selection relies on): anchors, target columns and fallback directions come from three streams of
+their own, each drawn node by node, and no node depends on another.
 """
 
 from __future__ import annotations
@@ -27,6 +32,7 @@ from nodecast.trainer.generators.base import HiddenLayer
 _FLAT = 1e-10  # slope norms below this, in normalised target per normalised input, count as flat
 _RANK_TOLERANCE = 1e-10  # relative singular-value cutoff of the local minimum-norm fits
 _CHUNK = 512  # nodes per batched SVD, to bound memory
+FALLBACK_SLOPE = 1.0  # length of a flat node's slope, normalised target per normalised input
 
 
 def default_neighbors(n_features: int) -> int:
@@ -65,14 +71,14 @@ def local_slopes(U, local_targets, neighbours, anchors) -> tuple[np.ndarray, np.
 
 
 def _replace_flat(slopes: np.ndarray, rng: np.random.RandomState) -> np.ndarray:
-    """Give nodes with a ~0 slope a random direction of the other slopes' median length."""
-    norms = np.linalg.norm(slopes, axis=1)
-    flat = norms < _FLAT
+    """Give nodes with a ~0 slope a random direction of length ``FALLBACK_SLOPE``; returns the
+    mask of those nodes. One direction is drawn per node, flat or not, so that node j's draw does
+    not depend on the others."""
+    directions = rng.standard_normal(slopes.shape)
+    flat = np.linalg.norm(slopes, axis=1) < _FLAT
     if flat.any():
-        typical = np.median(norms[~flat]) if (~flat).any() else 1.0
-        directions = rng.standard_normal((int(flat.sum()), slopes.shape[1]))
-        directions /= np.linalg.norm(directions, axis=1, keepdims=True)
-        slopes[flat] = typical * directions
+        chosen = directions[flat]
+        slopes[flat] = FALLBACK_SLOPE * chosen / np.linalg.norm(chosen, axis=1, keepdims=True)
     return flat
 
 
@@ -83,8 +89,10 @@ def generate(U, T, n_nodes, rng, activation, *, n_neighbors=None, slope_scale=1.
     varying = np.flatnonzero(np.ptp(U, axis=0) > 0)
     q = varying.size
     k = min(n_neighbors or default_neighbors(q), N)
-    anchors = draw_anchors(N, n_nodes, rng)
-    columns = rng.randint(T.shape[1], size=n_nodes)
+    anchor_rng, column_rng, direction_rng = (np.random.RandomState(seed)
+                                             for seed in rng.randint(2**31 - 1, size=3))
+    anchors = draw_anchors(N, n_nodes, anchor_rng)
+    columns = column_rng.randint(T.shape[1], size=n_nodes)
     slopes = np.zeros((n_nodes, n))
     flat = np.ones(n_nodes, dtype=bool)
     ranks = np.zeros(n_nodes, dtype=int)
@@ -94,7 +102,7 @@ def generate(U, T, n_nodes, rng, activation, *, n_neighbors=None, slope_scale=1.
         _, neighbours = tree.query(V[anchors], k=k, workers=-1)
         neighbours = np.asarray(neighbours).reshape(n_nodes, k)
         fitted, ranks = local_slopes(V, T[neighbours, columns[:, None]], neighbours, anchors)
-        flat = _replace_flat(fitted, rng)
+        flat = _replace_flat(fitted, direction_rng)
         slopes[:, varying] = fitted
     weights = slope_scale * slopes / activation.slope_at_inflection
     biases = activation.inflection - np.einsum("ij,ij->i", weights, U[anchors])
