@@ -121,15 +121,20 @@ def main(n_rows: int = 200_000, n_nodes: int = 500) -> dict:
     default_threads = compare(X, y, n_nodes, rows)
     with threadpool_limits(limits=1, user_api="blas"):
         one_thread = compare(X, y, n_nodes, rows)
-    tracemalloc.start()
-    model = RandomNodeRegressor(n_nodes=n_nodes, random_state=0).fit(X, y)
-    _, peak = tracemalloc.get_traced_memory()
-    tracemalloc.stop()
+    peaks = {}
+    for rows_used in (n_rows // 2, n_rows):
+        tracemalloc.start()
+        model = RandomNodeRegressor(n_nodes=n_nodes, random_state=0).fit(X[:rows_used], y[:rows_used])
+        peaks[rows_used] = tracemalloc.get_traced_memory()[1]
+        tracemalloc.stop()
+    peak = peaks[n_rows]
+    growth = (peaks[n_rows] - peaks[n_rows // 2]) / ((X.nbytes + y.nbytes) / 2)
     return {
         "rows": n_rows, "features": 10, "nodes": n_nodes, "block_rows": rows,
         "default_blas_threads": default_threads, "one_blas_thread": one_thread,
         "fit_peak_traced_bytes": peak, "data_bytes": X.nbytes + y.nbytes,
         "peak_over_data": peak / (X.nbytes + y.nbytes),
+        "peak_growth_per_data_byte": growth,  # extra peak bytes per extra byte of data
         "update_limit": solvers.UPDATE_LIMIT,
         "activation_seconds_per_block": time_activations(rows, n_nodes),
         "training_rmse": float(np.sqrt(np.mean((model.predict(X) - y) ** 2))),
