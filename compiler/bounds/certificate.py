@@ -21,7 +21,9 @@ from nodecast.compiler.bounds.branch import refine
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import Network
 
-TARGETS = ("c", "onnx", "python", "reference")
+# the precisions each target can execute (an artifact declaring another is refused)
+TARGET_PRECISIONS = {"c": ("float64", "float32", "q31", "q15"), "onnx": ("float64", "float32"),
+                     "python": ("float64",), "reference": ("float64",)}
 _WORK = 6_000_000  # node-input evaluations the refinement may spend per output (sets the budget)
 _MIN_BOXES, _MAX_BOXES = 16, 1024
 
@@ -89,6 +91,10 @@ def _assumption(target: str, precision: str, impl: str | None) -> str:
 def box_function(net: Network, target: str, precision: str, activation_impl: str | None = None,
                  table_size: int | None = None):
     """The per-box bound ``f(lows, highs) -> (B, t)`` of one artifact configuration."""
+    if precision not in TARGET_PRECISIONS.get(target, ()):
+        known = ", ".join(TARGET_PRECISIONS.get(target, ()))
+        raise NodecastError(f"a {target} artifact computes in {known or 'no known precision'}, "
+                            f"not precision {precision!r}")
     if target == "c" and precision in ("q15", "q31"):
         from nodecast.compiler.fixedpoint import make_plan
 
@@ -110,15 +116,17 @@ def box_function(net: Network, target: str, precision: str, activation_impl: str
 
 
 def certify(net: Network, target: str, precision: str, activation_impl: str | None = None,
-            table_size: int | None = None, low=None, high=None) -> Certificate:
+            table_size: int | None = None, low=None, high=None, boxes: int | None = None
+            ) -> Certificate:
     """Certified bound of ``target`` at ``precision`` over the box [low, high] (default: the
-    declared domain), refined by branch and bound; see the module doc."""
+    declared domain), refined by branch and bound over at most ``boxes`` boxes (default: set by
+    the model's size; fewer boxes give a looser, still certified bound); see the module doc."""
     low = net.domain_low if low is None else np.asarray(low, dtype=np.float64)
     high = net.domain_high if high is None else np.asarray(high, dtype=np.float64)
     bound = box_function(net, target, precision, activation_impl, table_size)
     impact = _impact(net)
     with np.errstate(over="ignore", invalid="ignore"):
-        refined = refine(bound, low, high, impact, _budget(net))
+        refined = refine(bound, low, high, impact, boxes or _budget(net))
     values = tuple(round_up(float(v)) if np.isfinite(v) else math.inf for v in refined.bound)
     return Certificate(target, precision, values,
                        _assumption(target, precision, activation_impl), refined.boxes)
