@@ -9,9 +9,9 @@ Rule (``ridge="auto"``, the default of the estimators and of ``nodecast train``)
    RSS(lambda) = RSS_outside + sum_i (lambda / (s_i^2 + lambda))^2 g_i^2 and
    df(lambda) = 1 + sum_i s_i^2 / (s_i^2 + lambda) (the 1 is the unpenalised bias).
 2. Starting at the GCV minimum, the first lambda (going up the grid) whose certified float32
-   export error (:func:`nodecast.compiler.bounds.certify` for the default C artifact, with a
-   coarse refinement of ``SCREENING_BOXES`` boxes) is at most ``FLOAT32_SHARE`` of the model's own
-   GCV error estimate sqrt(GCV) is taken, so that the float32 artifact of a default model is
+   export error (the default C artifact's, from a coarse refinement:
+   :func:`nodecast.compiler.bounds.certificate.screening_bound`) is at most ``FLOAT32_SHARE`` of
+   the model's own GCV error estimate sqrt(GCV) is taken, so that the float32 artifact of a default model is
    proven within the default accuracy budget of verify (5% of the validation RMSE).
 
 Neither step squares the condition number: the SVD is of the triangular factor.
@@ -28,7 +28,6 @@ from nodecast.trainer.solvers import single_blas_thread
 
 GRID = 10.0 ** np.arange(-8.0, 2.01, 0.5)
 FLOAT32_SHARE = 0.03
-SCREENING_BOXES = 64
 
 
 @dataclass(frozen=True, eq=False)

@@ -15,7 +15,6 @@ import numpy as np
 from nodecast.compiler import numerics
 from nodecast.compiler.backends import Artifact
 from nodecast.compiler.backends.c_board import board_files
-from nodecast.compiler.bounds import certify
 from nodecast.compiler.backends.c_fixed import fixed_context
 from nodecast.compiler.backends.c_float import float_context
 from nodecast.compiler.backends.c_format import (
@@ -25,6 +24,7 @@ from nodecast.compiler.backends.c_format import (
     check_prefix,
     double_literal,
 )
+from nodecast.compiler.bounds import certify
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.fixedpoint import FIXED_PRECISIONS
 from nodecast.compiler.ir import OUT_OF_DOMAIN_POLICIES

@@ -26,6 +26,7 @@ TARGET_PRECISIONS = {"c": ("float64", "float32", "q31", "q15"), "onnx": ("float6
                      "python": ("float64",), "reference": ("float64",)}
 _WORK = 6_000_000  # node-input evaluations the refinement may spend per output (sets the budget)
 _MIN_BOXES, _MAX_BOXES = 16, 1024
+SCREENING_BOXES = 64  # a coarser refinement for many candidate models (select): looser, certified
 
 
 @dataclass(frozen=True)
@@ -41,6 +42,8 @@ class Certificate:
     @property
     def worst(self) -> float:
         return max(self.per_output)
+
+    max_abs = worst  # the name select's budget reads
 
     def as_dict(self) -> dict:
         return {"target": self.target, "precision": self.precision,
@@ -130,3 +133,9 @@ def certify(net: Network, target: str, precision: str, activation_impl: str | No
     values = tuple(round_up(float(v)) if np.isfinite(v) else math.inf for v in refined.bound)
     return Certificate(target, precision, values,
                        _assumption(target, precision, activation_impl), refined.boxes)
+
+
+def screening_bound(net: Network, precision: str) -> float:
+    """The certified bound of the default C artifact at ``precision`` from a coarse refinement
+    (max over outputs): how select screens grid points and the trainer its ridge."""
+    return certify(net, "c", precision, boxes=SCREENING_BOXES).worst

@@ -42,12 +42,12 @@ from pathlib import Path
 import numpy as np
 
 from nodecast.compiler import numerics
+from nodecast.compiler.bounds.budget import accuracy_budget
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.verify.compare import compare_family, expected_outputs
 from nodecast.compiler.verify.probes import probe_families
 from nodecast.compiler.verify.report import format_table
 from nodecast.compiler.verify.runners import detect_kind, runner
-from nodecast.compiler.bounds.budget import accuracy_budget
 from nodecast.compiler.verify.tolerance import certified_tolerance, check_stated
 
 __all__ = ["Report", "check", "format_table", "verify"]
