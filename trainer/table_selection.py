@@ -50,9 +50,7 @@ def run_selection(table, job, grid, settings, growth=None, progress=None):
 
 def train_options(point, settings) -> dict:
     """The ``nodecast train`` options (TrainingJob.params) of a grid point."""
-    return dict(n_nodes=point.nodes, method="data-driven", n_neighbors=point.neighbors,
-                slope_scale=point.slope_scale, interval=1.0, ridge=point.ridge,
-                activation=settings.activation)
+    return {**point.params, "activation": settings.activation}
 
 
 def _finite(table, names, what: str) -> np.ndarray:
