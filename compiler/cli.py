@@ -14,6 +14,7 @@ from pathlib import Path
 
 import click
 
+from nodecast.compiler.cli_compare import compare as compare_command
 from nodecast.compiler.cli_score import score as score_command
 from nodecast.compiler.cli_select import select as select_command
 from nodecast.compiler.errors import NodecastError
@@ -371,6 +372,7 @@ def demo(output, data_only):
 
 cli.add_command(score_command)
 cli.add_command(select_command)
+cli.add_command(compare_command)
 
 
 def _stop_on_sigterm(signum, frame) -> None:
