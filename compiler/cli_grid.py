@@ -17,14 +17,14 @@ def grid_options(command):
     """Add --neighbors, --slope-scales, --intervals, --angle-ranges and --weight-sums."""
     options = [
         click.option("--neighbors", help="data-driven: neighbours k to try; 'default' is "
-                                         "max(10, 2(n+1)). [default: default]"),
-        click.option("--slope-scales", help="data-driven: slope scales s to try. [default: 1]"),
-        click.option("--intervals", help="interval, domain-anchored: u of U(-u, u) to try. "
+                                         "max(10, 2(n+1)).  [default: default]"),
+        click.option("--slope-scales", help="data-driven: slope scales s to try.  [default: 1]"),
+        click.option("--intervals", help="interval, domain-anchored: u of U(-u, u) to try.  "
                                          "[default: 0.3,1,3,10,30]"),
         click.option("--angle-ranges", help="slope-angle: slope-angle ranges LO:HI in degrees to "
-                                            "try. [default: 0:60,0:80,0:85,0:88,45:88]"),
-        click.option("--weight-sums", help="weight-sum: ranges R:S of the sum of weight "
-                                           "magnitudes to try. [default: 1:5,2:10,5:25,10:50,20:100]"),
+                                            "try.  [default: 0:60,0:80,0:85,0:88,45:88]"),
+        click.option("--weight-sums", help="weight-sum: ranges R:S of the sum of weight magnitudes "
+                                           "to try.  [default: 1:5,2:10,5:25,10:50,20:100]"),
     ]
     for option in reversed(options):
         command = option(command)

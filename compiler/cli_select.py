@@ -79,8 +79,8 @@ def select(data, target, features, domain, units, method, nodes, neighbors, slop
     from nodecast.compiler.cli import parse_domain, parse_list, parse_units
     from nodecast.compiler.csvio import read_table
     from nodecast.trainer.grid import make_grid
-    from nodecast.trainer.method_grid import layer_grid
     from nodecast.trainer.growth import GrowthSettings
+    from nodecast.trainer.method_grid import layer_grid
     from nodecast.trainer.selection import SearchSettings
     from nodecast.trainer.table_selection import run_selection
     from nodecast.trainer.training import TrainingJob

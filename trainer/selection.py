@@ -1,12 +1,12 @@
 """Fast k-fold model selection over nodes M, the hidden-node generator and its own hyper-parameters
-(data-driven: neighbours k and slope scale s) and ridge lambda, optionally under a precision budget (the estimated export error in a named precision must not
-exceed a tolerance in target units).
+(data-driven: neighbours k and slope scale s) and ridge lambda, optionally under a precision budget
+(the estimated export error in a named precision must not exceed a tolerance in target units).
 
-The search runs one unit per (fold, hidden layer) (:mod:`nodecast.trainer.cv_units`): one hidden layer of
-max(M) nodes drawn from the fold's training rows, one pass over those rows, every (lambda, M) pair
-solved from one factorisation per lambda. Units are independent and may run in parallel; the result
-does not depend on ``n_jobs``. The chosen point is refitted on all rows with the same draw rule and
-seed, so ``nodecast train`` with the chosen options reproduces the model exactly.
+The search runs one unit per (fold, hidden layer) (:mod:`nodecast.trainer.cv_units`): one hidden
+layer of max(M) nodes drawn from the fold's training rows, one pass over those rows, every
+(lambda, M) pair solved from one factorisation per lambda. Units are independent and may run in
+parallel; the result does not depend on ``n_jobs``. The chosen point is refitted on all rows with
+the same draw rule and seed, so ``nodecast train`` with the chosen options reproduces the model exactly.
 """
 
 from __future__ import annotations

@@ -2,9 +2,9 @@
 generator, the chosen point marked.
 
 Each line shows, for one neighbour count k (or one other generator), the best mean CV RMSE over the
-other settings and ridge values at every M (among the points within the precision budget, when there is one), with the
-spread over folds as a band; a second panel shows the growth curve when there is one. matplotlib
-is an optional extra (``pip install 'nodecast[plot]'``).
+other settings and ridge values at every M (among the points within the precision budget, when
+there is one), with the spread over folds as a band; a second panel shows the growth curve when
+there is one. matplotlib is an optional extra (``pip install 'nodecast[plot]'``).
 """
 
 from __future__ import annotations

@@ -8,11 +8,10 @@ import json
 
 import numpy as np
 import pytest
+from franke_function import franke, franke_rows
 
 from nodecast.compiler.cli import main
 from nodecast.compiler.csvio import write_table
-
-from franke_function import franke, franke_rows
 
 
 def run(*args) -> int:

@@ -8,13 +8,12 @@ import json
 
 import numpy as np
 import pytest
+from franke_function import franke, franke_rows
 
 from nodecast.compiler import load
 from nodecast.compiler.cli import main
 from nodecast.compiler.csvio import write_table
 from nodecast.trainer import RandomNodeRegressor, select
-
-from franke_function import franke, franke_rows
 
 
 def run(*args) -> int:
