@@ -5,7 +5,8 @@ Data: sklearn.datasets.make_friedman1 (Friedman 1991), 10 features, 20,000 train
 settings, k by the default rule and s = 1), fixed interval U(-1, 1) and domain-anchored nodes,
 each with the default ridge ("auto") and with the ridge that is best on the test rows among
 1e-8 .. 1e1 (the generator's potential, for reference only). Baseline: MLPRegressor (logistic,
-one hidden layer of 100, adam, early stopping off, max_iter 2000) with its training time. Prints JSON; asserts nothing.
+one hidden layer of 100, adam, early stopping off, max_iter 2000) with its training time. Prints
+JSON; asserts nothing.
 Run: python tests/benchmarks/trainer_accuracy.py
 """
 
