@@ -41,7 +41,7 @@ def layer_values(neighbors, slope_scales, intervals, angle_ranges, weight_sums) 
 
 
 def parse_methods(text: str, allowed=METHODS) -> list[str]:
-    methods = [item.strip() for item in text.split(",") if item.strip()]
+    methods = list(dict.fromkeys(item.strip() for item in text.split(",") if item.strip()))
     for method in methods:
         if method not in allowed:
             raise NodecastError(f"--method takes a comma-separated list of {', '.join(allowed)}; "

@@ -131,7 +131,7 @@ def layer_grid(methods, values: dict) -> tuple[LayerSpec, ...]:
     Raises NodecastError naming an unknown method, a bad value, or values for a parameter that no
     chosen method has.
     """
-    methods = list(dict.fromkeys(methods))
+    methods = list(dict.fromkeys([methods] if isinstance(methods, str) else methods))
     if not methods:
         raise NodecastError("method needs at least one generator")
     unknown = [m for m in methods if m not in AXES]
