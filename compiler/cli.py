@@ -117,9 +117,9 @@ def cli():
               help="Slope-scale factor s of the data-driven nodes, a positive number or 'auto'.")
 @click.option("--interval", type=click.FloatRange(min=0, min_open=True), default=1.0,
               show_default=True, help="u of the U(-u, u) weights of interval and domain-anchored.")
-@click.option("--angle-range", default="0:85", show_default=True,
+@click.option("--angle-range", default="0:70", show_default=True,
               help="slope-angle: range LO:HI of the slope angles in degrees.")
-@click.option("--weight-sum", default="2:20", show_default=True,
+@click.option("--weight-sum", default="2:10", show_default=True,
               help="weight-sum: range R:S of each node's sum of weight magnitudes.")
 @click.option("--ridge", default="auto", show_default=True,
               help="Ridge lambda on the output weights, a number >= 0 (0: minimum-norm least "

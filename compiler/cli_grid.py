@@ -20,11 +20,11 @@ def grid_options(command):
                                          "max(10, 2(n+1)).  [default: default]"),
         click.option("--slope-scales", help="data-driven: slope scales s to try.  [default: 1]"),
         click.option("--intervals", help="interval, domain-anchored: u of U(-u, u) to try.  "
-                                         "[default: 0.3,1,3,10,30]"),
+                                         "[default: 0.1,0.3,1,3,10,30]"),
         click.option("--angle-ranges", help="slope-angle: slope-angle ranges LO:HI in degrees to "
-                                            "try.  [default: 0:60,0:80,0:85,0:88,45:88]"),
+                                            "try.  [default: 0:20,0:45,0:70,0:85,0:88]"),
         click.option("--weight-sums", help="weight-sum: ranges R:S of the sum of weight magnitudes "
-                                           "to try.  [default: 1:5,2:10,5:25,10:50,20:100]"),
+                                           "to try.  [default: 0.5:2.5,1:5,2:10,5:25,10:50]"),
     ]
     for option in reversed(options):
         command = option(command)

@@ -210,9 +210,9 @@ default "data-driven"
     activation : {"logistic", "tanh"}, default "logistic"
     interval : float, default 1.0
         u of the U(-u, u) weight draws of the interval and domain-anchored methods.
-    angle_range : (min, max), default (0, 85)
+    angle_range : (min, max), default (0, 70)
         Slope angles in degrees of the slope-angle method, 0 <= min <= max < 90.
-    weight_sum : (r, s), default (2, 20)
+    weight_sum : (r, s), default (2, 10)
         Interval of each node's sum of weight magnitudes, weight-sum method, 0 < r <= s.
     domain : (low, high) or None, default None
         The declared input box, one value per feature each (None: the training data's range).

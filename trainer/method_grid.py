@@ -10,10 +10,10 @@ generator          parameter        option              default grid
 =================  ===============  ==================  =========================================
 data-driven        n_neighbors      --neighbors         default (max(10, 2 (n + 1)))
                    slope_scale      --slope-scales      1
-interval           interval         --intervals         0.3, 1, 3, 10, 30
-domain-anchored    interval         --intervals         0.3, 1, 3, 10, 30
-slope-angle        angle_range      --angle-ranges      0:60, 0:80, 0:85, 0:88, 45:88 (degrees)
-weight-sum         weight_sum       --weight-sums       1:5, 2:10, 5:25, 10:50, 20:100
+interval           interval         --intervals         0.1, 0.3, 1, 3, 10, 30
+domain-anchored    interval         --intervals         0.1, 0.3, 1, 3, 10, 30
+slope-angle        angle_range      --angle-ranges      0:20, 0:45, 0:70, 0:85, 0:88 (degrees)
+weight-sum         weight_sum       --weight-sums       0.5:2.5, 1:5, 2:10, 5:25, 10:50
 =================  ===============  ==================  =========================================
 """
 
@@ -69,13 +69,13 @@ NEIGHBORS = Axis("n_neighbors", "--neighbors", (None,),
                  "positive integers (or None / 'default' for max(10, 2 (n + 1)))")
 SLOPE_SCALES = Axis("slope_scale", "--slope-scales", (1.0,), lambda v: _is_real(v) and v > 0,
                     "positive numbers")
-INTERVALS = Axis("interval", "--intervals", (0.3, 1.0, 3.0, 10.0, 30.0),
+INTERVALS = Axis("interval", "--intervals", (0.1, 0.3, 1.0, 3.0, 10.0, 30.0),
                  lambda v: _is_real(v) and v > 0, "positive numbers")
 ANGLE_RANGES = Axis("angle_range", "--angle-ranges",
-                    ((0.0, 60.0), (0.0, 80.0), (0.0, 85.0), (0.0, 88.0), (45.0, 88.0)), valid_angles,
+                    ((0.0, 20.0), (0.0, 45.0), (0.0, 70.0), (0.0, 85.0), (0.0, 88.0)), valid_angles,
                     "LO:HI pairs of degrees with 0 <= LO <= HI < 90")
 WEIGHT_SUMS = Axis("weight_sum", "--weight-sums",
-                   ((1.0, 5.0), (2.0, 10.0), (5.0, 25.0), (10.0, 50.0), (20.0, 100.0)), valid_sums,
+                   ((0.5, 2.5), (1.0, 5.0), (2.0, 10.0), (5.0, 25.0), (10.0, 50.0)), valid_sums,
                    "R:S pairs with 0 < R <= S")
 
 AXES: dict[str, tuple[Axis, ...]] = {

@@ -26,9 +26,9 @@ def _pyplot():
 
 
 def line_label(point) -> str:
-    """The line a point belongs to: 'k = ..' for data-driven points, else the generator's name."""
+    """The line a point belongs to: one per data-driven k, one per other generator."""
     if point.method == "data-driven":
-        return f"k = {point.neighbors if point.neighbors else 'default'}"
+        return f"data-driven, k = {point.neighbors if point.neighbors else 'default'}"
     return point.method
 
 

@@ -35,6 +35,9 @@ def main() -> None:
     X, y = make_friedman1(n_samples=args.rows, n_features=10, noise=1.0, random_state=0)
     rows = contenders(CONTENDERS, {})
     declared = (np.full(X.shape[1], np.nan), np.full(X.shape[1], np.nan))
+    # warm-up: the first search starts the worker processes (--jobs) and loads their modules
+    compare(X[:500], y[:500, None], contenders(["fixed-interval"], {}), (10,), (1e-6,),
+            SearchSettings(folds=2, seed=0, n_jobs=args.jobs or os.cpu_count()), declared)
     load_before = os.getloadavg()
     start = time.perf_counter()
     result = compare(X, y[:, None], rows, (50, 100, 250), (0.0, 1e-6),

@@ -15,7 +15,7 @@ import numpy as np
 from nodecast.trainer.generators.base import HiddenLayer
 from nodecast.trainer.generators.streams import box_points, streams, through_points
 
-DEFAULT_ANGLES = (0.0, 85.0)  # degrees
+DEFAULT_ANGLES = (0.0, 70.0)  # degrees; the best of the default grid on Franke's function
 
 
 def unit_directions(rng: np.random.RandomState, n_nodes: int, n_features: int) -> np.ndarray:

@@ -14,7 +14,7 @@ import numpy as np
 from nodecast.trainer.generators.base import HiddenLayer
 from nodecast.trainer.generators.streams import box_points, streams, through_points
 
-DEFAULT_SUMS = (2.0, 20.0)  # (r, s), in units of the activation's argument per normalised input
+DEFAULT_SUMS = (2.0, 10.0)  # (r, s), activation argument per normalised input; best on Franke's
 
 
 def generate(U, T, n_nodes, rng, activation, *, weight_sum=DEFAULT_SUMS, **_unused) -> HiddenLayer:
