@@ -13,6 +13,7 @@ from __future__ import annotations
 import time
 from dataclasses import dataclass, field
 
+from nodecast.compiler.errors import NodecastError
 from nodecast.trainer.folds import input_box
 from nodecast.trainer.grid import GridPoint, make_grid, ranked
 from nodecast.trainer.method_grid import LayerSpec, layer_grid
@@ -34,9 +35,14 @@ class Contender:
 def contenders(names, values: dict) -> list[Contender]:
     """Contenders by name (``CONTENDERS``), each generator on its grid from ``values`` (parameter ->
     list, None for the generator's default; see :func:`nodecast.trainer.method_grid.layer_grid`).
-    "fixed-interval" is the interval generator with u = 1 only, whatever ``values`` says."""
+    "fixed-interval" is the interval generator with u = 1 only; its u is not a grid option."""
     methods = [("interval" if name == "fixed-interval" else name) for name in names]
-    layer_grid(methods, values)  # validates names and values once, for every contender
+    searched = [name for name in names if name != "fixed-interval"]
+    if searched:
+        layer_grid(searched, values)  # validates names and values once, for every contender
+    elif any(given is not None for given in values.values()):
+        raise NodecastError("fixed-interval takes no grid options (u = 1); add the contender "
+                            "'interval' to search u")
     rows = []
     for name, method in zip(names, methods, strict=True):
         if name == "fixed-interval":

@@ -81,6 +81,8 @@ def test_cli_contenders_are_the_trainers():
 @pytest.mark.parametrize("args, words", [
     (["--method", "magic"], "--method takes"),
     (["--method", "data-driven", "--intervals", "1,3"], "--intervals sets interval"),
+    (["--method", "fixed-interval,data-driven", "--intervals", "3"], "--intervals sets interval"),
+    (["--method", "fixed-interval", "--intervals", "3"], "fixed-interval takes no grid options"),
     (["--angle-ranges", "0:95"], "--angle-ranges takes"),
     (["--weight-sums", "5"], "--weight-sums takes"),
     (["--target", "missing"], "missing"),
