@@ -71,6 +71,17 @@ class ContenderResult:
     refit_seconds: float
     diagnostics: dict = field(default_factory=dict)
 
+    def at_grid_end(self) -> list[str]:
+        """The chosen point's settings that sit at either end of a grid axis of three or more
+        values (the best may lie beyond the grid)."""
+        chosen = self.chosen.layer.kwargs
+        ends = []
+        for param, value in chosen.items():
+            values = sorted({layer.kwargs[param] for layer in self.contender.layers} - {None})
+            if len(values) >= 3 and value in (values[0], values[-1]):
+                ends.append(param)
+        return ends
+
     def curve(self) -> list[dict]:
         """The best point at each node count: CV RMSE mean and spread (first target's order)."""
         best: dict[int, GridPoint] = {}
@@ -83,7 +94,8 @@ class ContenderResult:
     def as_dict(self, rank: int) -> dict:
         return {"rank": rank, "name": self.contender.name,
                 "layers": [layer.as_dict() for layer in self.contender.layers],
-                "chosen": self.chosen.as_dict(), "curve": self.curve(),
+                "chosen": self.chosen.as_dict(), "at_grid_end": self.at_grid_end(),
+                "curve": self.curve(),
                 "points": [p.as_dict() for p in self.points], "diagnostics": self.diagnostics,
                 "seconds": {"search": self.search_seconds, "refit": self.refit_seconds}}
 
@@ -141,8 +153,13 @@ def format_table(result: ComparisonResult) -> str:
         p = r.chosen
         rmse = ", ".join(f"{m:.4g} +/- {s:.2g}" for m, s in zip(p.rmse_mean, p.rmse_std, strict=True))
         settings = " ".join(p.layer.describe().split()[1:] + [f"ridge={p.ridge:g}"])
+        settings += " *" if r.at_grid_end() else ""
         lines.append((str(rank), r.contender.name, rmse, str(p.nodes), settings,
                       f"{r.search_seconds:.2f}", f"{r.refit_seconds:.2f}"))
     widths = [max(len(line[i]) for line in lines) for i in range(len(header))]
-    return "\n".join("  ".join(cell.ljust(w) for cell, w in zip(line, widths, strict=True)).rstrip()
+    text = "\n".join("  ".join(cell.ljust(w) for cell, w in zip(line, widths, strict=True)).rstrip()
                      for line in lines)
+    if any(r.at_grid_end() for r in result.results):
+        text += ("\n* a chosen setting is at the end of its grid; the best may lie beyond it: "
+                 "extend that grid option")
+    return text

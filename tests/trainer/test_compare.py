@@ -67,6 +67,7 @@ def test_each_contender_reports_its_best_point_and_its_costs(franke_csv, capsys)
         assert contender["seconds"]["search"] > 0 and contender["seconds"]["refit"] > 0
     scores = [c["chosen"]["score"] for c in document["contenders"]]
     assert scores == sorted(scores)
+    assert all(c["at_grid_end"] == [] for c in document["contenders"])  # two values: no end
     out = capsys.readouterr().out
     assert "angle_range=" in out and "interval=" in out
 
@@ -110,3 +111,16 @@ def test_every_generator_ranked_and_data_driven_above_the_fixed_interval(franke_
     # u = 1 is one of its grid values
     best = {c["name"]: c["chosen"]["score"] for c in document["contenders"]}
     assert best["interval"] <= best["fixed-interval"]
+
+
+def test_a_choice_at_the_end_of_its_grid_is_marked(franke_csv, capsys):
+    # Franke's function has peaks about a tenth of the box wide: the fixed interval's gentlest
+    # values cannot follow them: among u = 0.01, 0.02, 0.05 the largest wins (measured), the end.
+    report = franke_csv.parent / "edge.json"
+    assert run("compare", franke_csv, "--target", "f", "--method", "interval", "--intervals",
+               "0.01,0.02,0.05", "--nodes", "30", "--folds", 3, "--report", report) == 0
+    (contender,) = json.loads(report.read_text())["contenders"]
+    assert contender["chosen"]["settings"]["interval"] == 0.05
+    assert contender["at_grid_end"] == ["interval"]
+    out = capsys.readouterr().out
+    assert "interval=0.05 ridge=" in out and "at the end of its grid" in out
