@@ -14,6 +14,7 @@ from pathlib import Path
 
 import click
 
+from nodecast.compiler.cli_compare import compare as compare_command
 from nodecast.compiler.cli_score import score as score_command
 from nodecast.compiler.cli_select import select as select_command
 from nodecast.compiler.errors import NodecastError
@@ -104,15 +105,22 @@ def cli():
 @click.option("--features", help="Feature columns (default: every other column).")
 @click.option("--domain", help="Declared input domain, NAME=LO:HI,.. (default: the data's range).")
 @click.option("--units", help="Units, NAME=UNIT,.. for features and targets.")
-@click.option("--method", type=click.Choice(["data-driven", "interval", "domain-anchored"]),
+@click.option("--method", type=click.Choice(["data-driven", "interval", "domain-anchored",
+                                            "slope-angle", "weight-sum"]),
               default="data-driven", show_default=True, help="Hidden-node generator.")
 @click.option("--nodes", type=click.IntRange(min=1), default=200, show_default=True,
               help="Hidden nodes M.")
-@click.option("--neighbors", type=click.IntRange(min=1), help="Neighbours k (default max(10, 2(n+1))).")
-@click.option("--slope-scale", type=click.FloatRange(min=0, min_open=True), default=1.0,
-              show_default=True, help="Slope-scale factor s of the data-driven nodes.")
+@click.option("--neighbors", default="auto", show_default=True,
+              help="Neighbours k of the data-driven nodes: a count, 'default' (max(10, 2(n+1))) or "
+                   "'auto' (chosen with the slope scale by generalized cross-validation).")
+@click.option("--slope-scale", default="auto", show_default=True,
+              help="Slope-scale factor s of the data-driven nodes, a positive number or 'auto'.")
 @click.option("--interval", type=click.FloatRange(min=0, min_open=True), default=1.0,
-              show_default=True, help="u of the U(-u, u) draws of the baseline generators.")
+              show_default=True, help="u of the U(-u, u) weights of interval and domain-anchored.")
+@click.option("--angle-range", default="0:70", show_default=True,
+              help="slope-angle: range LO:HI of the slope angles in degrees.")
+@click.option("--weight-sum", default="2:10", show_default=True,
+              help="weight-sum: range R:S of each node's sum of weight magnitudes.")
 @click.option("--ridge", default="auto", show_default=True,
               help="Ridge lambda on the output weights, a number >= 0 (0: minimum-norm least "
                    "squares) or 'auto' (generalized cross-validation, float32-safe; see "
@@ -128,7 +136,8 @@ def cli():
 @click.option("-o", "--output", required=True, type=click.Path(dir_okay=False), help="Bundle (.ncz).")
 @click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
 def train(data, target, features, domain, units, method, nodes, neighbors, slope_scale, interval,
-          ridge, activation, task, seed, validation_fraction, output, overwrite):
+          angle_range, weight_sum, ridge, activation, task, seed, validation_fraction, output,
+          overwrite):
     """Train a network on DATA.csv and save it as a bundle."""
     from nodecast.compiler.bundle import save
     from nodecast.compiler.csvio import read_table
@@ -142,11 +151,54 @@ def train(data, target, features, domain, units, method, nodes, neighbors, slope
         targets=parse_list(target, option="--target"), features=parse_list(features, option="--features"),
         task=task, domain=parse_domain(domain), units=parse_units(units), seed=seed,
         validation_fraction=validation_fraction,
-        params=dict(n_nodes=nodes, method=method, n_neighbors=neighbors, slope_scale=slope_scale,
-                    interval=interval, ridge=parse_ridge(ridge), activation=activation))
+        params=dict(n_nodes=nodes, method=method, n_neighbors=_parse_neighbors(neighbors),
+                    slope_scale=_parse_slope_scale(slope_scale), interval=interval,
+                    angle_range=_parse_range(angle_range, "--angle-range"),
+                    weight_sum=_parse_range(weight_sum, "--weight-sum"),
+                    ridge=parse_ridge(ridge), activation=activation))
     bundle = run_training(read_table(data), job)
     save(bundle, output, overwrite=overwrite)
-    click.echo(f"wrote {output} (bundle {bundle.bundle_id[:12]}); {_metrics_line(bundle)}", err=True)
+    click.echo(f"wrote {output} (bundle {bundle.bundle_id[:12]}); {_choice_line(bundle)}"
+               f"{_metrics_line(bundle)}", err=True)
+
+
+def _parse_neighbors(text: str):
+    if text in ("auto", "default"):
+        return None if text == "default" else "auto"
+    if text.isdigit() and int(text) >= 1:
+        return int(text)
+    raise NodecastError(f"--neighbors takes a positive integer, 'default' or 'auto', got {text!r}")
+
+
+def _parse_slope_scale(text: str):
+    if text == "auto":
+        return "auto"
+    try:
+        value = float(text)
+    except ValueError:
+        value = float("nan")
+    if not (0 < value < float("inf")):
+        raise NodecastError(f"--slope-scale takes a finite positive number or 'auto', got {text!r}")
+    return value
+
+
+def _parse_range(text: str, option: str) -> tuple[float, float]:
+    from nodecast.compiler.cli_grid import parse_pair
+
+    try:
+        return parse_pair(text)
+    except ValueError:
+        raise NodecastError(f"{option} takes LO:HI (two numbers), got {text!r}") from None
+
+
+def _choice_line(bundle) -> str:
+    """What the default search picked (train without --neighbors/--slope-scale)."""
+    choice = bundle.metadata.get("layer_choice")
+    if not choice:
+        return ""
+    k = bundle.metadata.get("diagnostics", {}).get("neighbors", choice["neighbors"])
+    return (f"chose neighbors={k} slope_scale={choice['slope_scale']:g} by "
+            f"generalized cross-validation over {len(choice['candidates'])} candidates; ")
 
 
 def _metrics_line(bundle) -> str:
@@ -343,6 +395,7 @@ def demo(output, data_only):
 
 cli.add_command(score_command)
 cli.add_command(select_command)
+cli.add_command(compare_command)
 
 
 def _stop_on_sigterm(signum, frame) -> None:

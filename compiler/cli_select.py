@@ -1,4 +1,5 @@
-"""``nodecast select``: choose M, k, s and lambda by k-fold cross-validation and save the refit.
+"""``nodecast select``: choose M, the generator and its settings (data-driven: k and s) and lambda
+by k-fold cross-validation and save the refit.
 
 Parsing and printing only; the search is :mod:`nodecast.trainer.selection`, the final fit is
 :func:`nodecast.trainer.training.train` itself, so ``nodecast train`` with the chosen options and
@@ -12,6 +13,7 @@ import sys
 
 import click
 
+from nodecast.compiler.cli_grid import grid_options, layer_values, parse_methods
 from nodecast.compiler.errors import NodecastError
 
 EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,250 "
@@ -26,10 +28,11 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
 @click.option("--domain", help="Declared input domain, NAME=LO:HI,.. (default: the range of the "
                                "rows fitted, each fold's own training rows in the search).")
 @click.option("--units", help="Units, NAME=UNIT,.. for features and targets.")
+@click.option("--method", default="data-driven", show_default=True,
+              help="Hidden-node generator(s) to search, comma-separated: data-driven, interval, "
+                   "domain-anchored, slope-angle, weight-sum.")
 @click.option("--nodes", default="50,100,250", show_default=True, help="Hidden nodes M to try.")
-@click.option("--neighbors", default="default", show_default=True,
-              help="Neighbours k to try; 'default' is max(10, 2(n+1)).")
-@click.option("--slope-scales", default="1", show_default=True, help="Slope scales s to try.")
+@grid_options
 @click.option("--ridge", default="0,1e-6", show_default=True,
               help="Ridge values lambda to try (0: minimum-norm least squares).")
 @click.option("--folds", type=click.IntRange(min=2), default=10, show_default=True,
@@ -44,7 +47,8 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
               help="With --precision: reject grid points whose estimated export error exceeds "
                    "this (target units); exit 2 when none meets it.")
 @click.option("--grow", is_flag=True, help="Grow the model in batches of nodes with the chosen "
-                                           "k, s and lambda, keeping a batch only if it pays.")
+                                           "generator settings and lambda, keeping a batch only "
+                                           "if it pays.")
 @click.option("--grow-batch", type=click.IntRange(min=1), default=25, show_default=True,
               help="Nodes per batch.")
 @click.option("--grow-threshold", type=click.FloatRange(0, 1), default=0.002, show_default=True,
@@ -57,7 +61,7 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
               show_default=True, help="As for train: share of rows held out for the bundle's "
                                       "validation metrics (the bundle's model uses all rows).")
 @click.option("--jobs", default="auto", show_default=True,
-              help="Parallel (fold, k, s) units, or 'auto' (every core for large searches); the "
+              help="Parallel (fold, layer) units, or 'auto' (every core for large searches); the "
                    "result is the same for any value.")
 @click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
               help="Bundle (.ncz).")
@@ -65,16 +69,18 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
 @click.option("--plot", type=click.Path(dir_okay=False),
               help="Plot the CV error against M per k as PNG (needs matplotlib).")
 @click.option("--overwrite", is_flag=True, help="Replace existing output files.")
-def select(data, target, features, domain, units, nodes, neighbors, slope_scales, ridge, folds,
-           activation, seed, precision, tolerance, grow, grow_batch, grow_threshold, grow_patience,
-           grow_pool, validation_fraction, jobs, output, report, plot, overwrite):
-    """Choose nodes, neighbours, slope scale and ridge by k-fold cross-validation on DATA.csv,
-    refit the choice on all rows and save it as a bundle."""
+def select(data, target, features, domain, units, method, nodes, neighbors, slope_scales,
+           intervals, angle_ranges, weight_sums, ridge, folds, activation, seed, precision,
+           tolerance, grow, grow_batch, grow_threshold, grow_patience, grow_pool,
+           validation_fraction, jobs, output, report, plot, overwrite):
+    """Choose nodes, the generator and its settings, and ridge by k-fold cross-validation on
+    DATA.csv, refit the choice on all rows and save it as a bundle."""
     from nodecast.compiler.bundle import save
     from nodecast.compiler.cli import parse_domain, parse_list, parse_units
     from nodecast.compiler.csvio import read_table
     from nodecast.trainer.grid import make_grid
     from nodecast.trainer.growth import GrowthSettings
+    from nodecast.trainer.method_grid import layer_grid
     from nodecast.trainer.selection import SearchSettings
     from nodecast.trainer.table_selection import run_selection
     from nodecast.trainer.training import TrainingJob
@@ -86,9 +92,9 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
         features=parse_list(features, option="--features"),
         domain=parse_domain(domain), units=parse_units(units), seed=seed,
         validation_fraction=validation_fraction)
-    grid = make_grid(parse_list(nodes, int, "--nodes"), _neighbors(parse_list(neighbors)),
-                     parse_list(slope_scales, float, "--slope-scales"),
-                     parse_list(ridge, float, "--ridge"))
+    layers = layer_grid(parse_methods(method), layer_values(neighbors, slope_scales, intervals,
+                                                            angle_ranges, weight_sums))
+    grid = make_grid(parse_list(nodes, int, "--nodes"), parse_list(ridge, float, "--ridge"), layers)
     settings = SearchSettings(folds, seed, activation, precision, tolerance, _jobs(jobs))
     growth = GrowthSettings(grow_batch, grow_threshold, grow_patience,
                             grow_pool or 2 * max(grid.nodes)) if grow else None
@@ -111,22 +117,12 @@ def _jobs(text: str) -> int | None:
     raise NodecastError(f"--jobs takes a positive integer or 'auto', got {text!r}")
 
 
-def _neighbors(items) -> list:
-    values = []
-    for item in items:
-        try:
-            values.append(None if item == "default" else int(item))
-        except ValueError:
-            raise NodecastError(f"--neighbors takes integers or 'default', got {item!r}") from None
-    return values
-
-
 def _progress():
     if not sys.stderr.isatty():
         return None
 
     def show(done: int, total: int) -> None:
-        click.echo(f"\rselect: {done}/{total} (fold, k, s) units", nl=done == total, err=True)
+        click.echo(f"\rselect: {done}/{total} (fold, layer) units", nl=done == total, err=True)
 
     return show
 

@@ -62,7 +62,7 @@ def test_data_driven_node_has_inflection_and_local_slope_at_its_anchor():
 
     X, y = make_friedman1(400, n_features=5, noise=0.5, random_state=1)
     k = 15
-    model = RandomNodeRegressor(n_nodes=40, n_neighbors=k, random_state=2).fit(X, y)
+    model = RandomNodeRegressor(n_nodes=40, n_neighbors=k, slope_scale=1.0, random_state=2).fit(X, y)
     U = (X - model.input_offset_) / model.input_scale_
     T = (y - model.output_offset_[0]) / model.output_scale_[0]
     anchors, residual = _nodes_at_training_points(U, model.hidden_weights_, model.hidden_biases_)

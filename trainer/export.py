@@ -46,6 +46,8 @@ def to_bundle(estimator, feature_names: Sequence[str] | None = None,
     if hasattr(estimator, "ridge_"):
         record["ridge"] = {**_plain_record(getattr(estimator, "ridge_choice_", {})),
                            "value": float(estimator.ridge_)}
+    if getattr(estimator, "layer_choice_", {"rule": "given"}).get("rule") != "given":
+        record["layer_choice"] = _plain_record(estimator.layer_choice_)
     record.update(metadata or {})
     return Bundle(network=network, metadata=record)
 
@@ -71,6 +73,8 @@ def _plain(value):
         return value.item()
     if isinstance(value, (np.ndarray, tuple, list)):
         return [_plain(v) for v in value]
+    if isinstance(value, dict):
+        return _plain_record(value)
     if value is None or isinstance(value, (bool, int, float, str)):
         return value
     return repr(value)

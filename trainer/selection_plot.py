@@ -1,9 +1,10 @@
-"""``--plot``: the cross-validated error against M, one line per k, the chosen point marked.
+"""``--plot``: the cross-validated error against M, one line per data-driven k and per other
+generator, the chosen point marked.
 
-Each line shows, for one neighbour count k, the best mean CV RMSE over the slope scales and ridge
-values at every M (among the points within the precision budget, when there is one), with the
-spread over folds as a band; a second panel shows the growth curve when there is one. matplotlib
-is an optional extra (``pip install 'nodecast[plot]'``).
+Each line shows, for one neighbour count k (or one other generator), the best mean CV RMSE over the
+other settings and ridge values at every M (among the points within the precision budget, when
+there is one), with the spread over folds as a band; a second panel shows the growth curve when
+there is one. matplotlib is an optional extra (``pip install 'nodecast[plot]'``).
 """
 
 from __future__ import annotations
@@ -24,17 +25,24 @@ def _pyplot():
     return plt
 
 
+def line_label(point) -> str:
+    """The line a point belongs to: one per data-driven k, one per other generator."""
+    if point.method == "data-driven":
+        return f"data-driven, k = {point.neighbors if point.neighbors else 'default'}"
+    return point.method
+
+
 def best_per_k(points) -> dict:
-    """For each k: list of (M, mean RMSE, std RMSE) of the best (s, lambda) at that M among the
-    points within the precision budget, first target."""
+    """For each line (:func:`line_label`): list of (M, mean RMSE, std RMSE) of the best remaining
+    settings and lambda at that M among the points within the precision budget, first target."""
     best: dict = {}
     for p in (p for p in points if p.meets_budget):
-        key = (p.neighbors, p.nodes)
+        key = (p.method, p.neighbors or 0, line_label(p), p.nodes)
         if key not in best or p.rank_key() < best[key].rank_key():
             best[key] = p
     lines: dict = {}
-    for (k, m), p in sorted(best.items(), key=lambda item: (item[0][0] or 0, item[0][1])):
-        lines.setdefault(k, []).append((m, p.rmse_mean[0], p.rmse_std[0]))
+    for key, p in sorted(best.items(), key=lambda item: item[0]):
+        lines.setdefault(key[2], []).append((p.nodes, p.rmse_mean[0], p.rmse_std[0]))
     return lines
 
 
@@ -56,9 +64,9 @@ def plot_search(result, path, overwrite: bool = False) -> None:
 
 
 def _grid_panel(ax, result) -> None:
-    for k, line in best_per_k(result.points).items():
+    for label, line in best_per_k(result.points).items():
         m, mean, std = (list(column) for column in zip(*line, strict=True))
-        ax.plot(m, mean, marker="o", label=f"k = {k if k else 'default'}")
+        ax.plot(m, mean, marker="o", label=label)
         ax.fill_between(m, [a - b for a, b in zip(mean, std, strict=True)],
                         [a + b for a, b in zip(mean, std, strict=True)], alpha=0.15)
     chosen = result.chosen
@@ -70,7 +78,8 @@ def _grid_panel(ax, result) -> None:
     ax.set_xlabel("hidden nodes M")
     ax.set_ylabel(f"{result.settings.folds}-fold CV RMSE (target units)")
     within = " within the budget" if result.settings.tolerance is not None else ""
-    ax.set_title(f"validation error against M (best slope scale and ridge{within})", fontsize=10)
+    ax.set_title(f"validation error against M (best other settings and ridge{within})",
+                 fontsize=10)
     ax.legend(fontsize=7)
     ax.grid(True, alpha=0.3)
 

@@ -32,8 +32,8 @@ def run_selection(table, job, grid, settings, growth=None, progress=None):
     GrowthSettings or None.
     """
     features = training.feature_columns(table.header, job)
-    X, Y = _finite(table, features, "feature"), _finite(table, job.targets, "target")
-    declared = _declared(job, features)
+    X, Y = finite_columns(table, features, "feature"), finite_columns(table, job.targets, "target")
+    declared = declared_box(job, features)
     points, diagnostics = run_search(X, Y, grid, settings, declared, progress)
     if growth is not None:
         result, bundle = _grown(X, Y, features, job, points, grid, settings, declared, growth)
@@ -50,12 +50,10 @@ def run_selection(table, job, grid, settings, growth=None, progress=None):
 
 def train_options(point, settings) -> dict:
     """The ``nodecast train`` options (TrainingJob.params) of a grid point."""
-    return dict(n_nodes=point.nodes, method="data-driven", n_neighbors=point.neighbors,
-                slope_scale=point.slope_scale, interval=1.0, ridge=point.ridge,
-                activation=settings.activation)
+    return {**point.params, "activation": settings.activation}
 
 
-def _finite(table, names, what: str) -> np.ndarray:
+def finite_columns(table, names, what: str) -> np.ndarray:
     values = table.numbers(names)
     bad = np.argwhere(~np.isfinite(values))
     if bad.size:
@@ -65,7 +63,7 @@ def _finite(table, names, what: str) -> np.ndarray:
     return values
 
 
-def _declared(job, features):
+def declared_box(job, features):
     unknown = sorted(set(job.domain) - set(features))
     if unknown:
         raise NodecastError(f"--domain names unknown feature(s): {', '.join(map(repr, unknown))}")
