@@ -213,8 +213,9 @@ def check(bundle, artifact, data=None, **options) -> dict:
         bundle = load(bundle)
     if isinstance(data, (str, os.PathLike)):
         from nodecast.compiler.csvio import read_table
+        from nodecast.compiler.levels import table_rows
 
-        data = read_table(data).numbers(bundle.network.feature_names)
+        data = table_rows(read_table(data), bundle.network)
     report = verify(bundle, artifact, data, **options)
     if not report.passed:
         raise AssertionError(f"{artifact} does not compute bundle {bundle.bundle_id[:12]}:\n"
