@@ -26,6 +26,8 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
 @click.option("--domain", help="Declared input domain, NAME=LO:HI,.. (default: the range of the "
                                "rows fitted, each fold's own training rows in the search).")
 @click.option("--units", help="Units, NAME=UNIT,.. for features and targets.")
+@click.option("--categorical", help="Categorical feature columns, comma-separated (levels read from "
+                                    "the data; see docs/training.md).")
 @click.option("--nodes", default="50,100,250", show_default=True, help="Hidden nodes M to try.")
 @click.option("--neighbors", default="default", show_default=True,
               help="Neighbours k to try; 'default' is max(10, 2(n+1)).")
@@ -65,7 +67,7 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
 @click.option("--plot", type=click.Path(dir_okay=False),
               help="Plot the CV error against M per k as PNG (needs matplotlib).")
 @click.option("--overwrite", is_flag=True, help="Replace existing output files.")
-def select(data, target, features, domain, units, nodes, neighbors, slope_scales, ridge, folds,
+def select(data, target, features, domain, units, categorical, nodes, neighbors, slope_scales, ridge, folds,
            activation, seed, precision, tolerance, grow, grow_batch, grow_threshold, grow_patience,
            grow_pool, validation_fraction, jobs, output, report, plot, overwrite):
     """Choose nodes, neighbours, slope scale and ridge by k-fold cross-validation on DATA.csv,
@@ -85,7 +87,8 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
         targets=parse_list(target, option="--target"),
         features=parse_list(features, option="--features"),
         domain=parse_domain(domain), units=parse_units(units), seed=seed,
-        validation_fraction=validation_fraction)
+        validation_fraction=validation_fraction,
+        categorical=parse_list(categorical, option="--categorical"))
     grid = make_grid(parse_list(nodes, int, "--nodes"), _neighbors(parse_list(neighbors)),
                      parse_list(slope_scales, float, "--slope-scales"),
                      parse_list(ridge, float, "--ridge"))

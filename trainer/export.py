@@ -50,7 +50,14 @@ def to_bundle(obj, feature_names: Sequence[str] | None = None,
     """
     check_is_fitted(obj)
     names = _raw_names(obj, feature_names)
-    stage = trace(obj, names, _is_estimator)
+    return stage_to_bundle(trace(obj, names, _is_estimator), names, target_names, feature_units,
+                           target_units, domain, metadata)
+
+
+def stage_to_bundle(stage: InputStage, names: tuple[str, ...], target_names=None, feature_units=(),
+                    target_units=(), domain=None, metadata=None) -> Bundle:
+    """The bundle of a traced input stage (see :func:`to_bundle`); ``names`` are the raw columns
+    in their order."""
     estimator = stage.estimator
     check_is_fitted(estimator)
     if len(stage.columns) != estimator.n_features_in_:
@@ -117,26 +124,55 @@ def _raw_names(obj, feature_names) -> tuple[str, ...]:
 
 
 def _folded_inputs(stage: InputStage, names: tuple[str, ...]) -> dict:
-    """The IR's input-stage fields: numeric raw features in their order among ``names``."""
+    """The IR's input-stage fields: numeric raw features, then categorical ones, each in their
+    order among ``names``."""
     est, columns = stage.estimator, stage.columns
     numeric = sorted((j for j, column in enumerate(columns) if column.level is None),
                      key=lambda j: names.index(columns[j].source))
-    if len(numeric) != len(columns):
-        raise NodecastError("one-hot encoded (categorical) inputs are not supported by this export")
     sources = [columns[j].source for j in numeric]
+    both = sorted(set(sources) & set(stage.categories))
+    if both:
+        raise NodecastError(f"raw column {both[0]!r} is both a number and one-hot encoded; "
+                            "nodecast folds each raw column into one input")
     repeated = sorted({s for s in sources if sources.count(s) > 1})
-    if repeated:
+    if repeated and len(stage.steps) > 1:  # a Pipeline's doing; else the names repeat (IR refuses)
         raise NodecastError(f"raw column {repeated[0]!r} feeds more than one estimator input; "
                             "nodecast folds each raw column into one input")
     mult = np.array([columns[j].mult for j in numeric])
     add = np.array([columns[j].add for j in numeric])
     low = (est.domain_low_[numeric] - add) / mult
     high = (est.domain_high_[numeric] - add) / mult
+    biases, categorical = _folded_levels(stage, names)
     return {"feature_names": tuple(sources), "hidden_weights": est.hidden_weights_[:, numeric],
-            "hidden_biases": est.hidden_biases_,
+            "hidden_biases": biases, **categorical,
             "input_offset": (est.input_offset_[numeric] - add) / mult,
             "input_scale": est.input_scale_[numeric] / mult,
             "domain_low": np.minimum(low, high), "domain_high": np.maximum(low, high)}
+
+
+def _folded_levels(stage: InputStage, names: tuple[str, ...]) -> tuple[np.ndarray, dict]:
+    """Hidden biases and the categorical fields: the estimator column j of level l, reaching it as
+    ``e * mult + add`` (e the level's 0/1 indicator) and normalised by ``(. - offset) / scale``,
+    adds ``a_j * mult / scale`` to level l's vector and ``a_j * (add - offset) / scale`` to the
+    biases (nothing at all when mult = scale = 1 and add = offset = 0, the usual case)."""
+    est = stage.estimator
+    biases = np.array(est.hidden_biases_, dtype=np.float64)
+    order = sorted(stage.categories, key=names.index)
+    if not order:
+        return biases, {}
+    rows = {(source, level): k for k, (source, level) in enumerate(
+        (source, level) for source in order for level in stage.categories[source])}
+    vectors = np.zeros((len(rows), biases.size))
+    for j, column in enumerate(stage.columns):
+        if column.level is None:
+            continue
+        weights = est.hidden_weights_[:, j]
+        offset, scale = est.input_offset_[j], est.input_scale_[j]
+        vectors[rows[column.source, column.level]] += weights * (column.mult / scale)
+        if column.add != offset:
+            biases += weights * ((column.add - offset) / scale)
+    return biases, {"categorical_names": tuple(order), "level_weights": vectors,
+                    "categorical_levels": tuple(stage.categories[source] for source in order)}
 
 
 def _declared_domain(inputs: dict, domain) -> tuple[np.ndarray, np.ndarray]:

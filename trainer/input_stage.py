@@ -16,6 +16,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from nodecast.compiler.errors import NodecastError
+from nodecast.compiler.levels import level_text
 
 SUPPORTED = ("StandardScaler, MinMaxScaler, MaxAbsScaler, OneHotEncoder, ColumnTransformer, nested "
              "Pipeline, 'passthrough' and 'drop', then a RandomNodeRegressor or "
@@ -50,19 +51,6 @@ def refuse(name: str, step, why: str = "") -> NodecastError:
     reason = f" ({why})" if why else ""
     return NodecastError(f"cannot export step {name!r} ({type(step).__name__}){reason}; nodecast "
                          f"compiles {SUPPORTED}")
-
-
-def level_text(value) -> str:
-    """The text of a categorical level: integral numbers without a fraction ("2", not "2.0"), other
-    numbers as Python's shortest round-trip ``repr``, text as it is."""
-    if isinstance(value, (bool, np.bool_)):
-        return str(bool(value))
-    if isinstance(value, (int, np.integer)):
-        return str(int(value))
-    if isinstance(value, (float, np.floating)):
-        number = float(value)
-        return str(int(number)) if number.is_integer() and abs(number) < 2**53 else repr(number)
-    return str(value)
 
 
 def trace(obj, names: tuple[str, ...], is_estimator) -> InputStage:
