@@ -180,9 +180,10 @@ class Network:
         taken = set(self.feature_names)
         for name, group in zip(names, levels, strict=True):
             for value in (name, *group):
-                if "\x00" in value or not value.isprintable() and value.strip() == "":
-                    raise NodecastError(f"categorical entry {value!r} holds a NUL character or "
-                                        "is blank")
+                if "\x00" in value or value == "" or value.strip() != value:
+                    raise NodecastError(f"categorical entry {value!r} is empty, holds a NUL "
+                                        "character or starts or ends with white space (CSV "
+                                        "cells are read stripped)")
                 try:
                     value.encode("utf-8")
                 except UnicodeEncodeError:

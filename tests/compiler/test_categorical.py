@@ -283,3 +283,11 @@ int main(void) {
         printed = subprocess.run([str(tmp_path / "c" / "names")], capture_output=True, text=True,
                                  check=True).stdout.split()
         assert printed == [level.encode("utf-8").hex() for level in HOSTILE[:4]]
+
+
+@pytest.mark.parametrize("levels", [("a", "a"), ("a", " b"), ("",), ("a\x00",), ()])
+def test_unusable_levels_are_refused_by_the_ir(synthetic, levels):
+    net = synthetic[1].network
+    weights = np.zeros((len(levels), net.n_nodes))
+    with pytest.raises(NodecastError, match="categorical"):
+        net.replace(categorical_levels=(levels,), level_weights=weights)
