@@ -291,3 +291,14 @@ def test_unusable_levels_are_refused_by_the_ir(synthetic, levels):
     weights = np.zeros((len(levels), net.n_nodes))
     with pytest.raises(NodecastError, match="categorical"):
         net.replace(categorical_levels=(levels,), level_weights=weights)
+
+
+@pytest.mark.slow
+def test_level_tables_run_on_an_emulated_cortex_m4(synthetic, tmp_path):
+    if shutil.which("arm-none-eabi-gcc") is None or shutil.which("qemu-system-arm") is None:
+        pytest.skip("needs arm-none-eabi-gcc and qemu-system-arm")
+    emit(synthetic[1], "c", tmp_path / "c", precision="float32", out_of_domain="reject")
+    report = verify(synthetic[1], tmp_path / "c", None, count=64, emulate="cortex-m4").as_dict()
+    assert report["passed"], report["notes"]
+    unknown = [f for f in report["families"] if f["family"] == "unknown-level"][0]
+    assert unknown["rejected"] == unknown["count"] > 0
