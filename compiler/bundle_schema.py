@@ -33,7 +33,12 @@ def _check_text_record(network: Any, text_fields) -> str | None:
             return f"network field {key!r} is {type(network[key]).__name__}, not text"
     for key in text_fields:
         value = network[key]
-        if not isinstance(value, list) or not all(isinstance(item, str) for item in value):
+        if key == "categorical_levels":  # a list of lists of text, one per categorical input
+            if not isinstance(value, list) or not all(
+                    isinstance(group, list) and all(isinstance(item, str) for item in group)
+                    for group in value):
+                return f"network field {key!r} is not a list of lists of text"
+        elif not isinstance(value, list) or not all(isinstance(item, str) for item in value):
             return f"network field {key!r} is not a list of text"
     return None
 

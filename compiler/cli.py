@@ -105,6 +105,8 @@ def cli():
 @click.option("--features", help="Feature columns (default: every other column).")
 @click.option("--domain", help="Declared input domain, NAME=LO:HI,.. (default: the data's range).")
 @click.option("--units", help="Units, NAME=UNIT,.. for features and targets.")
+@click.option("--categorical", help="Categorical feature columns, comma-separated: each level (read "
+                                    "from the data) gets its own contribution to every node.")
 @click.option("--method", type=click.Choice(["data-driven", "interval", "domain-anchored",
                                             "slope-angle", "weight-sum"]),
               default="data-driven", show_default=True, help="Hidden-node generator.")
@@ -135,9 +137,9 @@ def cli():
                    "is fitted on all rows).")
 @click.option("-o", "--output", required=True, type=click.Path(dir_okay=False), help="Bundle (.ncz).")
 @click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
-def train(data, target, features, domain, units, method, nodes, neighbors, slope_scale, interval,
-          angle_range, weight_sum, ridge, activation, task, seed, validation_fraction, output,
-          overwrite):
+def train(data, target, features, domain, units, categorical, method, nodes, neighbors, slope_scale,
+          interval, angle_range, weight_sum, ridge, activation, task, seed, validation_fraction,
+          output, overwrite):
     """Train a network on DATA.csv and save it as a bundle."""
     from nodecast.compiler.bundle import save
     from nodecast.compiler.csvio import read_table
@@ -151,6 +153,7 @@ def train(data, target, features, domain, units, method, nodes, neighbors, slope
         targets=parse_list(target, option="--target"), features=parse_list(features, option="--features"),
         task=task, domain=parse_domain(domain), units=parse_units(units), seed=seed,
         validation_fraction=validation_fraction,
+        categorical=parse_list(categorical, option="--categorical"),
         params=dict(n_nodes=nodes, method=method, n_neighbors=_parse_neighbors(neighbors),
                     slope_scale=_parse_slope_scale(slope_scale), interval=interval,
                     angle_range=_parse_range(angle_range, "--angle-range"),
@@ -226,9 +229,10 @@ def predict(model, data, output, scores, overwrite):
     from nodecast.compiler import reference
     from nodecast.compiler.csvio import read_table, write_table
     from nodecast.compiler.files import write_atomic
+    from nodecast.compiler.levels import table_rows
 
     net = load_bundle(model).network
-    X = read_table(data).numbers(net.feature_names, allow_nonfinite=True)
+    X = table_rows(read_table(data), net, allow_nonfinite=True)
     with np.errstate(over="ignore", invalid="ignore"):  # IEEE 754 results: docs/reliability.md
         Y = reference.predict(net, X)
     if net.task == "classification":
@@ -356,12 +360,13 @@ def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, junit,
     """
     from nodecast.compiler.csvio import read_table
     from nodecast.compiler.files import write_atomic
+    from nodecast.compiler.levels import table_rows
     from nodecast.compiler.verify import format_table
     from nodecast.compiler.verify import verify as run_verify
     from nodecast.compiler.verify.report import to_json, verify_junit
 
     bundle = load_bundle(model)
-    rows = read_table(data).numbers(bundle.network.feature_names) if data else None
+    rows = table_rows(read_table(data), bundle.network) if data else None
     run_options = {"emulate": emulate} if emulate else {}
     result = run_verify(bundle, artifact, rows, probes, seed, abs_tol, rel_tol, **run_options)
     click.echo(format_table(result))

@@ -28,6 +28,8 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
 @click.option("--domain", help="Declared input domain, NAME=LO:HI,.. (default: the range of the "
                                "rows fitted, each fold's own training rows in the search).")
 @click.option("--units", help="Units, NAME=UNIT,.. for features and targets.")
+@click.option("--categorical", help="Categorical feature columns, comma-separated (levels read from "
+                                    "the data; see docs/training.md).")
 @click.option("--method", default="data-driven", show_default=True,
               help="Hidden-node generator(s) to search, comma-separated: data-driven, interval, "
                    "domain-anchored, slope-angle, weight-sum.")
@@ -69,9 +71,9 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
 @click.option("--plot", type=click.Path(dir_okay=False),
               help="Plot the CV error against M per k as PNG (needs matplotlib).")
 @click.option("--overwrite", is_flag=True, help="Replace existing output files.")
-def select(data, target, features, domain, units, method, nodes, neighbors, slope_scales,
-           intervals, angle_ranges, weight_sums, ridge, folds, activation, seed, precision,
-           tolerance, grow, grow_batch, grow_threshold, grow_patience, grow_pool,
+def select(data, target, features, domain, units, categorical, method, nodes, neighbors,
+           slope_scales, intervals, angle_ranges, weight_sums, ridge, folds, activation, seed,
+           precision, tolerance, grow, grow_batch, grow_threshold, grow_patience, grow_pool,
            validation_fraction, jobs, output, report, plot, overwrite):
     """Choose nodes, the generator and its settings, and ridge by k-fold cross-validation on
     DATA.csv, refit the choice on all rows and save it as a bundle."""
@@ -91,7 +93,8 @@ def select(data, target, features, domain, units, method, nodes, neighbors, slop
         targets=parse_list(target, option="--target"),
         features=parse_list(features, option="--features"),
         domain=parse_domain(domain), units=parse_units(units), seed=seed,
-        validation_fraction=validation_fraction)
+        validation_fraction=validation_fraction,
+        categorical=parse_list(categorical, option="--categorical"))
     layers = layer_grid(parse_methods(method), layer_values(neighbors, slope_scales, intervals,
                                                             angle_ranges, weight_sums))
     grid = make_grid(parse_list(nodes, int, "--nodes"), parse_list(ridge, float, "--ridge"), layers)

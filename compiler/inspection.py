@@ -27,9 +27,14 @@ def node_ranges(bundle) -> dict:
     many nodes stay saturated (nearly constant) across the whole box."""
     net = bundle.network
     weights = net.hidden_weights / net.input_scale
-    centre = hidden_layer(net, (0.5 * (net.domain_low + net.domain_high))[None, :])[0]
+    middle = (0.5 * (net.domain_low + net.domain_high))[None, :]
+    centre = hidden_layer(net.replace(categorical_names=(), categorical_levels=(),
+                                      level_weights=None), middle)[0]
     radius = np.abs(weights) @ (0.5 * (net.domain_high - net.domain_low))
     low, high = centre - radius, centre + radius
+    for c, group in enumerate(net.categorical_levels):  # every level of every categorical input
+        vectors = net.level_weights[net.level_start(c) : net.level_start(c) + len(group)]
+        low, high = low + vectors.min(axis=0), high + vectors.max(axis=0)
     saturated = saturated_nodes(net.activation, low, high)
     return {"z_low": low.tolist(), "z_high": high.tolist(), "saturated": int(saturated.sum()),
             "saturated_threshold": SATURATION}
@@ -62,11 +67,13 @@ def describe_bundle(bundle, precision: str | None = None) -> dict:
         "features": [{"name": name, "unit": unit, "domain": [float(lo), float(hi)]}
                      for name, unit, lo, hi in zip(net.feature_names, net.feature_units,
                                                    net.domain_low, net.domain_high, strict=True)],
+        "categorical": [{"name": name, "levels": list(group)} for name, group in
+                        zip(net.categorical_names, net.categorical_levels, strict=True)],
         "targets": [{"name": name, "unit": unit}
                     for name, unit in zip(net.target_names, net.target_units, strict=True)],
         "class_labels": list(net.class_labels), "nodes": net.n_nodes,
         "parameters": int(net.hidden_weights.size + net.hidden_biases.size + net.output_weights.size
-                          + net.output_bias.size),
+                          + net.output_bias.size + net.level_weights.size),
         "max_abs_output_weight": float(np.max(np.abs(net.output_weights * net.output_scale))),
         "saturated_nodes_on_domain": ranges["saturated"],
         "saturated_nodes_on_training_data": None if training is None else training["saturated"],
@@ -111,6 +118,9 @@ def format_description(d: dict) -> str:
     for f in d["features"]:
         lines.append(f"  {json.dumps(f['name'])} [{f['unit']}] domain {f['domain'][0]!r} .. "
                      f"{f['domain'][1]!r}")
+    for c in d["categorical"]:
+        lines.append(f"  {json.dumps(c['name'])} categorical, levels (code: text) "
+                     + ", ".join(f"{k}: {json.dumps(level)}" for k, level in enumerate(c["levels"])))
     lines.append("outputs: " + ", ".join(json.dumps(t["name"]) for t in d["targets"]))
     metrics = d["metadata"].get("metrics", {})
     for split, values in sorted(metrics.items()):

@@ -8,8 +8,10 @@ import numpy as np
 
 from nodecast.compiler.bundle import Bundle
 from nodecast.compiler.errors import NodecastError
+from nodecast.trainer.categorical import design, split_features
 from nodecast.trainer.estimators import RandomNodeClassifier, RandomNodeRegressor
-from nodecast.trainer.export import to_bundle
+from nodecast.trainer.export import stage_to_bundle
+from nodecast.trainer.input_stage import InputStage
 
 
 @dataclass(frozen=True)
@@ -24,6 +26,7 @@ class TrainingJob:
     params: dict = field(default_factory=dict)
     seed: int = 0
     validation_fraction: float = 0.2
+    categorical: tuple[str, ...] = ()
 
 
 def feature_columns(header, job: TrainingJob) -> tuple[str, ...]:
@@ -91,8 +94,9 @@ def make_estimator(job: TrainingJob, low, high):
 def train(table, job: TrainingJob) -> Bundle:
     """Fit on all rows; report validation metrics from a same-settings fit on a held-out split."""
     features = feature_columns(table.header, job)
-    X = table.numbers(features)
-    _check_finite(X, features, "feature")
+    numeric = split_features(features, job.categorical, job.targets)
+    X = table.numbers(numeric)
+    _check_finite(X, numeric, "feature")
     if X.shape[0] < 2:
         raise NodecastError(f"{table.source}: need at least 2 data rows to train, got {X.shape[0]}"
                             + (" (the file has a header only)" if X.shape[0] == 0 else ""))
@@ -106,23 +110,28 @@ def train(table, job: TrainingJob) -> Bundle:
         y = table.numbers(job.targets)
         _check_finite(y, job.targets, "target")
         _check_target_varies(y, job.targets)
-    low, high, outside = _domain(job, features, X)
+    low, high, outside = _domain(job, numeric, X)
+    inputs = design(table, numeric, job.categorical, X, job.params.get("n_neighbors"))
+    low, high = inputs.box(low, high)
     estimator = make_estimator(job, low, high)
     try:
-        estimator.fit(X, y)
+        estimator.fit(inputs.X, y)
     except ValueError as exc:
         raise NodecastError(f"cannot train: {' '.join(str(exc).split())}") from None
-    metrics = {"training": _metrics(estimator, X, y, job.task)}
-    metrics.update(_validation(job, low, high, X, y))
+    metrics = {"training": _metrics(estimator, inputs.X, y, job.task)}
+    metrics.update(_validation(job, low, high, inputs.X, y))
     units = dict(job.units)
     target_names = job.targets if job.task == "regression" else tuple(map(str, estimator.classes_))
-    return to_bundle(
-        estimator, feature_names=features, target_names=target_names,
-        feature_units=[units.get(name, "") for name in features],
-        target_units=[units.get(name, "") for name in target_names],
-        metadata={"seed": job.seed, "metrics": metrics, "rows": int(X.shape[0]),
-                  "rows_outside_domain": outside, "targets": list(job.targets),
-                  "validation_fraction": job.validation_fraction})
+    metadata = {"seed": job.seed, "metrics": metrics, "rows": int(X.shape[0]),
+                "rows_outside_domain": outside, "targets": list(job.targets),
+                "validation_fraction": job.validation_fraction}
+    if job.categorical:
+        metadata["level_spacing"] = inputs.spacing
+    stage = InputStage(estimator, inputs.columns(), inputs.levels, ())
+    return stage_to_bundle(
+        stage, features, target_names=target_names,
+        feature_units={name: units[name] for name in numeric if name in units},
+        target_units=[units.get(name, "") for name in target_names], metadata=metadata)
 
 
 def _validation(job: TrainingJob, low, high, X, y) -> dict:

@@ -19,6 +19,7 @@ from nodecast.compiler.backends.c_fixed import fixed_context
 from nodecast.compiler.backends.c_float import float_context
 from nodecast.compiler.backends.c_format import (
     _with_point,
+    array_rows,
     c_comment,
     c_string,
     check_prefix,
@@ -63,6 +64,9 @@ def render(bundle, precision: str = "float32", prefix: str = "model", out_of_dom
         raise NodecastError(f"--activation-impl is one of {', '.join(ACTIVATION_IMPLS)}, "
                             f"not {impl!r}")
     net = bundle.network
+    if fixed and net.n_categorical:
+        raise NodecastError(f"{precision} artifacts do not take categorical inputs yet; choose "
+                            "float32 or float64")
     make_context = fixed_context if fixed else float_context
     context = make_context(net, precision, impl, table_size)
     if fixed:
@@ -132,6 +136,7 @@ def _common_context(bundle, precision, prefix, policy, impl, estimate, context) 
         "layout_lines": _layout_lines(fixed, upper),
         "return_text": _return_text(fixed, policy, upper),
         "class_names": [c_string(label) for label in net.class_labels],
+        **_level_context(net, context),
     }
 
 
@@ -154,6 +159,22 @@ def _bound_context(net, certificate) -> dict:
             "bound_literals": [_with_point(repr(float(v))) for v in certificate.per_output]}
 
 
+def _level_context(net, context) -> dict:
+    """Categorical inputs: per input its level table (levels x nodes, scaled like the hidden
+    layer) and the header's code listing."""
+    tables = []
+    for c, (name, levels) in enumerate(zip(net.categorical_names, net.categorical_levels,
+                                           strict=True)):
+        start = net.level_start(c)
+        weights = net.level_weights[start : start + len(levels)]
+        tables.append({
+            "count": len(levels), "name": c_comment(name),
+            "rows": array_rows([[context["literal"](v) for v in row] for row in weights]),
+            "codes": [f"{k} = {c_comment(level)}" for k, level in enumerate(levels)],
+            "strings": [c_string(level) for level in levels]})
+    return {"n_categorical": net.n_categorical, "level_tables": tables}
+
+
 def _count(number: int, noun: str) -> str:
     return f"{number} {noun}" + ("" if number == 1 else "s")
 
@@ -171,7 +192,11 @@ def _z_range(net) -> str:
     centre = 0.5 * (net.domain_low + net.domain_high)
     mid = net.hidden_biases + weights @ (centre - net.input_offset)
     radius = np.abs(weights) @ (0.5 * (net.domain_high - net.domain_low))
-    return f"{float(np.min(mid - radius)):.4g} .. {float(np.max(mid + radius)):.4g}"
+    low, high = mid - radius, mid + radius
+    for c, levels in enumerate(net.categorical_levels):  # over every level
+        vectors = net.level_weights[net.level_start(c) : net.level_start(c) + len(levels)]
+        low, high = low + vectors.min(axis=0), high + vectors.max(axis=0)
+    return f"{float(np.min(low)):.4g} .. {float(np.max(high)):.4g}"
 
 
 def _estimate_lines(net, estimate) -> list[str]:

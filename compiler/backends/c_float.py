@@ -84,7 +84,7 @@ def float_context(net, precision: str, impl: str, table_size: int | None) -> dic
         "domain_high": array_body([literal(v) for v in net.domain_high]),
         "input_offset": array_body([literal(v) for v in net.input_offset]),
         "input_scale": array_body([literal(v) for v in net.input_scale]),
-        "tanh_function": "tanhf" if precision == "float32" else "tanh",
+        "tanh_function": "tanhf" if precision == "float32" else "tanh", "literal": literal,
     }
     table = None
     if impl == "rational":
@@ -100,7 +100,8 @@ def float_context(net, precision: str, impl: str, table_size: int | None) -> dic
     real_bytes = 4 if precision == "float32" else 8
     context["scratch_bytes"] = real_bytes * (net.n_features + net.n_nodes + OUTPUT_LANES)
     context["weight_bytes"] = real_bytes * (weights.size + biases.size + out_weights.size
-                                            + out_bias.size + (0 if table is None else table.size))
+                                            + out_bias.size + (0 if table is None else table.size)
+                                            + net.level_weights.size)
     context["activation_error"] = activation_error(impl, precision, context.get("table_size"))
     return context
 

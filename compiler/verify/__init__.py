@@ -107,10 +107,11 @@ def _tolerances(net, path, families, info):
         if family.inside_domain or info["out_of_domain"] != "pass":
             per_family.append(tolerance)
             continue
-        low = np.minimum(net.domain_low, np.nanmin(np.where(np.isfinite(family.X), family.X, np.nan),
+        X = family.X[:, : net.n_features]
+        low = np.minimum(net.domain_low, np.nanmin(np.where(np.isfinite(X), X, np.nan),
                                                    axis=0, initial=np.inf))
-        high = np.maximum(net.domain_high, np.nanmax(np.where(np.isfinite(family.X), family.X,
-                                                              np.nan), axis=0, initial=-np.inf))
+        high = np.maximum(net.domain_high, np.nanmax(np.where(np.isfinite(X), X, np.nan),
+                                                     axis=0, initial=-np.inf))
         per_family.append(certified_tolerance(net, info, low, high))
     return tolerance, per_family
 
@@ -231,8 +232,9 @@ def check(bundle, artifact, data=None, **options) -> dict:
         bundle = load(bundle)
     if isinstance(data, (str, os.PathLike)):
         from nodecast.compiler.csvio import read_table
+        from nodecast.compiler.levels import table_rows
 
-        data = read_table(data).numbers(bundle.network.feature_names)
+        data = table_rows(read_table(data), bundle.network)
     report = verify(bundle, artifact, data, **options)
     if not report.passed:
         raise AssertionError(f"{artifact} does not compute bundle {bundle.bundle_id[:12]}:\n"
