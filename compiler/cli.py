@@ -133,7 +133,7 @@ def train(data, target, features, domain, units, method, nodes, neighbors, slope
     from nodecast.compiler.bundle import save
     from nodecast.compiler.csvio import read_table
     from nodecast.compiler.files import refuse_existing
-    from nodecast.trainer.training import TrainingJob
+    from nodecast.trainer.training import TrainingJob, heavy_tail_note
     from nodecast.trainer.training import train as run_training
 
     refuse_existing(Path(output), overwrite)  # before training, not after minutes of it
@@ -147,6 +147,9 @@ def train(data, target, features, domain, units, method, nodes, neighbors, slope
     bundle = run_training(read_table(data), job)
     save(bundle, output, overwrite=overwrite)
     click.echo(f"wrote {output} (bundle {bundle.bundle_id[:12]}); {_metrics_line(bundle)}", err=True)
+    note = heavy_tail_note(bundle.metadata)
+    if note:
+        click.echo(note, err=True)
 
 
 def _metrics_line(bundle) -> str:

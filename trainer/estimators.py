@@ -95,10 +95,12 @@ class _RandomNodeBase(BaseEstimator):
             slope_scale=float(self.slope_scale), interval=float(self.interval))
         self.hidden_weights_, self.hidden_biases_ = layer.weights, layer.biases
         self.diagnostics_ = {**layer.diagnostics, **self._data_diagnostics(X)}
-        factor, ranges = self._accumulate(U, T, activation)
+        checked = ridge_choice.check_rows(U, rng) if self.ridge == "auto" else None
+        factor, ranges, check = self._accumulate(U, T, activation, checked)
         self.training_z_low_, self.training_z_high_ = ranges.low, ranges.high
         if self.ridge == "auto":
-            self.ridge_, self.ridge_choice_ = ridge_choice.choose(factor, self._float32_error(factor))
+            self.ridge_, self.ridge_choice_ = ridge_choice.choose(
+                factor, self._float32_error(factor), check)
         else:
             self.ridge_, self.ridge_choice_ = float(self.ridge), {"rule": "given"}
         self.coef_, self.intercept_ = solvers.solve(factor, self.ridge_)
@@ -128,15 +130,32 @@ class _RandomNodeBase(BaseEstimator):
         return {"constant_features": int(np.sum(self.domain_high_ == self.domain_low_)),
                 "rows_outside_domain": int(outside.sum())}
 
-    def _accumulate(self, U: np.ndarray, T: np.ndarray, activation):
-        """The output layer's factor over row blocks, and each node's pre-activation range."""
+    def _accumulate(self, U: np.ndarray, T: np.ndarray, activation, checked=None):
+        """The output layer's factor over row blocks, each node's pre-activation range, and (for
+        ``checked`` row indices) the held-out check of the default ridge: the factor of the other
+        rows comes first, the check rows are folded in after it."""
         bounds = block_bounds(U.shape[0], self.hidden_weights_.shape[0])
         ranges = PreactivationRange(self.hidden_weights_.shape[0])
         blocks = design_blocks(U, self.hidden_weights_, self.hidden_biases_, activation, bounds,
                                ranges)
-        factor = solvers.accumulate_designs(
-            (D, T[start:stop]) for (start, stop), D in zip(bounds, blocks, strict=True))
-        return factor, ranges
+        if checked is None:
+            factor = solvers.accumulate_designs(
+                (D, T[start:stop]) for (start, stop), D in zip(bounds, blocks, strict=True))
+            return factor, ranges, None
+        is_check = np.zeros(U.shape[0], dtype=bool)
+        is_check[checked] = True
+        held = []
+
+        def outside_check():
+            for (start, stop), D in zip(bounds, blocks, strict=True):
+                rows = is_check[start:stop]
+                held.append(D[rows])
+                yield D[~rows], T[start:stop][~rows]
+
+        rest = solvers.accumulate_designs(outside_check())
+        check = ridge_choice.HeldOut(rest, np.concatenate(held), T[checked])
+        factor = solvers.accumulate_designs([(check.design, check.targets)], start=rest)
+        return factor, ranges, check
 
     def _target_scaling(self, Y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         return _normaliser(Y.min(axis=0), Y.max(axis=0))

@@ -61,6 +61,7 @@ _CHUNK_ENTRIES = 2**22  # neighbour coordinates per batch of local fits (32 MiB 
 LOCAL_RIDGE = 1e-4  # mu / s_1^2 of the local ridge fits
 SLOPE_LIMIT = 64.0  # longest local slope, normalised target per normalised input
 WIDE_NEIGHBORS = 128  # largest default k
+GLOBAL_ROWS = 20_000  # rows (evenly strided) of the global trend that fills unseen directions
 FALLBACK_SLOPE = 1.0  # length of a flat node's slope, normalised target per normalised input
 
 
@@ -76,16 +77,31 @@ def draw_anchors(n_rows: int, n_nodes: int, rng: np.random.RandomState) -> np.nd
     return np.concatenate(rounds)[:n_nodes]
 
 
-def local_slopes(U, local_targets, neighbours) -> tuple[np.ndarray, dict]:
-    """Ridge slopes c of t(x) = c0 + c.x over each node's neighbours (module docstring), capped.
+def global_slopes(U: np.ndarray, T: np.ndarray) -> np.ndarray:
+    """The linear trend of each target column over all rows (at most ``GLOBAL_ROWS``, evenly
+    strided): ridge slopes with mu = ``LOCAL_RIDGE`` s_1^2, as the local fits; shape (t, q)."""
+    stride = -(-U.shape[0] // GLOBAL_ROWS)
+    inputs, targets = U[::stride] - U[::stride].mean(axis=0), T[::stride] - T[::stride].mean(axis=0)
+    with single_blas_thread():
+        left, sv, right_t = np.linalg.svd(inputs, full_matrices=False)
+    gain = np.divide(sv, sv**2 + LOCAL_RIDGE * sv[0] ** 2, out=np.zeros_like(sv),
+                     where=sv > _RANK_TOLERANCE * sv[0])
+    return (right_t.T @ (gain[:, None] * (left.T @ targets))).T
+
+
+def local_slopes(U, local_targets, neighbours, prior=None) -> tuple[np.ndarray, dict]:
+    """Ridge slopes c of t(x) = c0 + c.x over each node's neighbours, shrunk towards ``prior``
+    (the module docstring), capped.
 
     U : ndarray of shape (N, q), normalised inputs (the varying features only).
     local_targets : ndarray of shape (n_nodes, k), each node's target column at its neighbours.
     neighbours : ndarray of shape (n_nodes, k), row indices.
+    prior : ndarray of shape (n_nodes, q), each node's global slope (None: zero).
     Returns the slopes, ndarray of shape (n_nodes, q), and the counts ``rank_deficient_fits``,
     ``damped_fits`` and ``capped_slopes``.
     """
     (n_nodes, k), q = neighbours.shape, U.shape[1]
+    prior = np.zeros((n_nodes, q)) if prior is None else prior
     slopes = np.empty((n_nodes, q))
     deficient = damped = 0
     chunk = max(1, _CHUNK_ENTRIES // (k * q))
@@ -94,14 +110,15 @@ def local_slopes(U, local_targets, neighbours) -> tuple[np.ndarray, dict]:
         local = U[neighbours[start:stop]]
         local -= local.mean(axis=1, keepdims=True)
         targets = local_targets[start:stop] - local_targets[start:stop].mean(axis=1, keepdims=True)
+        targets -= np.einsum("nkc,nc->nk", local, prior[start:stop])  # what the prior leaves
         with single_blas_thread():
             left, sv, right_t = np.linalg.svd(local, full_matrices=False)
         largest = sv[:, :1]
-        gain = np.divide(sv, sv**2 + LOCAL_RIDGE * largest**2, out=np.zeros_like(sv),
-                         where=sv > _RANK_TOLERANCE * largest)
-        rotated = np.einsum("nkr,nk->nr", left, targets) * gain
-        slopes[start:stop] = np.einsum("nrc,nr->nc", right_t, rotated)
         present = sv > _RANK_TOLERANCE * largest
+        gain = np.divide(sv, sv**2 + LOCAL_RIDGE * largest**2, out=np.zeros_like(sv),
+                         where=present)
+        rotated = np.einsum("nkr,nk->nr", left, targets) * gain
+        slopes[start:stop] = prior[start:stop] + np.einsum("nrc,nr->nc", right_t, rotated)
         deficient += int(np.sum(present.sum(axis=1) < min(k - 1, q)))
         weak = present & (sv < np.sqrt(LOCAL_RIDGE) * largest)
         damped += int(np.sum(weak.any(axis=1)))
@@ -143,7 +160,8 @@ def generate(U, T, n_nodes, rng, activation, *, n_neighbors=None, slope_scale=1.
         tree = cKDTree(V, leafsize=16, compact_nodes=False, balanced_tree=False)
         _, neighbours = tree.query(V[anchors], k=k, workers=-1)
         neighbours = np.asarray(neighbours).reshape(n_nodes, k)
-        fitted, counts = local_slopes(V, T[neighbours, columns[:, None]], neighbours)
+        prior = global_slopes(V, T)[columns]
+        fitted, counts = local_slopes(V, T[neighbours, columns[:, None]], neighbours, prior)
         flat = _replace_flat(fitted, direction_rng)
         slopes[:, varying] = fitted
     weights = slope_scale * slopes / activation.slope_at_inflection
