@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import json
 import sys
+from dataclasses import replace
 
 import click
 
@@ -38,6 +39,11 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
               show_default=True)
 @click.option("--seed", type=int, default=0, show_default=True,
               help="Seeds the folds and every hidden-layer draw (the final model's seed).")
+@click.option("--task", type=click.Choice(["regression", "classification"]), default="regression",
+              show_default=True)
+@click.option("--score", "scoring", type=click.Choice(["accuracy", "log-loss"]),
+              default="accuracy", show_default=True,
+              help="Classification: the cross-validated score that ranks the grid points.")
 @click.option("--precision", type=click.Choice(["float32", "float64", "q31", "q15"]),
               help="Target precision: report the chosen model's estimated export error in it.")
 @click.option("--tolerance", type=click.FloatRange(min=0, min_open=True),
@@ -66,7 +72,7 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
               help="Plot the CV error against M per k as PNG (needs matplotlib).")
 @click.option("--overwrite", is_flag=True, help="Replace existing output files.")
 def select(data, target, features, domain, units, nodes, neighbors, slope_scales, ridge, folds,
-           activation, seed, precision, tolerance, grow, grow_batch, grow_threshold, grow_patience,
+           activation, seed, task, scoring, precision, tolerance, grow, grow_batch, grow_threshold, grow_patience,
            grow_pool, validation_fraction, jobs, output, report, plot, overwrite):
     """Choose nodes, neighbours, slope scale and ridge by k-fold cross-validation on DATA.csv,
     refit the choice on all rows and save it as a bundle."""
@@ -89,6 +95,20 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
     grid = make_grid(parse_list(nodes, int, "--nodes"), _neighbors(parse_list(neighbors)),
                      parse_list(slope_scales, float, "--slope-scales"),
                      parse_list(ridge, float, "--ridge"))
+    if task == "classification":
+        from nodecast.trainer.class_selection import run_class_selection
+
+        if precision or grow:
+            raise NodecastError("--precision, --tolerance and --grow are for regression; "
+                                "classifier selection takes the grid, --folds and --score")
+        result, bundle = run_class_selection(read_table(data), replace(job, task=task), grid,
+                                             folds, activation, scoring, _jobs(jobs) or 1)
+        save(bundle, output, overwrite=overwrite)
+        if report:
+            _write_report(report, result, bundle)
+        click.echo(f"wrote {output} (bundle {bundle.bundle_id[:12]}); chose "
+                   f"{result.describe()}", err=True)
+        return
     settings = SearchSettings(folds, seed, activation, precision, tolerance, _jobs(jobs))
     growth = GrowthSettings(grow_batch, grow_threshold, grow_patience,
                             grow_pool or 2 * max(grid.nodes)) if grow else None

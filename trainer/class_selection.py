@@ -72,17 +72,31 @@ class ClassSelection:
     folds: int
     model: Any = None
 
+    def describe(self) -> str:
+        c = self.chosen
+        return (f"nodes={c.nodes} neighbors={c.neighbors if c.neighbors else 'default'} "
+                f"slope_scale={c.slope_scale:g} ridge={c.ridge:g}; {self.folds}-fold CV "
+                f"{self.scoring} {c.mean:.4g} +/- {c.std:.2g}")
+
+    def as_dict(self) -> dict:
+        """Every number of the search, JSON-ready."""
+        def record(p: ClassPoint) -> dict:
+            return {**p.params, "fold_values": list(p.fold_values), "mean": p.mean, "std": p.std}
+
+        return {"task": "classification", "scoring": self.scoring, "folds": self.folds,
+                "points": [record(p) for p in self.points], "chosen": record(self.chosen)}
+
 
 def select_classifier(X, y, nodes=(50, 100, 250), neighbors=(None,), slope_scales=(1.0,),
                       ridges=(0.0, 1e-6), folds=10, *, seed=0, scoring="accuracy", domain=None,
-                      activation="logistic", n_jobs=1) -> ClassSelection:
+                      activation="logistic", n_jobs=1, refit=True) -> ClassSelection:
     """Choose (M, k, s, lambda) of a :class:`RandomNodeClassifier` by k-fold cross-validation.
 
     X : array-like of shape (n_samples, n_features), finite; y : labels of shape (n_samples,).
     scoring : "accuracy" or "log-loss". domain : (low, high) of shape (n_features,) each, NaN
     where not declared (the range of the rows being fitted), or None. n_jobs : parallel (fold, k, s) units (joblib); the result
     is the same for every value. Returns a :class:`ClassSelection` whose ``model`` is fitted on
-    all rows.
+    all rows (None with ``refit=False``).
     """
     from nodecast.trainer.estimators import RandomNodeClassifier
 
@@ -104,9 +118,43 @@ def select_classifier(X, y, nodes=(50, 100, 250), neighbors=(None,), slope_scale
     values = _run(jobs, n_jobs)  # per key: (n_ridges, n_nodes)
     points = _tabulate(grid, keys, values, scoring)
     chosen = min(points, key=ClassPoint.rank_key)
+    if not refit:
+        return ClassSelection(points, chosen, scoring, folds)
     model = RandomNodeClassifier(activation=activation, random_state=seed,
                                  domain=input_box(X, *declared), **chosen.params)
     return ClassSelection(points, chosen, scoring, folds, model.fit(X, np.asarray(y)))
+
+
+def run_class_selection(table, job, grid, folds, activation, scoring, n_jobs):
+    """``nodecast select --task classification``: search, then the final fit by
+    :func:`nodecast.trainer.training.train` with the chosen options (so ``nodecast train`` with
+    them writes the same arrays); returns (ClassSelection, Bundle)."""
+    from dataclasses import replace
+
+    from nodecast.compiler.bundle import Bundle
+    from nodecast.trainer import training
+
+    if len(job.targets) != 1:
+        raise NodecastError("classification takes exactly one --target column (the labels)")
+    features = training.feature_columns(table.header, job)
+    unknown = sorted(set(job.domain) - set(features))
+    if unknown:
+        raise NodecastError(f"--domain names unknown feature(s): {', '.join(map(repr, unknown))}")
+    declared = tuple(np.array([job.domain.get(name, (np.nan, np.nan))[side] for name in features],
+                              dtype=float) for side in (0, 1))
+    result = select_classifier(table.numbers(features), table.texts(job.targets[0]), grid.nodes,
+                               grid.neighbors, grid.slope_scales, grid.ridges, folds,
+                               seed=job.seed, scoring=scoring, domain=declared,
+                               activation=activation, n_jobs=n_jobs, refit=False)
+    params = dict(result.chosen.params, method="data-driven", interval=1.0, activation=activation)
+    bundle = training.train(table, replace(job, params=params))
+    metrics = dict(bundle.metadata.get("metrics", {}))
+    metrics["cross_validation"] = {"folds": folds, "rows": len(table.rows), "scoring": scoring,
+                                   "mean": result.chosen.mean, "std": result.chosen.std}
+    summary = {"folds": folds, "grid_points": len(result.points), "scoring": scoring,
+               "chosen": result.chosen.params}
+    return result, Bundle(bundle.network, {**bundle.metadata, "metrics": metrics,
+                                           "selection": summary})
 
 
 def _run(jobs, n_jobs: int) -> list[np.ndarray]:

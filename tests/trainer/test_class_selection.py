@@ -105,3 +105,43 @@ def test_bad_settings_are_refused(bad, message):
     X = np.random.default_rng(0).random((40, 2))
     with pytest.raises(NodecastError, match=message):
         select_classifier(X, X[:, 0] > 0.5, folds=3, **bad)
+
+
+def test_cli_select_classification_refit_equals_train_with_the_chosen_options(tmp_path):
+    import json
+
+    from sklearn.datasets import load_breast_cancer
+
+    from nodecast.compiler.bundle import load
+    from nodecast.compiler.cli import main
+    from nodecast.compiler.csvio import write_table
+
+    data = load_breast_cancer()
+    X, labels = data.data[:300, :8], data.target_names[data.target[:300]]
+    header = [f"f{i}" for i in range(8)] + ["diagnosis"]
+    rows = [[*map(float, x), label] for x, label in zip(X, labels, strict=True)]
+    (tmp_path / "d.csv").write_text(write_table(header, rows))
+    args = ["select", str(tmp_path / "d.csv"), "--target", "diagnosis", "--task", "classification",
+            "--score", "log-loss", "--nodes", "20,60", "--ridge", "1e-6,1e-2", "--folds", "3",
+            "-o", str(tmp_path / "s.ncz"), "--report", str(tmp_path / "r.json")]
+    assert main(args) in (0, None)
+    report = json.loads((tmp_path / "r.json").read_text())
+    chosen = report["chosen"]
+    assert report["scoring"] == "log-loss" and len(report["points"]) == 4
+    assert main(["train", str(tmp_path / "d.csv"), "--target", "diagnosis", "--task",
+                 "classification", "--nodes", str(chosen["n_nodes"]), "--ridge",
+                 repr(chosen["ridge"]), "-o", str(tmp_path / "t.ncz")]) in (0, None)
+    selected, trained = load(tmp_path / "s.ncz"), load(tmp_path / "t.ncz")
+    assert np.array_equal(selected.network.output_weights, trained.network.output_weights)
+    assert selected.network.target_names == ("benign", "malignant")
+    assert selected.metadata["metrics"]["cross_validation"]["mean"] == pytest.approx(chosen["mean"])
+
+
+def test_cli_select_classification_refuses_a_precision_budget(tmp_path, capsys):
+    from nodecast.compiler.cli import main
+
+    (tmp_path / "d.csv").write_text("a,b\n" + "".join(f"{i},{i % 2}\n" for i in range(30)))
+    with pytest.raises(SystemExit) as done:
+        main(["select", str(tmp_path / "d.csv"), "--target", "b", "--task", "classification",
+              "--precision", "float32", "-o", str(tmp_path / "s.ncz")])
+    assert done.value.code == 2 and "are for regression" in capsys.readouterr().err
