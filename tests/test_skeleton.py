@@ -74,11 +74,15 @@ def test_data_driven_node_has_inflection_and_local_slope_at_its_anchor():
 
     from nodecast.trainer.generators.data_driven import LOCAL_RIDGE
 
+    def ridge(inputs, targets):
+        alpha = LOCAL_RIDGE * np.linalg.norm(inputs - inputs.mean(axis=0), 2) ** 2
+        return Ridge(alpha=alpha, solver="svd").fit(inputs, targets).coef_
+
+    trend = ridge(U, T)  # the global linear trend the local fits shrink towards
     for node, rows in enumerate(neighbours):
         # the local fit is a ridge fit scaled to the neighbourhood (docs/training.md), here by
         # scikit-learn's Ridge; the gradient of g(a.u + b) at the anchor is g'(0) a = a / 4
-        alpha = LOCAL_RIDGE * np.linalg.norm(U[rows] - U[rows].mean(axis=0), 2) ** 2
-        slope = Ridge(alpha=alpha, solver="svd").fit(U[rows], T[rows]).coef_
+        slope = trend + ridge(U[rows], T[rows] - U[rows] @ trend)
         assert np.allclose(model.hidden_weights_[node] / 4.0, slope, rtol=1e-8, atol=1e-10)
 
 
