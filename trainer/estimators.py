@@ -95,8 +95,10 @@ class _RandomNodeBase(BaseEstimator):
             slope_scale=float(self.slope_scale), interval=float(self.interval))
         self.hidden_weights_, self.hidden_biases_ = layer.weights, layer.biases
         self.diagnostics_ = {**layer.diagnostics, **self._data_diagnostics(X)}
-        checked = ridge_choice.check_rows(U, rng) if self.ridge == "auto" else None
-        factor, ranges, check = self._accumulate(U, T, activation, checked)
+        # the rows are folded in the same order whatever the ridge, so that giving the ridge
+        # "auto" chose reproduces the model bit for bit
+        factor, ranges, check = self._accumulate(U, T, activation,
+                                                 ridge_choice.check_rows(U, rng))
         self.training_z_low_, self.training_z_high_ = ranges.low, ranges.high
         if self.ridge == "auto":
             self.ridge_, self.ridge_choice_ = ridge_choice.choose(
