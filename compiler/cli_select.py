@@ -29,7 +29,7 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
 @click.option("--units", help="Units, NAME=UNIT,.. for features and targets.")
 @click.option("--nodes", default="50,100,250", show_default=True, help="Hidden nodes M to try.")
 @click.option("--neighbors", default="default", show_default=True,
-              help="Neighbours k to try; 'default' is max(10, 2(n+1)).")
+              help="Neighbours k to try; 'default' is max(10, 2(n+1)), at most 128.")
 @click.option("--slope-scales", default="1", show_default=True, help="Slope scales s to try.")
 @click.option("--ridge", default="0,1e-6", show_default=True,
               help="Ridge values lambda to try (0: minimum-norm least squares).")

@@ -184,14 +184,16 @@ _PARAMETERS = """
     method : {"data-driven", "interval", "domain-anchored"}, default "data-driven"
         Hidden-node generator (:mod:`nodecast.trainer.generators`).
     n_neighbors : int or None, default None
-        Neighbours k of the data-driven local fits (None: max(10, 2 (n + 1)); at most the rows).
+        Neighbours k of the data-driven local fits (None: max(10, 2 (n + 1)), at most 128; at
+        most the rows).
     slope_scale : float, default 1.0
         Factor s on the data-driven slopes (1 is the published method).
     ridge : float or "auto", default "auto"
         Penalty lambda on the output weights in normalised coordinates, objective
         ||H beta + c - T||^2 + lambda ||beta||^2 (0: minimum-norm least squares). "auto":
-        generalized cross-validation on a grid, raised where needed until the estimated float32
-        export error is at most 2% of the estimated error (:mod:`nodecast.trainer.ridge_choice`).
+        generalized cross-validation on a grid checked on held-out rows (the larger ridge within
+        noise preferred), raised where needed until the estimated float32 export error is at
+        most 2% of the estimated error (:mod:`nodecast.trainer.ridge_choice`).
     activation : {"logistic", "tanh"}, default "logistic"
     interval : float, default 1.0
         u of the U(-u, u) weight draws of the baseline methods.
