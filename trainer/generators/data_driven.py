@@ -60,7 +60,7 @@ from scipy.spatial import cKDTree
 from nodecast.trainer.generators.base import HiddenLayer
 from nodecast.trainer.solvers import single_blas_thread
 
-_FLAT = 1e-10  # slope norms below this, in normalised target per normalised input, count as flat
+_FLAT = 1e-3  # slope norms below this (a rise under 0.1% of the target range across the box) are flat
 _RANK_TOLERANCE = 1e-10  # relative singular value below which a local direction counts as missing
 _CHUNK_ENTRIES = 2**22  # neighbour coordinates per batch of local fits (32 MiB of float64)
 LOCAL_RIDGE = 1e-4  # mu / s_1^2 of the local ridge fits
