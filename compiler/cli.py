@@ -108,7 +108,8 @@ def cli():
               default="data-driven", show_default=True, help="Hidden-node generator.")
 @click.option("--nodes", type=click.IntRange(min=1), default=200, show_default=True,
               help="Hidden nodes M.")
-@click.option("--neighbors", type=click.IntRange(min=1), help="Neighbours k (default max(10, 2(n+1)), at most 128).")
+@click.option("--neighbors", type=click.IntRange(min=1),
+              help="Neighbours k (default max(10, 2(n+1)), at most 128).")
 @click.option("--slope-scale", type=click.FloatRange(min=0, min_open=True), default=1.0,
               show_default=True, help="Slope-scale factor s of the data-driven nodes.")
 @click.option("--interval", type=click.FloatRange(min=0, min_open=True), default=1.0,

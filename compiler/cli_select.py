@@ -72,8 +72,8 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
               help="Plot the CV error against M per k as PNG (needs matplotlib).")
 @click.option("--overwrite", is_flag=True, help="Replace existing output files.")
 def select(data, target, features, domain, units, nodes, neighbors, slope_scales, ridge, folds,
-           activation, seed, task, scoring, precision, tolerance, grow, grow_batch, grow_threshold, grow_patience,
-           grow_pool, validation_fraction, jobs, output, report, plot, overwrite):
+           activation, seed, task, scoring, precision, tolerance, grow, grow_batch, grow_threshold,
+           grow_patience, grow_pool, validation_fraction, jobs, output, report, plot, overwrite):
     """Choose nodes, neighbours, slope scale and ridge by k-fold cross-validation on DATA.csv,
     refit the choice on all rows and save it as a bundle."""
     from nodecast.compiler.bundle import save

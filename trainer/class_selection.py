@@ -94,9 +94,9 @@ def select_classifier(X, y, nodes=(50, 100, 250), neighbors=(None,), slope_scale
 
     X : array-like of shape (n_samples, n_features), finite; y : labels of shape (n_samples,).
     scoring : "accuracy" or "log-loss". domain : (low, high) of shape (n_features,) each, NaN
-    where not declared (the range of the rows being fitted), or None. n_jobs : parallel (fold, k, s) units (joblib); the result
-    is the same for every value. Returns a :class:`ClassSelection` whose ``model`` is fitted on
-    all rows (None with ``refit=False``).
+    where not declared (the range of the rows being fitted), or None. n_jobs : parallel
+    (fold, k, s) units (joblib); the result is the same for every value. Returns a
+    :class:`ClassSelection` whose ``model`` is fitted on all rows (None with ``refit=False``).
     """
     from nodecast.trainer.estimators import RandomNodeClassifier
 

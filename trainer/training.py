@@ -11,7 +11,6 @@ from nodecast.compiler.errors import NodecastError
 from nodecast.trainer.estimators import RandomNodeClassifier, RandomNodeRegressor
 from nodecast.trainer.export import to_bundle
 
-
 HEAVY_TAIL_SHARE = 0.5  # a column is heavy-tailed when its middle 99% spans less of its range
 
 

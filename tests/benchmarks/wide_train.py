@@ -7,9 +7,9 @@ three latents, the family and two counts, plus noise. 1,800 rows train, 400 rows
 
 Times :func:`nodecast.trainer.training.train` (what ``nodecast train`` runs: a validation fit on
 80% of the rows, then the fit on all rows) with the default BLAS threads, and reports the test
-RMSE over the test target's standard deviation ("normalised RMSE"). Wall and CPU time (all threads)
-are both reported: on a shared machine the wall time mostly measures the other load beside scikit-learn's RidgeCV
-and HistGradientBoostingRegressor on the same split. Prints JSON; asserts nothing.
+RMSE over the test target's standard deviation ("normalised RMSE") beside scikit-learn's RidgeCV
+and HistGradientBoostingRegressor on the same split. Wall and CPU time (all threads) are both
+reported: on a shared machine the wall time mostly measures the other load. Prints JSON; asserts nothing.
 Run: python tests/benchmarks/wide_train.py
 """
 

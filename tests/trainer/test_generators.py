@@ -73,8 +73,9 @@ def _local_ridge_slope(U_local, t_local, trend):
 def test_data_driven_node_takes_the_local_slope_at_its_anchor(name):
     # With g'(z0) the activation's slope at its inflection (1/4 logistic, 1 tanh), the node's
     # gradient at its anchor equals s times the ridge slope of its k neighbours shrunk towards the
-    # global trend (sklearn's Ridge and NearestNeighbors as references), which on these well-spread neighbourhoods is within 1%
-    # of the plain least-squares slope of the published method (numpy.linalg.lstsq).
+    # global trend (sklearn's Ridge and NearestNeighbors as references), which on these
+    # well-spread neighbourhoods is within 1% of the plain least-squares slope of the published
+    # method (numpy.linalg.lstsq).
     from sklearn.neighbors import NearestNeighbors
 
     act = get_activation(name)
