@@ -144,7 +144,7 @@ def train(data, target, features, domain, units, categorical, method, nodes, nei
     from nodecast.compiler.bundle import save
     from nodecast.compiler.csvio import read_table
     from nodecast.compiler.files import refuse_existing
-    from nodecast.trainer.training import TrainingJob
+    from nodecast.trainer.training import TrainingJob, heavy_tail_note
     from nodecast.trainer.training import train as run_training
 
     refuse_existing(Path(output), overwrite)  # before training, not after minutes of it
@@ -163,6 +163,9 @@ def train(data, target, features, domain, units, categorical, method, nodes, nei
     save(bundle, output, overwrite=overwrite)
     click.echo(f"wrote {output} (bundle {bundle.bundle_id[:12]}); {_choice_line(bundle)}"
                f"{_metrics_line(bundle)}", err=True)
+    note = heavy_tail_note(bundle.metadata)
+    if note:
+        click.echo(note, err=True)
 
 
 def _parse_neighbors(text: str):

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import json
 import sys
+from dataclasses import replace
 
 import click
 
@@ -43,6 +44,11 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
               show_default=True)
 @click.option("--seed", type=int, default=0, show_default=True,
               help="Seeds the folds and every hidden-layer draw (the final model's seed).")
+@click.option("--task", type=click.Choice(["regression", "classification"]), default="regression",
+              show_default=True)
+@click.option("--score", "scoring", type=click.Choice(["accuracy", "log-loss"]),
+              default="accuracy", show_default=True,
+              help="Classification: the cross-validated score that ranks the grid points.")
 @click.option("--precision", type=click.Choice(["float32", "float64", "q31", "q15"]),
               help="Target precision: report the chosen model's estimated export error in it.")
 @click.option("--tolerance", type=click.FloatRange(min=0, min_open=True),
@@ -72,11 +78,12 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
               help="Plot the CV error against M per k as PNG (needs matplotlib).")
 @click.option("--overwrite", is_flag=True, help="Replace existing output files.")
 def select(data, target, features, domain, units, categorical, method, nodes, neighbors,
-           slope_scales, intervals, angle_ranges, weight_sums, ridge, folds, activation, seed,
-           precision, tolerance, grow, grow_batch, grow_threshold, grow_patience, grow_pool,
-           validation_fraction, jobs, output, report, plot, overwrite):
+           slope_scales, intervals, angle_ranges, weight_sums, ridge, folds, activation, seed, task,
+           scoring, precision, tolerance, grow, grow_batch, grow_threshold, grow_patience,
+           grow_pool, validation_fraction, jobs, output, report, plot, overwrite):
     """Choose nodes, the generator and its settings, and ridge by k-fold cross-validation on
-    DATA.csv, refit the choice on all rows and save it as a bundle."""
+    DATA.csv (a classifier: by accuracy or log-loss), refit the choice on all rows and save it
+    as a bundle."""
     from nodecast.compiler.bundle import save
     from nodecast.compiler.cli import parse_domain, parse_list, parse_units
     from nodecast.compiler.csvio import read_table
@@ -98,6 +105,20 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     layers = layer_grid(parse_methods(method), layer_values(neighbors, slope_scales, intervals,
                                                             angle_ranges, weight_sums))
     grid = make_grid(parse_list(nodes, int, "--nodes"), parse_list(ridge, float, "--ridge"), layers)
+    if task == "classification":
+        from nodecast.trainer.class_selection import run_class_selection
+
+        if precision or grow:
+            raise NodecastError("--precision, --tolerance and --grow are for regression; "
+                                "classifier selection takes the grid, --folds and --score")
+        result, bundle = run_class_selection(read_table(data), replace(job, task=task), grid,
+                                             folds, activation, scoring, _jobs(jobs) or 1)
+        save(bundle, output, overwrite=overwrite)
+        if report:
+            _write_report(report, result, bundle)
+        click.echo(f"wrote {output} (bundle {bundle.bundle_id[:12]}); chose "
+                   f"{result.describe()}", err=True)
+        return
     settings = SearchSettings(folds, seed, activation, precision, tolerance, _jobs(jobs))
     growth = GrowthSettings(grow_batch, grow_threshold, grow_patience,
                             grow_pool or 2 * max(grid.nodes)) if grow else None

@@ -103,12 +103,13 @@ class _RandomNodeBase(BaseEstimator):
         self.output_offset_, self.output_scale_ = self._target_scaling(Y)
         U = (X - self.input_offset_) / self.input_scale_
         T = (Y - self.output_offset_) / self.output_scale_
-        layer, factor, ranges = self._draw_and_factor(U, T, rng, activation)
+        layer, factor, ranges, check = self._draw_and_factor(U, T, rng, activation)
         self.hidden_weights_, self.hidden_biases_ = layer.weights, layer.biases
         self.diagnostics_ = {**layer.diagnostics, **self._data_diagnostics(X)}
         self.training_z_low_, self.training_z_high_ = ranges.low, ranges.high
         if self.ridge == "auto":
-            self.ridge_, self.ridge_choice_ = ridge_choice.choose(factor, self._float32_error(factor))
+            self.ridge_, self.ridge_choice_ = ridge_choice.choose(
+                factor, self._float32_error(factor), check)
         else:
             self.ridge_, self.ridge_choice_ = float(self.ridge), {"rule": "given"}
         self.coef_, self.intercept_ = solvers.solve(factor, self.ridge_)
@@ -124,7 +125,10 @@ class _RandomNodeBase(BaseEstimator):
                 U, T, int(self.n_nodes), rng, activation, n_neighbors=n_neighbors,
                 slope_scale=float(slope_scale), interval=float(self.interval),
                 angle_range=tuple(self.angle_range), weight_sum=tuple(self.weight_sum))
-            return (layer,) + self._accumulate(layer, U, T, activation)
+            # the rows are folded in the same order whatever the ridge, so that giving the ridge
+            # "auto" chose reproduces the model bit for bit
+            checked = ridge_choice.check_rows(U, rng)
+            return (layer,) + self._accumulate(layer, U, T, activation, checked)
 
         auto = self.method == "data-driven" and "auto" in (self.n_neighbors, self.slope_scale)
         if not auto:
@@ -164,14 +168,32 @@ class _RandomNodeBase(BaseEstimator):
         return {"constant_features": int(np.sum(self.domain_high_ == self.domain_low_)),
                 "rows_outside_domain": int(outside.sum())}
 
-    def _accumulate(self, layer, U: np.ndarray, T: np.ndarray, activation):
-        """The output layer's factor over row blocks, and each node's pre-activation range."""
+    def _accumulate(self, layer, U: np.ndarray, T: np.ndarray, activation, checked=None):
+        """The output layer's factor over row blocks, each node's pre-activation range, and (for
+        ``checked`` row indices) the held-out check of the default ridge: the factor of the other
+        rows comes first, the check rows are folded in after it."""
         bounds = block_bounds(U.shape[0], layer.weights.shape[0])
         ranges = PreactivationRange(layer.weights.shape[0])
-        blocks = design_blocks(U, layer.weights, layer.biases, activation, bounds, ranges)
-        factor = solvers.accumulate_designs(
-            (D, T[start:stop]) for (start, stop), D in zip(bounds, blocks, strict=True))
-        return factor, ranges
+        blocks = design_blocks(U, layer.weights, layer.biases, activation, bounds,
+                               ranges)
+        if checked is None:
+            factor = solvers.accumulate_designs(
+                (D, T[start:stop]) for (start, stop), D in zip(bounds, blocks, strict=True))
+            return factor, ranges, None
+        is_check = np.zeros(U.shape[0], dtype=bool)
+        is_check[checked] = True
+        held = []
+
+        def outside_check():
+            for (start, stop), D in zip(bounds, blocks, strict=True):
+                rows = is_check[start:stop]
+                held.append(D[rows])
+                yield D[~rows], T[start:stop][~rows]
+
+        rest = solvers.accumulate_designs(outside_check())
+        check = ridge_choice.HeldOut(rest, np.concatenate(held), T[checked])
+        factor = solvers.accumulate_designs([(check.design, check.targets)], start=rest)
+        return factor, ranges, check
 
     def _target_scaling(self, Y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         return _normaliser(Y.min(axis=0), Y.max(axis=0))
@@ -199,15 +221,16 @@ _PARAMETERS = """
 default "data-driven"
         Hidden-node generator (:mod:`nodecast.trainer.generators`, docs/training.md).
     n_neighbors : int, None or "auto", default "auto"
-        Neighbours k of the data-driven local fits (None: max(10, 2 (n + 1)); at most the rows;
+        Neighbours k of the data-driven local fits (None: max(10, 2 (n + 1)), at most 128; at most the rows;
         "auto": chosen by generalized cross-validation, :mod:`nodecast.trainer.layer_choice`).
     slope_scale : float or "auto", default "auto"
         Factor s on the data-driven slopes (1 is the published method; "auto" as for k).
     ridge : float or "auto", default "auto"
         Penalty lambda on the output weights in normalised coordinates, objective
         ||H beta + c - T||^2 + lambda ||beta||^2 (0: minimum-norm least squares). "auto":
-        generalized cross-validation on a grid, raised where needed until the estimated float32
-        export error is at most 2% of the estimated error (:mod:`nodecast.trainer.ridge_choice`).
+        generalized cross-validation on a grid checked on held-out rows (the larger ridge within
+        noise preferred), raised where needed until the estimated float32 export error is at
+        most 2% of the estimated error (:mod:`nodecast.trainer.ridge_choice`).
     activation : {"logistic", "tanh"}, default "logistic"
     interval : float, default 1.0
         u of the U(-u, u) weight draws of the interval and domain-anchored methods.
