@@ -28,7 +28,7 @@ def _gridsearch(X, y, scoring, folds):
     from sklearn.model_selection import GridSearchCV
 
     grid = {"n_nodes": GRID["nodes"], "n_neighbors": GRID["neighbors"], "ridge": GRID["ridges"]}
-    return GridSearchCV(RandomNodeClassifier(random_state=SEED), grid,
+    return GridSearchCV(RandomNodeClassifier(random_state=SEED, slope_scale=1.0), grid,
                         cv=fold_indices(X.shape[0], folds, SEED),
                         scoring="accuracy" if scoring == "accuracy" else _log_loss,
                         refit=False).fit(X, y)
@@ -130,7 +130,8 @@ def test_cli_select_classification_refit_equals_train_with_the_chosen_options(tm
     assert report["scoring"] == "log-loss" and len(report["points"]) == 4
     assert main(["train", str(tmp_path / "d.csv"), "--target", "diagnosis", "--task",
                  "classification", "--nodes", str(chosen["n_nodes"]), "--ridge",
-                 repr(chosen["ridge"]), "-o", str(tmp_path / "t.ncz")]) in (0, None)
+                 repr(chosen["ridge"]), "--neighbors", "default", "--slope-scale",
+                 repr(chosen["slope_scale"]), "-o", str(tmp_path / "t.ncz")]) in (0, None)
     selected, trained = load(tmp_path / "s.ncz"), load(tmp_path / "t.ncz")
     assert np.array_equal(selected.network.output_weights, trained.network.output_weights)
     assert selected.network.target_names == ("benign", "malignant")
