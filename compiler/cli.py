@@ -20,7 +20,8 @@ from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.version import __version__
 
 EXAMPLES = {
-    "train": "nodecast train readings.csv --target heatsink_temp --nodes 300 -o fan.ncz",
+    "train": ("nodecast train readings.csv --target heatsink_temp --nodes 300 "
+              "--domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,supply_voltage=22:26 -o fan.ncz"),
     "predict": "nodecast predict fan.ncz readings.csv -o predictions.csv",
     "inspect": "nodecast inspect fan.ncz --precision float32",
     "emit": "nodecast emit fan.ncz --to onnx --precision float32 -o fan.onnx",
@@ -274,7 +275,8 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
 @click.option("--junit", type=click.Path(dir_okay=False), help="Write a JUnit XML report here.")
 @click.option("--emulate", type=click.Choice(["cortex-m3", "cortex-m4"]),
               help="C artifacts: run on an emulated Cortex-M (QEMU) instead of the host.")
-def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, junit, emulate):
+@click.option("--overwrite", is_flag=True, help="Replace existing report files.")
+def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, junit, emulate, overwrite):
     """Run ARTIFACT in its real runtime and compare it with the bundle's reference.
 
     Exit 0 when every probe family agrees within the tolerance, 1 when one does not, 2 on bad input.
@@ -283,17 +285,19 @@ def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, junit,
     from nodecast.compiler.files import write_atomic
     from nodecast.compiler.verify import format_table
     from nodecast.compiler.verify import verify as run_verify
+    from nodecast.compiler.files import refuse_existing_outputs
     from nodecast.compiler.verify.report import to_json, verify_junit
 
+    refuse_existing_outputs(overwrite, report, junit)
     bundle = load_bundle(model)
     rows = read_table(data).numbers(bundle.network.feature_names) if data else None
     run_options = {"emulate": emulate} if emulate else {}
     result = run_verify(bundle, artifact, rows, probes, seed, abs_tol, rel_tol, **run_options)
     click.echo(format_table(result))
     if report:
-        write_atomic(report, to_json(result.as_dict()).encode("utf-8"), overwrite=True)
+        write_atomic(report, to_json(result.as_dict()).encode("utf-8"), overwrite=overwrite)
     if junit:
-        write_atomic(junit, verify_junit(result.as_dict()).encode("utf-8"), overwrite=True)
+        write_atomic(junit, verify_junit(result.as_dict()).encode("utf-8"), overwrite=overwrite)
     sys.exit(0 if result.passed else 1)
 
 
@@ -327,6 +331,13 @@ def _stop_on_sigterm(signum, frame) -> None:
     raise SystemExit(128 + signum)
 
 
+def usage_error_line(exc) -> str:
+    """A usage error from the argument parser as one line: what is wrong and where to look."""
+    command = exc.ctx.command_path if exc.ctx is not None else "nodecast"
+    message = " ".join(exc.format_message().split())
+    return f"nodecast: error: {message} (see '{command} --help')"
+
+
 def main(argv=None) -> None:
     if threading.current_thread() is threading.main_thread():
         signal.signal(signal.SIGTERM, _stop_on_sigterm)
@@ -334,6 +345,12 @@ def main(argv=None) -> None:
         cli.main(args=argv, prog_name="nodecast", standalone_mode=False)
     except click.exceptions.Exit as exc:
         sys.exit(exc.exit_code)
+    except click.exceptions.NoArgsIsHelpError as exc:  # bare `nodecast`: the help, as asked
+        click.echo(exc.ctx.get_help(), err=True)
+        sys.exit(2)
+    except click.UsageError as exc:
+        click.echo(usage_error_line(exc), err=True)
+        sys.exit(2)
     except click.ClickException as exc:
         exc.show()
         sys.exit(2)

@@ -14,7 +14,8 @@ import click
 
 from nodecast.compiler.errors import NodecastError
 
-EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,250 "
+EXAMPLE = ("nodecast select readings.csv --target heatsink_temp "
+           "--domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,supply_voltage=22:26 --nodes 50,100,250 "
            "--neighbors 10,20,30 --ridge 0,1e-6 --precision float32 --tolerance 0.05 "
            "-o fan.ncz --report cv.json --plot cv.png")
 
@@ -73,6 +74,7 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
     from nodecast.compiler.bundle import save
     from nodecast.compiler.cli import parse_domain, parse_list, parse_units
     from nodecast.compiler.csvio import read_table
+    from nodecast.compiler.files import refuse_existing_outputs
     from nodecast.trainer.grid import make_grid
     from nodecast.trainer.growth import GrowthSettings
     from nodecast.trainer.selection import SearchSettings
@@ -81,6 +83,7 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
 
     if tolerance is not None and precision is None:
         raise NodecastError("--tolerance needs --precision (the precision to estimate it in)")
+    refuse_existing_outputs(overwrite, output, report, plot)  # before the search, not after it
     job = TrainingJob(
         targets=parse_list(target, option="--target"),
         features=parse_list(features, option="--features"),
@@ -95,11 +98,11 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
     result, bundle = run_selection(read_table(data), job, grid, settings, growth, _progress())
     save(bundle, output, overwrite=overwrite)
     if report:
-        _write_report(report, result, bundle)
+        _write_report(report, result, bundle, overwrite)
     if plot:
         from nodecast.trainer.selection_plot import plot_search
 
-        plot_search(result, plot, overwrite=True)
+        plot_search(result, plot, overwrite=overwrite)
     click.echo(_summary(result, bundle, output), err=True)
 
 
@@ -131,13 +134,13 @@ def _progress():
     return show
 
 
-def _write_report(path, result, bundle) -> None:
+def _write_report(path, result, bundle, overwrite: bool) -> None:
     from nodecast.compiler.files import write_atomic
 
     document = {"bundle_id": bundle.bundle_id, "features": list(bundle.network.feature_names),
                 "targets": list(bundle.network.target_names), **result.as_dict()}
     text = json.dumps(document, indent=2, sort_keys=True, allow_nan=False) + "\n"
-    write_atomic(path, text.encode("utf-8"), overwrite=True)
+    write_atomic(path, text.encode("utf-8"), overwrite=overwrite)
 
 
 def _summary(result, bundle, output) -> str:

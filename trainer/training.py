@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -80,6 +81,19 @@ def _check_target_varies(y: np.ndarray, names) -> None:
                                 "there is nothing to learn")
 
 
+def _check_classes(y: np.ndarray, name: str) -> None:
+    """At least two classes, and on average at least two rows per class (the rule under which
+    scikit-learn also suspects a regression target): otherwise most classes are single rows that
+    no classifier can learn, and the model would have as many outputs as the data has rows."""
+    n_classes, n_rows = len(set(y)), len(y)
+    if n_classes < 2:
+        raise NodecastError(f"target {name!r} holds a single class; need at least two")
+    if 2 * n_classes > n_rows:
+        raise NodecastError(f"target {name!r} has {n_classes} distinct labels in {n_rows} rows, "
+                            "fewer than 2 rows per class: too few to learn any class (a continuous "
+                            "target? train it with --task regression)")
+
+
 def make_estimator(job: TrainingJob, low, high):
     cls = RandomNodeClassifier if job.task == "classification" else RandomNodeRegressor
     try:
@@ -100,8 +114,7 @@ def train(table, job: TrainingJob) -> Bundle:
         if len(job.targets) != 1:
             raise NodecastError("classification takes exactly one --target column (the labels)")
         y = np.asarray(table.texts(job.targets[0]), dtype=object)
-        if len(set(y)) < 2:
-            raise NodecastError(f"target {job.targets[0]!r} holds a single class; need at least two")
+        _check_classes(y, job.targets[0])
     else:
         y = table.numbers(job.targets)
         _check_finite(y, job.targets, "target")
@@ -133,7 +146,9 @@ def _validation(job: TrainingJob, low, high, X, y) -> dict:
     valid, fit = order[:n_valid], order[n_valid:]
     estimator = make_estimator(job, low, high)
     try:
-        estimator.fit(X[fit], y[fit])
+        with warnings.catch_warnings():  # the split may hold a class once; all rows passed _check_classes
+            warnings.filterwarnings("ignore", "The number of unique classes", UserWarning)
+            estimator.fit(X[fit], y[fit])
     except ValueError:
         return {}
     return {"validation": _metrics(estimator, X[valid], y[valid], job.task)}

@@ -19,7 +19,7 @@ nodecast select "$out/readings.csv" --target heatsink_temp \
 # The footprint table (host, Cortex-M0, Cortex-M4F) is printed here.
 nodecast emit "$out/fan.ncz" --to c --precision q15 --out-of-domain reject --prefix fan \
   --bare-metal -o "$fw" --overwrite
-nodecast verify "$out/fan.ncz" "$fw" --emulate cortex-m4 --probes 512 --report "$out/verify_m4.json"
+nodecast verify "$out/fan.ncz" "$fw" --emulate cortex-m4 --probes 512 --report "$out/verify_m4.json" --overwrite
 
 # The firmware engineer's side: an ordinary Makefile and main.c around the generated files.
 cp "$here/Makefile" "$here/main.c" "$fw/"
