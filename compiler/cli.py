@@ -14,6 +14,7 @@ from pathlib import Path
 
 import click
 
+from nodecast.compiler.cli_diff import diff as diff_command
 from nodecast.compiler.cli_score import score as score_command
 from nodecast.compiler.cli_select import select as select_command
 from nodecast.compiler.errors import NodecastError
@@ -322,6 +323,7 @@ def demo(output, data_only):
     sys.exit(run_demo(Path(output), echo=click.echo))
 
 
+cli.add_command(diff_command)
 cli.add_command(score_command)
 cli.add_command(select_command)
 
