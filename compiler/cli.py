@@ -138,6 +138,9 @@ def train(data, target, features, domain, units, method, nodes, neighbors, slope
     from nodecast.trainer.training import TrainingJob
     from nodecast.trainer.training import train as run_training
 
+    from nodecast.compiler.progress import Progress, run_interruptible
+    from nodecast.trainer.cost import FitClock
+
     refuse_existing(Path(output), overwrite)  # before training, not after minutes of it
 
     job = TrainingJob(
@@ -146,9 +149,38 @@ def train(data, target, features, domain, units, method, nodes, neighbors, slope
         validation_fraction=validation_fraction,
         params=dict(n_nodes=nodes, method=method, n_neighbors=neighbors, slope_scale=slope_scale,
                     interval=interval, ridge=parse_ridge(ridge), activation=activation))
-    bundle = run_training(read_table(data), job)
+    table = read_table(data)
+    given = click.get_current_context().get_parameter_source("nodes").name == "COMMANDLINE"
+    with Progress("train") as progress:
+        clock = FitClock(progress, nodes, on_start=warn_more_nodes_than_rows if given else None)
+        bundle = run_interruptible(run_training, table, job, callback=clock, progress=progress)
     save(bundle, output, overwrite=overwrite)
     click.echo(f"wrote {output} (bundle {bundle.bundle_id[:12]}); {_metrics_line(bundle)}", err=True)
+    warn_rows_outside(bundle)
+
+
+def warn(text: str) -> None:
+    click.echo(f"nodecast: warning: {text}", err=True)
+
+
+def warn_more_nodes_than_rows(nodes: int, rows: int) -> None:
+    """A warning when --nodes exceeds the rows (told when the first fit starts, after the data
+    passed its checks; not for the default M, which is ours to choose)."""
+    from nodecast.compiler.progress import format_seconds
+    from nodecast.trainer.cost import fit_seconds
+
+    if nodes > rows > 0:
+        warn(f"{nodes} nodes for {rows} rows: nodes beyond the number of rows add time and "
+             f"ill-conditioning, not accuracy (the fit can already pass through every row); "
+             f"expect about {format_seconds(2 * fit_seconds(rows, nodes))} of training; "
+             "consider --nodes below the row count, or nodecast select")
+
+
+def warn_rows_outside(bundle) -> None:
+    outside, rows = bundle.metadata.get("rows_outside_domain"), bundle.metadata.get("rows")
+    if isinstance(outside, int) and outside > 0:
+        warn(f"{outside} of {rows} training rows lie outside the declared --domain; the model is "
+             "fitted to them too, but artifacts treat such inputs by their --out-of-domain policy")
 
 
 def _metrics_line(bundle) -> str:
@@ -287,13 +319,18 @@ def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, junit,
     from nodecast.compiler.verify import format_table
     from nodecast.compiler.verify import verify as run_verify
     from nodecast.compiler.files import refuse_existing_outputs
+    from nodecast.compiler.progress import EngineClock, Progress
     from nodecast.compiler.verify.report import to_json, verify_junit
 
     refuse_existing_outputs(overwrite, report, junit)
     bundle = load_bundle(model)
     rows = read_table(data).numbers(bundle.network.feature_names) if data else None
     run_options = {"emulate": emulate} if emulate else {}
-    result = run_verify(bundle, artifact, rows, probes, seed, abs_tol, rel_tol, **run_options)
+    with Progress("verify") as progress:
+        progress.stage("drawing probes and the reference outputs")
+        progress.start()
+        result = run_verify(bundle, artifact, rows, probes, seed, abs_tol, rel_tol,
+                            on_engine=EngineClock(progress), **run_options)
     click.echo(format_table(result))
     if report:
         write_atomic(report, to_json(result.as_dict()).encode("utf-8"), overwrite=overwrite)
@@ -356,9 +393,9 @@ def main(argv=None) -> None:
     except click.ClickException as exc:
         exc.show()
         sys.exit(2)
-    except click.exceptions.Abort:
-        click.echo("aborted", err=True)
-        sys.exit(2)
+    except click.exceptions.Abort:  # click's form of Ctrl-C (KeyboardInterrupt) in a command
+        click.echo("nodecast: interrupted", err=True)
+        sys.exit(130)
     except NodecastError as exc:
         click.echo(f"nodecast: error: {' '.join(str(exc).split())}", err=True)
         sys.exit(2)

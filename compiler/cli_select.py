@@ -8,7 +8,6 @@ the same seed writes the same arrays.
 from __future__ import annotations
 
 import json
-import sys
 
 import click
 
@@ -75,6 +74,7 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
     from nodecast.compiler.cli import parse_domain, parse_list, parse_units
     from nodecast.compiler.csvio import read_table
     from nodecast.compiler.files import refuse_existing_outputs
+    from nodecast.compiler.progress import Progress, run_interruptible
     from nodecast.trainer.grid import make_grid
     from nodecast.trainer.growth import GrowthSettings
     from nodecast.trainer.selection import SearchSettings
@@ -95,7 +95,12 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
     settings = SearchSettings(folds, seed, activation, precision, tolerance, _jobs(jobs))
     growth = GrowthSettings(grow_batch, grow_threshold, grow_patience,
                             grow_pool or 2 * max(grid.nodes)) if grow else None
-    result, bundle = run_selection(read_table(data), job, grid, settings, growth, _progress())
+    table = read_table(data)
+    with Progress("select") as progress:
+        result, bundle = run_interruptible(
+            run_selection, table, job, grid, settings, growth,
+            callback=UnitClock(progress, len(table.rows), max(grid.nodes), folds, grow),
+            progress=progress)
     save(bundle, output, overwrite=overwrite)
     if report:
         _write_report(report, result, bundle, overwrite)
@@ -124,14 +129,32 @@ def _neighbors(items) -> list:
     return values
 
 
-def _progress():
-    if not sys.stderr.isatty():
-        return None
+class UnitClock:
+    """The search's progress callback: units done with time left, then the final refit (or the
+    growth) with an estimate from the units' measured pace (trainer.cost's work model)."""
 
-    def show(done: int, total: int) -> None:
-        click.echo(f"\rselect: {done}/{total} (fold, k, s) units", nl=done == total, err=True)
+    def __init__(self, progress, rows: int, max_nodes: int, folds: int, grow: bool):
+        import time
 
-    return show
+        self.progress, self.rows, self.max_nodes, self.folds = progress, rows, max_nodes, folds
+        self.grow, self.clock, self.started = grow, time.monotonic, time.monotonic()
+        progress.stage("cross-validating the grid")
+
+    def __call__(self, done: int, total: int) -> None:
+        from nodecast.trainer.cost import fit_units
+
+        spent = self.clock() - self.started
+        if done < total:
+            self.progress.stage(f"{done} of {total} (fold, k, s) units done",
+                                spent / done * total, since=self.started)
+            return
+        fold_rows = self.rows * (self.folds - 1) // self.folds
+        rate = spent / total / max(fit_units(fold_rows, self.max_nodes), 1.0)
+        if self.grow:
+            self.progress.stage("growing the chosen model in batches")
+        else:  # train's two fits (all rows, validation split) of at most the largest M
+            self.progress.stage("refitting the choice on all rows",
+                                2 * rate * fit_units(self.rows, self.max_nodes))
 
 
 def _write_report(path, result, bundle, overwrite: bool) -> None:

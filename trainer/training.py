@@ -102,8 +102,10 @@ def make_estimator(job: TrainingJob, low, high):
         raise NodecastError(f"bad training option: {exc}") from None
 
 
-def train(table, job: TrainingJob) -> Bundle:
-    """Fit on all rows; report validation metrics from a same-settings fit on a held-out split."""
+def train(table, job: TrainingJob, on_stage=None) -> Bundle:
+    """Fit on all rows; report validation metrics from a same-settings fit on a held-out split.
+
+    ``on_stage``: None or callable(text, rows), told before each fit (for progress lines)."""
     features = feature_columns(table.header, job)
     X = table.numbers(features)
     _check_finite(X, features, "feature")
@@ -121,12 +123,15 @@ def train(table, job: TrainingJob) -> Bundle:
         _check_target_varies(y, job.targets)
     low, high, outside = _domain(job, features, X)
     estimator = make_estimator(job, low, high)
+    if on_stage is not None:
+        _check_memory(job, X, y)  # refuse in one line before any progress or warning
+        on_stage("fitting on all rows", X.shape[0])
     try:
         estimator.fit(X, y)
     except ValueError as exc:
         raise NodecastError(f"cannot train: {' '.join(str(exc).split())}") from None
     metrics = {"training": _metrics(estimator, X, y, job.task)}
-    metrics.update(_validation(job, low, high, X, y))
+    metrics.update(_validation(job, low, high, X, y, on_stage))
     units = dict(job.units)
     target_names = job.targets if job.task == "regression" else tuple(map(str, estimator.classes_))
     return to_bundle(
@@ -138,10 +143,22 @@ def train(table, job: TrainingJob) -> Bundle:
                   "validation_fraction": job.validation_fraction})
 
 
-def _validation(job: TrainingJob, low, high, X, y) -> dict:
+def _check_memory(job: TrainingJob, X: np.ndarray, y: np.ndarray) -> None:
+    from nodecast.trainer.memory import check_fits_in_memory
+
+    outputs = len(set(y)) if job.task == "classification" else y.shape[1]
+    try:
+        check_fits_in_memory(X.shape[0], X.shape[1], int(job.params.get("n_nodes", 200)), outputs)
+    except ValueError as exc:
+        raise NodecastError(f"cannot train: {exc}") from None
+
+
+def _validation(job: TrainingJob, low, high, X, y, on_stage=None) -> dict:
     n_valid = int(round(job.validation_fraction * X.shape[0]))
     if n_valid < 1 or X.shape[0] - n_valid < 2:
         return {}
+    if on_stage is not None:
+        on_stage("validation fit", X.shape[0] - n_valid)
     order = np.random.RandomState(job.seed).permutation(X.shape[0])
     valid, fit = order[:n_valid], order[n_valid:]
     estimator = make_estimator(job, low, high)
