@@ -139,6 +139,7 @@ def train(data, target, features, domain, units, method, nodes, neighbors, slope
     from nodecast.trainer.training import train as run_training
 
     from nodecast.compiler.progress import Progress, run_interruptible
+    from nodecast.compiler.provenance import file_record, with_training_data
     from nodecast.trainer.cost import FitClock
 
     refuse_existing(Path(output), overwrite)  # before training, not after minutes of it
@@ -149,11 +150,12 @@ def train(data, target, features, domain, units, method, nodes, neighbors, slope
         validation_fraction=validation_fraction,
         params=dict(n_nodes=nodes, method=method, n_neighbors=neighbors, slope_scale=slope_scale,
                     interval=interval, ridge=parse_ridge(ridge), activation=activation))
-    table = read_table(data)
+    table, record = read_table(data), file_record(data)
     given = click.get_current_context().get_parameter_source("nodes").name == "COMMANDLINE"
     with Progress("train") as progress:
         clock = FitClock(progress, nodes, on_start=warn_more_nodes_than_rows if given else None)
         bundle = run_interruptible(run_training, table, job, callback=clock, progress=progress)
+    bundle = with_training_data(bundle, record)
     save(bundle, output, overwrite=overwrite)
     click.echo(f"wrote {output} (bundle {bundle.bundle_id[:12]}); {_metrics_line(bundle)}", err=True)
     warn_rows_outside(bundle)

@@ -75,6 +75,7 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
     from nodecast.compiler.csvio import read_table
     from nodecast.compiler.files import refuse_existing_outputs
     from nodecast.compiler.progress import Progress, run_interruptible
+    from nodecast.compiler.provenance import file_record, with_training_data
     from nodecast.trainer.grid import make_grid
     from nodecast.trainer.growth import GrowthSettings
     from nodecast.trainer.selection import SearchSettings
@@ -95,12 +96,13 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
     settings = SearchSettings(folds, seed, activation, precision, tolerance, _jobs(jobs))
     growth = GrowthSettings(grow_batch, grow_threshold, grow_patience,
                             grow_pool or 2 * max(grid.nodes)) if grow else None
-    table = read_table(data)
+    table, record = read_table(data), file_record(data)
     with Progress("select") as progress:
         result, bundle = run_interruptible(
             run_selection, table, job, grid, settings, growth,
             callback=UnitClock(progress, len(table.rows), max(grid.nodes), folds, grow),
             progress=progress)
+    bundle = with_training_data(bundle, record)
     save(bundle, output, overwrite=overwrite)
     if report:
         _write_report(report, result, bundle, overwrite)

@@ -194,3 +194,31 @@ def test_verify_row_of_rejected_outside_probes_says_how_many(capsys, small, tmp_
     count = int(row.split()[2])
     assert f"{count} of {count} rows rejected, as the reject policy requires" in row
     assert "0.000e+00" not in row
+
+
+def test_inspect_shows_what_was_chosen_and_the_training_datas_sha256(capsys, tmp_path):
+    import hashlib
+    import json
+
+    rng = np.random.default_rng(2)
+    X = rng.random((80, 2))
+    data = _csv(tmp_path / "d.csv", ["a", "b", "y"], [[float(a), float(b), float(a - b)] for a, b in X])
+    status, _, err = run_cli(capsys, "train", data, "--target", "y", "--nodes", "12", "--seed", "7",
+                             "--slope-scale", "0.5", "--ridge", "1e-3", "--units", "a=m",
+                             "-o", tmp_path / "m.ncz")
+    assert status == 0, err
+    status, text, _ = run_cli(capsys, "inspect", tmp_path / "m.ncz")
+    assert status == 0
+    sha = hashlib.sha256(data.read_bytes()).hexdigest()  # hashlib: FIPS 180-4 SHA-256
+    assert ("made with: method data-driven, neighbours 10, slope scale 0.5, ridge 0.001 (given), "
+            "seed 7") in text
+    assert f"training data: 80 rows, SHA-256 {sha}" in text
+    assert "  a [m]: domain" in text and "  b: domain" in text  # no empty unit as []
+    assert "[]" not in text and "[0." not in text  # no raw lists
+    status, doc, _ = run_cli(capsys, "inspect", tmp_path / "m.ncz", "--json")
+    assert json.loads(doc)["metadata"]["training_data"] == {"sha256": sha, "bytes": data.stat().st_size}
+    # automatic ridge says so
+    status, _, _ = run_cli(capsys, "train", data, "--target", "y", "--nodes", "12",
+                           "-o", tmp_path / "auto.ncz")
+    status, text, _ = run_cli(capsys, "inspect", tmp_path / "auto.ncz")
+    assert "(automatic, " in text and "seed 0" in text
