@@ -251,7 +251,8 @@ def inspect(model, precision, as_json):
 @click.option("--out-of-domain", type=click.Choice(["clamp", "pass", "reject"]), default="pass",
               show_default=True, help="What the artifact does with inputs outside the declared domain.")
 @click.option("--flag-out-of-domain", is_flag=True, help="ONNX: add a boolean output per row.")
-@click.option("--opset", type=int, help="ONNX operator set version (default: pinned newest).")
+@click.option("--opset", type=int, help="ONNX operator set version (default: the oldest this graph needs, 9, or 18 with "
+                   "--flag-out-of-domain; see docs/onnx.md).")
 @click.option("--prefix", default="model", show_default=True, help="C: file and identifier prefix.")
 @click.option("--activation-impl", type=click.Choice(["libm", "rational", "table"]),
               help="C: how tanh is evaluated (default: libm for float, table for q31/q15).")
