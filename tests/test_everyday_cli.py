@@ -222,3 +222,52 @@ def test_inspect_shows_what_was_chosen_and_the_training_datas_sha256(capsys, tmp
                            "-o", tmp_path / "auto.ncz")
     status, text, _ = run_cli(capsys, "inspect", tmp_path / "auto.ncz")
     assert "(automatic, " in text and "seed 0" in text
+
+
+def _with_ids(small, tmp_path) -> Path:
+    lines = small["data"].read_text().splitlines()
+    rows = [f"stamp,{lines[0]}"] + [f"2026-12-02T10:{i:02d},{line}" for i, line in enumerate(lines[1:6])]
+    path = tmp_path / "ids.csv"
+    path.write_text("\n".join(rows) + "\n")
+    return path
+
+
+def test_predict_keeps_chosen_columns_before_the_predictions(capsys, small, tmp_path):
+    import csv
+
+    from nodecast.compiler import load, reference
+
+    data = _with_ids(small, tmp_path)
+    status, out, err = run_cli(capsys, "predict", small["bundle"], data, "--keep", "stamp,b")
+    assert status == 0, err
+    table = list(csv.reader(out.splitlines()))
+    assert table[0] == ["stamp", "b", "y"]
+    source = list(csv.reader(data.read_text().splitlines()))
+    assert [row[:2] for row in table[1:]] == [[row[0], row[2]] for row in source[1:]]  # verbatim
+    X = np.array([[float(row[1]), float(row[2])] for row in source[1:]])
+    want = reference.predict(load(small["bundle"]).network, X)[:, 0]
+    assert [float(row[2]) for row in table[1:]] == list(want)
+    for keep, words in (("nope", "'nope'"), ("y", "already has a column"), ("b,b", "twice")):
+        status, out, err = run_cli(capsys, "predict", small["bundle"], data, "--keep", keep)
+        assert status == 2 and out == "" and words in err
+
+
+def test_standalone_predictor_keeps_chosen_columns(capsys, small, tmp_path):
+    import csv
+    import subprocess
+    import sys
+
+    data = _with_ids(small, tmp_path)
+    assert run_cli(capsys, "emit", small["bundle"], "--to", "python", "-o", tmp_path / "p.py")[0] == 0
+    status, cli_out, _ = run_cli(capsys, "predict", small["bundle"], data, "--keep", "stamp")
+    result = subprocess.run([sys.executable, "-I", "-S", str(tmp_path / "p.py"), str(data),
+                             "--keep", "stamp"], capture_output=True, text=True)
+    assert result.returncode == 0, result.stderr
+    ours, theirs = (list(csv.reader(text.splitlines())) for text in (result.stdout, cli_out))
+    assert ours[0] == ["stamp", "y"] and [r[0] for r in ours] == [r[0] for r in theirs]
+    assert np.allclose([float(r[1]) for r in ours[1:]], [float(r[1]) for r in theirs[1:]],
+                       rtol=0, atol=1e-12)
+    result = subprocess.run([sys.executable, "-I", "-S", str(tmp_path / "p.py"), str(data),
+                             "--keep", "missing"], capture_output=True, text=True)
+    assert result.returncode == 2 and "'missing'" in result.stderr
+    assert len(result.stderr.strip().splitlines()) == 1
