@@ -250,11 +250,25 @@ def kept_columns(table, names) -> tuple[list[str], list[list[str]]]:
 @click.option("--precision", type=click.Choice(["float64", "float32", "q31", "q15"]),
               help="Also estimate the export error in this precision.")
 @click.option("--json", "as_json", is_flag=True, help="Print JSON instead of text.")
-def inspect(model, precision, as_json):
+@click.option("--plot", "plot_folder", type=click.Path(), metavar="DIR",
+              help="Also draw nodes.png (each node's pre-activation range over the domain) into "
+                   "this folder, and predicted_vs_actual.png with --data (needs matplotlib).")
+@click.option("--data", type=click.Path(dir_okay=False),
+              help="With --plot: labelled rows for the predicted-against-actual plot.")
+@click.option("--overwrite", is_flag=True, help="Replace existing plot files.")
+def inspect(model, precision, as_json, plot_folder, data, overwrite):
     """Show a bundle: sizes, domain, metrics, node diagnostics and error estimates."""
     from nodecast.compiler.inspection import describe_bundle, format_description
 
+    if data and not plot_folder:
+        raise NodecastError("--data is for the predicted-against-actual plot; add --plot DIR")
     bundle = load_bundle(model)
+    if plot_folder:
+        from nodecast.compiler.csvio import read_table
+        from nodecast.compiler.plots import plot_bundle
+
+        for path in plot_bundle(bundle, plot_folder, read_table(data) if data else None, overwrite):
+            click.echo(f"wrote {path}", err=True)
     description = describe_bundle(bundle, precision)
     click.echo(json.dumps(description, indent=2, sort_keys=True) if as_json
                else format_description(description))

@@ -109,8 +109,14 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
     if plot:
         from nodecast.trainer.selection_plot import plot_search
 
-        plot_search(result, plot, overwrite=overwrite)
+        net = bundle.network
+        plot_search(result, plot, overwrite=overwrite, target=net.target_names[0],
+                    unit=net.target_units[0], n_features=net.n_features)
     click.echo(_summary(result, bundle, output), err=True)
+    from nodecast.trainer.selection_plot import edge_hints
+
+    for hint in edge_hints(result):
+        click.echo(f"nodecast: hint: {hint}", err=True)
 
 
 def _jobs(text: str) -> int | None:
