@@ -29,7 +29,12 @@ for artifact in "${targets[@]}"; do
 done
 
 gate=(--max-rmse 1.5)
-if [ -n "$shipped" ]; then gate+=(--baseline "$shipped"); fi
+if [ -n "$shipped" ]; then
+  gate+=(--baseline "$shipped")
+  # how far the behaviour moves (a report here; add --max-change X to make it a gate)
+  nodecast diff "$shipped" "$out/candidate.ncz" --data "$out/held_out.csv" \
+    --junit "$out/junit/diff.xml" --report "$out/diff.json" --overwrite
+fi
 nodecast score "$out/candidate.ncz" "$out/held_out.csv" "${gate[@]}" \
   --junit "$out/junit/score.xml" --report "$out/score.json" --overwrite
 
