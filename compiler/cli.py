@@ -22,7 +22,8 @@ from nodecast.compiler.version import __version__
 
 EXAMPLES = {
     "train": ("nodecast train readings.csv --target heatsink_temp --nodes 300 "
-              "--domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,supply_voltage=22:26 -o fan.ncz"),
+              "--domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,"
+              "supply_voltage=22:26 -o fan.ncz"),
     "predict": "nodecast predict fan.ncz readings.csv -o predictions.csv",
     "inspect": "nodecast inspect fan.ncz --precision float32",
     "emit": "nodecast emit fan.ncz --to onnx --precision float32 -o fan.onnx",
@@ -135,12 +136,11 @@ def train(data, target, features, domain, units, method, nodes, neighbors, slope
     from nodecast.compiler.bundle import save
     from nodecast.compiler.csvio import read_table
     from nodecast.compiler.files import refuse_existing
-    from nodecast.trainer.training import TrainingJob
-    from nodecast.trainer.training import train as run_training
-
     from nodecast.compiler.progress import Progress, run_interruptible
     from nodecast.compiler.provenance import file_record, with_training_data
     from nodecast.trainer.cost import FitClock
+    from nodecast.trainer.training import TrainingJob
+    from nodecast.trainer.training import train as run_training
 
     refuse_existing(Path(output), overwrite)  # before training, not after minutes of it
 
@@ -282,7 +282,8 @@ def inspect(model, precision, as_json, plot_folder, data, overwrite):
 @click.option("--out-of-domain", type=click.Choice(["clamp", "pass", "reject"]), default="pass",
               show_default=True, help="What the artifact does with inputs outside the declared domain.")
 @click.option("--flag-out-of-domain", is_flag=True, help="ONNX: add a boolean output per row.")
-@click.option("--opset", type=int, help="ONNX operator set version (default: the oldest this graph needs, 9, or 18 with "
+@click.option("--opset", type=int,
+              help="ONNX operator set version (default: the oldest this graph needs, 9, or 18 with "
                    "--flag-out-of-domain; see docs/onnx.md).")
 @click.option("--prefix", default="model", show_default=True, help="C: file and identifier prefix.")
 @click.option("--activation-impl", type=click.Choice(["libm", "rational", "table"]),
@@ -349,11 +350,10 @@ def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, junit,
     Exit 0 when every probe family agrees within the tolerance, 1 when one does not, 2 on bad input.
     """
     from nodecast.compiler.csvio import read_table
-    from nodecast.compiler.files import write_atomic
+    from nodecast.compiler.files import refuse_existing_outputs, write_atomic
+    from nodecast.compiler.progress import EngineClock, Progress
     from nodecast.compiler.verify import format_table
     from nodecast.compiler.verify import verify as run_verify
-    from nodecast.compiler.files import refuse_existing_outputs
-    from nodecast.compiler.progress import EngineClock, Progress
     from nodecast.compiler.verify.report import to_json, verify_junit
 
     refuse_existing_outputs(overwrite, report, junit)

@@ -63,8 +63,8 @@ def score(model, data, max_rmse, min_accuracy, baseline, rmse_margin, accuracy_m
     """
     from nodecast.compiler.bundle import load
     from nodecast.compiler.csvio import read_table
-    from nodecast.compiler.scoring import score as run_score
     from nodecast.compiler.files import refuse_existing_outputs
+    from nodecast.compiler.scoring import score as run_score
     from nodecast.compiler.verify.report import format_score_table, score_junit, to_json
 
     refuse_existing_outputs(overwrite, report, junit)

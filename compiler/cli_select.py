@@ -14,7 +14,8 @@ import click
 from nodecast.compiler.errors import NodecastError
 
 EXAMPLE = ("nodecast select readings.csv --target heatsink_temp "
-           "--domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,supply_voltage=22:26 --nodes 50,100,250 "
+           "--domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,supply_voltage=22:26 "
+           "--nodes 50,100,250 "
            "--neighbors 10,20,30 --ridge 0,1e-6 --precision float32 --tolerance 0.05 "
            "-o fan.ncz --report cv.json --plot cv.png")
 

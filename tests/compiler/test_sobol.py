@@ -25,7 +25,8 @@ def test_points_equal_scipys_scrambled_sobol(d, n, seed):
 
 def _modules_after(args: list[str]) -> set[str]:
     code = ("import sys\nfrom nodecast.compiler.cli import main\n"
-            "try:\n    main(sys.argv[1:])\nexcept SystemExit as exc:\n    assert exc.code in (0, None), exc.code\n"
+            "try:\n    main(sys.argv[1:])\n"
+            "except SystemExit as exc:\n    assert exc.code in (0, None), exc.code\n"
             "print(' '.join(sorted(sys.modules)))")
     result = subprocess.run([sys.executable, "-c", code, *args], capture_output=True, text=True,
                             check=True)
