@@ -34,8 +34,8 @@ def _limits(text: str | None) -> tuple[float, ...] | None:
 @click.option("--max-change", metavar="X[,X..]",
               help="Gate: largest allowed change of each output, in target units (one, or one "
                    "per output); a changed domain fails it too.")
-@click.option("--samples", type=click.IntRange(min=1, max=10**6), default=4096, show_default=True,
-              help="Random points the search starts from (plus the box's corners).")
+@click.option("--samples", type=click.IntRange(min=1, max=10**6), default=20000, show_default=True,
+              help="Random points the search starts from (plus the box's centre and corners).")
 @click.option("--seed", type=click.IntRange(min=0, max=2**32 - 1), default=0, show_default=True)
 @click.option("--report", type=click.Path(dir_okay=False), help="Write the JSON report here.")
 @click.option("--junit", type=click.Path(dir_okay=False), help="Write a JUnit XML report here.")
