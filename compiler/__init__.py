@@ -4,12 +4,23 @@ from __future__ import annotations
 
 import math
 
-from nodecast.compiler.bundle import Bundle, load, save
 from nodecast.compiler.errors import BundleError, NodecastError
-from nodecast.compiler.ir import Network
+
+_LAZY = {"Bundle": "nodecast.compiler.bundle", "load": "nodecast.compiler.bundle",
+         "save": "nodecast.compiler.bundle", "Network": "nodecast.compiler.ir"}
 
 
-def emit(bundle: Bundle, to: str, path=None, overwrite: bool = False, max_bytes: int | None = None,
+def __getattr__(name: str):
+    """Bundle, load, save and Network load numpy: import them when first asked for, so that
+    ``nodecast --help`` and the commands that do not need them start fast."""
+    if name in _LAZY:
+        import importlib
+
+        return getattr(importlib.import_module(_LAZY[name]), name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def emit(bundle, to: str, path=None, overwrite: bool = False, max_bytes: int | None = None,
          **options):
     """Render ``bundle`` for target ``to`` ("onnx", "c", "python"); write it to ``path`` if given.
 

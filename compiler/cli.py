@@ -15,13 +15,16 @@ from pathlib import Path
 import click
 
 from nodecast.compiler.cli_compare import compare as compare_command
+from nodecast.compiler.cli_diff import diff as diff_command
 from nodecast.compiler.cli_score import score as score_command
 from nodecast.compiler.cli_select import select as select_command
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.version import __version__
 
 EXAMPLES = {
-    "train": "nodecast train readings.csv --target heatsink_temp --nodes 300 -o fan.ncz",
+    "train": ("nodecast train readings.csv --target heatsink_temp --nodes 300 "
+              "--domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,"
+              "supply_voltage=22:26 -o fan.ncz"),
     "predict": "nodecast predict fan.ncz readings.csv -o predictions.csv",
     "inspect": "nodecast inspect fan.ncz --precision float32",
     "emit": "nodecast emit fan.ncz --to onnx --precision float32 -o fan.onnx",
@@ -144,6 +147,9 @@ def train(data, target, features, domain, units, categorical, method, nodes, nei
     from nodecast.compiler.bundle import save
     from nodecast.compiler.csvio import read_table
     from nodecast.compiler.files import refuse_existing
+    from nodecast.compiler.progress import Progress, run_interruptible
+    from nodecast.compiler.provenance import file_record, with_training_data
+    from nodecast.trainer.cost import FitClock
     from nodecast.trainer.training import TrainingJob, heavy_tail_note
     from nodecast.trainer.training import train as run_training
 
@@ -159,13 +165,19 @@ def train(data, target, features, domain, units, categorical, method, nodes, nei
                     angle_range=_parse_range(angle_range, "--angle-range"),
                     weight_sum=_parse_range(weight_sum, "--weight-sum"),
                     ridge=parse_ridge(ridge), activation=activation))
-    bundle = run_training(read_table(data), job)
+    table, record = read_table(data), file_record(data)
+    given = click.get_current_context().get_parameter_source("nodes").name == "COMMANDLINE"
+    with Progress("train") as progress:
+        clock = FitClock(progress, nodes, on_start=warn_more_nodes_than_rows if given else None)
+        bundle = run_interruptible(run_training, table, job, callback=clock, progress=progress)
+    bundle = with_training_data(bundle, record)
     save(bundle, output, overwrite=overwrite)
     click.echo(f"wrote {output} (bundle {bundle.bundle_id[:12]}); {_choice_line(bundle)}"
                f"{_metrics_line(bundle)}", err=True)
     note = heavy_tail_note(bundle.metadata)
     if note:
         click.echo(note, err=True)
+    warn_rows_outside(bundle)
 
 
 def _parse_neighbors(text: str):
@@ -207,6 +219,30 @@ def _choice_line(bundle) -> str:
             f"generalized cross-validation over {len(choice['candidates'])} candidates; ")
 
 
+def warn(text: str) -> None:
+    click.echo(f"nodecast: warning: {text}", err=True)
+
+
+def warn_more_nodes_than_rows(nodes: int, rows: int) -> None:
+    """A warning when --nodes exceeds the rows (told when the first fit starts, after the data
+    passed its checks; not for the default M, which is ours to choose)."""
+    from nodecast.compiler.progress import format_seconds
+    from nodecast.trainer.cost import fit_seconds
+
+    if nodes > rows > 0:
+        warn(f"{nodes} nodes for {rows} rows: nodes beyond the number of rows add time and "
+             f"ill-conditioning, not accuracy (the fit can already pass through every row); "
+             f"expect about {format_seconds(2 * fit_seconds(rows, nodes))} of training; "
+             "consider --nodes below the row count, or nodecast select")
+
+
+def warn_rows_outside(bundle) -> None:
+    outside, rows = bundle.metadata.get("rows_outside_domain"), bundle.metadata.get("rows")
+    if isinstance(outside, int) and outside > 0:
+        warn(f"{outside} of {rows} training rows lie outside the declared --domain; the model is "
+             "fitted to them too, but artifacts treat such inputs by their --out-of-domain policy")
+
+
 def _metrics_line(bundle) -> str:
     metrics = bundle.metadata.get("metrics", {})
     parts = []
@@ -224,8 +260,11 @@ def _metrics_line(bundle) -> str:
 @click.argument("data", type=click.Path(dir_okay=False))
 @click.option("-o", "--output", type=click.Path(dir_okay=False), help="Output CSV (default stdout).")
 @click.option("--scores", is_flag=True, help="Classifiers: add one score column per class.")
+@click.option("--keep", metavar="COL[,COL..]",
+              help="Copy these input columns (an id, a timestamp) unchanged into the output, "
+                   "before the predictions.")
 @click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
-def predict(model, data, output, scores, overwrite):
+def predict(model, data, output, scores, keep, overwrite):
     """Predict with the float64 reference (the ground truth every artifact is checked against)."""
     import numpy as np
 
@@ -235,7 +274,9 @@ def predict(model, data, output, scores, overwrite):
     from nodecast.compiler.levels import table_rows
 
     net = load_bundle(model).network
-    X = table_rows(read_table(data), net, allow_nonfinite=True)
+    table = read_table(data)
+    kept_names, kept = kept_columns(table, parse_list(keep, option="--keep"))
+    X = table_rows(table, net, allow_nonfinite=True)
     with np.errstate(over="ignore", invalid="ignore"):  # IEEE 754 results: docs/reliability.md
         Y = reference.predict(net, X)
     if net.task == "classification":
@@ -244,11 +285,23 @@ def predict(model, data, output, scores, overwrite):
         rows = [[label] + (list(row) if scores else []) for label, row in zip(labels, Y, strict=True)]
     else:
         header, rows = list(net.target_names), Y.tolist()
-    text = write_table(header, rows)
+    clash = sorted(set(kept_names) & set(header))
+    if clash:
+        raise NodecastError(f"--keep {', '.join(map(repr, clash))}: the output already has a "
+                            "column of that name; keep another column or rename it")
+    text = write_table(kept_names + header, [k + r for k, r in zip(kept, rows, strict=True)])
     if output:
         write_atomic(output, text.encode("utf-8"), overwrite=overwrite)
     else:
         sys.stdout.write(text)
+
+
+def kept_columns(table, names) -> tuple[list[str], list[list[str]]]:
+    """predict --keep: the named columns' cells, copied as they are, per row."""
+    if len(set(names)) != len(names):
+        raise NodecastError("--keep names a column twice")
+    indices = [table.column_index(name) for name in names]
+    return list(names), [[row[i] for i in indices] for row in table.rows]
 
 
 @cli.command(epilog=_epilog("inspect"))
@@ -256,11 +309,25 @@ def predict(model, data, output, scores, overwrite):
 @click.option("--precision", type=click.Choice(["float64", "float32", "q31", "q15"]),
               help="Also estimate the export error in this precision.")
 @click.option("--json", "as_json", is_flag=True, help="Print JSON instead of text.")
-def inspect(model, precision, as_json):
+@click.option("--plot", "plot_folder", type=click.Path(), metavar="DIR",
+              help="Also draw nodes.png (each node's pre-activation range over the domain) into "
+                   "this folder, and predicted_vs_actual.png with --data (needs matplotlib).")
+@click.option("--data", type=click.Path(dir_okay=False),
+              help="With --plot: labelled rows for the predicted-against-actual plot.")
+@click.option("--overwrite", is_flag=True, help="Replace existing plot files.")
+def inspect(model, precision, as_json, plot_folder, data, overwrite):
     """Show a bundle: sizes, domain, metrics, node diagnostics and error estimates."""
     from nodecast.compiler.inspection import describe_bundle, format_description
 
+    if data and not plot_folder:
+        raise NodecastError("--data is for the predicted-against-actual plot; add --plot DIR")
     bundle = load_bundle(model)
+    if plot_folder:
+        from nodecast.compiler.csvio import read_table
+        from nodecast.compiler.plots import plot_bundle
+
+        for path in plot_bundle(bundle, plot_folder, read_table(data) if data else None, overwrite):
+            click.echo(f"wrote {path}", err=True)
     description = describe_bundle(bundle, precision)
     click.echo(json.dumps(description, indent=2, sort_keys=True) if as_json
                else format_description(description))
@@ -274,7 +341,9 @@ def inspect(model, precision, as_json):
 @click.option("--out-of-domain", type=click.Choice(["clamp", "pass", "reject"]), default="pass",
               show_default=True, help="What the artifact does with inputs outside the declared domain.")
 @click.option("--flag-out-of-domain", is_flag=True, help="ONNX: add a boolean output per row.")
-@click.option("--opset", type=int, help="ONNX operator set version (default: pinned newest).")
+@click.option("--opset", type=int,
+              help="ONNX operator set version (default: the oldest this graph needs, 9, or 18 with "
+                   "--flag-out-of-domain; see docs/onnx.md).")
 @click.option("--prefix", default="model", show_default=True, help="C: file and identifier prefix.")
 @click.option("--activation-impl", type=click.Choice(["libm", "rational", "table"]),
               help="C: how tanh is evaluated (default: libm for float, table for q31/q15).")
@@ -356,27 +425,34 @@ def budget_warning(bundle, summary: dict) -> str | None:
 @click.option("--junit", type=click.Path(dir_okay=False), help="Write a JUnit XML report here.")
 @click.option("--emulate", type=click.Choice(["cortex-m3", "cortex-m4"]),
               help="C artifacts: run on an emulated Cortex-M (QEMU) instead of the host.")
-def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, junit, emulate):
+@click.option("--overwrite", is_flag=True, help="Replace existing report files.")
+def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, junit, emulate, overwrite):
     """Run ARTIFACT in its real runtime and compare it with the bundle's reference.
 
     Exit 0 when every probe family agrees within the tolerance, 1 when one does not, 2 on bad input.
     """
     from nodecast.compiler.csvio import read_table
-    from nodecast.compiler.files import write_atomic
+    from nodecast.compiler.files import refuse_existing_outputs, write_atomic
     from nodecast.compiler.levels import table_rows
+    from nodecast.compiler.progress import EngineClock, Progress
     from nodecast.compiler.verify import format_table
     from nodecast.compiler.verify import verify as run_verify
     from nodecast.compiler.verify.report import to_json, verify_junit
 
+    refuse_existing_outputs(overwrite, report, junit)
     bundle = load_bundle(model)
     rows = table_rows(read_table(data), bundle.network) if data else None
     run_options = {"emulate": emulate} if emulate else {}
-    result = run_verify(bundle, artifact, rows, probes, seed, abs_tol, rel_tol, **run_options)
+    with Progress("verify") as progress:
+        progress.stage("drawing probes and the reference outputs")
+        progress.start()
+        result = run_verify(bundle, artifact, rows, probes, seed, abs_tol, rel_tol,
+                            on_engine=EngineClock(progress), **run_options)
     click.echo(format_table(result))
     if report:
-        write_atomic(report, to_json(result.as_dict()).encode("utf-8"), overwrite=True)
+        write_atomic(report, to_json(result.as_dict()).encode("utf-8"), overwrite=overwrite)
     if junit:
-        write_atomic(junit, verify_junit(result.as_dict()).encode("utf-8"), overwrite=True)
+        write_atomic(junit, verify_junit(result.as_dict()).encode("utf-8"), overwrite=overwrite)
     sys.exit(0 if result.passed else 1)
 
 
@@ -401,6 +477,7 @@ def demo(output, data_only):
     sys.exit(run_demo(Path(output), echo=click.echo))
 
 
+cli.add_command(diff_command)
 cli.add_command(score_command)
 cli.add_command(select_command)
 cli.add_command(compare_command)
@@ -411,6 +488,13 @@ def _stop_on_sigterm(signum, frame) -> None:
     raise SystemExit(128 + signum)
 
 
+def usage_error_line(exc) -> str:
+    """A usage error from the argument parser as one line: what is wrong and where to look."""
+    command = exc.ctx.command_path if exc.ctx is not None else "nodecast"
+    message = " ".join(exc.format_message().split())
+    return f"nodecast: error: {message} (see '{command} --help')"
+
+
 def main(argv=None) -> None:
     if threading.current_thread() is threading.main_thread():
         signal.signal(signal.SIGTERM, _stop_on_sigterm)
@@ -418,12 +502,18 @@ def main(argv=None) -> None:
         cli.main(args=argv, prog_name="nodecast", standalone_mode=False)
     except click.exceptions.Exit as exc:
         sys.exit(exc.exit_code)
+    except click.exceptions.NoArgsIsHelpError as exc:  # bare `nodecast`: the help, as asked
+        click.echo(exc.ctx.get_help(), err=True)
+        sys.exit(2)
+    except click.UsageError as exc:
+        click.echo(usage_error_line(exc), err=True)
+        sys.exit(2)
     except click.ClickException as exc:
         exc.show()
         sys.exit(2)
-    except click.exceptions.Abort:
-        click.echo("aborted", err=True)
-        sys.exit(2)
+    except click.exceptions.Abort:  # click's form of Ctrl-C (KeyboardInterrupt) in a command
+        click.echo("nodecast: interrupted", err=True)
+        sys.exit(130)
     except NodecastError as exc:
         click.echo(f"nodecast: error: {' '.join(str(exc).split())}", err=True)
         sys.exit(2)

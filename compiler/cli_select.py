@@ -9,7 +9,6 @@ the same seed writes the same arrays.
 from __future__ import annotations
 
 import json
-import sys
 from dataclasses import replace
 
 import click
@@ -17,7 +16,9 @@ import click
 from nodecast.compiler.cli_grid import grid_options, layer_values, parse_methods
 from nodecast.compiler.errors import NodecastError
 
-EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,250 "
+EXAMPLE = ("nodecast select readings.csv --target heatsink_temp "
+           "--domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,supply_voltage=22:26 "
+           "--nodes 50,100,250 "
            "--neighbors 10,20,30 --ridge 0,1e-6 --precision float32 --tolerance 0.05 "
            "-o fan.ncz --report cv.json --plot cv.png")
 
@@ -87,6 +88,9 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     from nodecast.compiler.bundle import save
     from nodecast.compiler.cli import parse_domain, parse_list, parse_units
     from nodecast.compiler.csvio import read_table
+    from nodecast.compiler.files import refuse_existing_outputs
+    from nodecast.compiler.progress import Progress, run_interruptible
+    from nodecast.compiler.provenance import file_record, with_training_data
     from nodecast.trainer.grid import make_grid
     from nodecast.trainer.growth import GrowthSettings
     from nodecast.trainer.method_grid import layer_grid
@@ -96,6 +100,7 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
 
     if tolerance is not None and precision is None:
         raise NodecastError("--tolerance needs --precision (the precision to estimate it in)")
+    refuse_existing_outputs(overwrite, output, report, plot)  # before the search, not after it
     job = TrainingJob(
         targets=parse_list(target, option="--target"),
         features=parse_list(features, option="--features"),
@@ -115,22 +120,34 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
                                              folds, activation, scoring, _jobs(jobs) or 1)
         save(bundle, output, overwrite=overwrite)
         if report:
-            _write_report(report, result, bundle)
+            _write_report(report, result, bundle, overwrite)
         click.echo(f"wrote {output} (bundle {bundle.bundle_id[:12]}); chose "
                    f"{result.describe()}", err=True)
         return
     settings = SearchSettings(folds, seed, activation, precision, tolerance, _jobs(jobs))
     growth = GrowthSettings(grow_batch, grow_threshold, grow_patience,
                             grow_pool or 2 * max(grid.nodes)) if grow else None
-    result, bundle = run_selection(read_table(data), job, grid, settings, growth, _progress())
+    table, record = read_table(data), file_record(data)
+    with Progress("select") as progress:
+        result, bundle = run_interruptible(
+            run_selection, table, job, grid, settings, growth,
+            callback=UnitClock(progress, len(table.rows), max(grid.nodes), folds, grow),
+            progress=progress)
+    bundle = with_training_data(bundle, record)
     save(bundle, output, overwrite=overwrite)
     if report:
-        _write_report(report, result, bundle)
+        _write_report(report, result, bundle, overwrite)
     if plot:
         from nodecast.trainer.selection_plot import plot_search
 
-        plot_search(result, plot, overwrite=True)
+        net = bundle.network
+        plot_search(result, plot, overwrite=overwrite, target=net.target_names[0],
+                    unit=net.target_units[0], n_features=net.n_features)
     click.echo(_summary(result, bundle, output), err=True)
+    from nodecast.trainer.selection_plot import edge_hints
+
+    for hint in edge_hints(result):
+        click.echo(f"nodecast: hint: {hint}", err=True)
 
 
 def _jobs(text: str) -> int | None:
@@ -141,23 +158,41 @@ def _jobs(text: str) -> int | None:
     raise NodecastError(f"--jobs takes a positive integer or 'auto', got {text!r}")
 
 
-def _progress():
-    if not sys.stderr.isatty():
-        return None
+class UnitClock:
+    """The search's progress callback: units done with time left, then the final refit (or the
+    growth) with an estimate from the units' measured pace (trainer.cost's work model)."""
 
-    def show(done: int, total: int) -> None:
-        click.echo(f"\rselect: {done}/{total} (fold, layer) units", nl=done == total, err=True)
+    def __init__(self, progress, rows: int, max_nodes: int, folds: int, grow: bool):
+        import time
 
-    return show
+        self.progress, self.rows, self.max_nodes, self.folds = progress, rows, max_nodes, folds
+        self.grow, self.clock, self.started = grow, time.monotonic, time.monotonic()
+        progress.stage("cross-validating the grid")
+
+    def __call__(self, done: int, total: int) -> None:
+        from nodecast.trainer.cost import fit_units
+
+        spent = self.clock() - self.started
+        if done < total:
+            self.progress.stage(f"{done} of {total} (fold, k, s) units done",
+                                spent / done * total, since=self.started)
+            return
+        fold_rows = self.rows * (self.folds - 1) // self.folds
+        rate = spent / total / max(fit_units(fold_rows, self.max_nodes), 1.0)
+        if self.grow:
+            self.progress.stage("growing the chosen model in batches")
+        else:  # train's two fits (all rows, validation split) of at most the largest M
+            self.progress.stage("refitting the choice on all rows",
+                                2 * rate * fit_units(self.rows, self.max_nodes))
 
 
-def _write_report(path, result, bundle) -> None:
+def _write_report(path, result, bundle, overwrite: bool) -> None:
     from nodecast.compiler.files import write_atomic
 
     document = {"bundle_id": bundle.bundle_id, "features": list(bundle.network.feature_names),
                 "targets": list(bundle.network.target_names), **result.as_dict()}
     text = json.dumps(document, indent=2, sort_keys=True, allow_nan=False) + "\n"
-    write_atomic(path, text.encode("utf-8"), overwrite=True)
+    write_atomic(path, text.encode("utf-8"), overwrite=overwrite)
 
 
 def _summary(result, bundle, output) -> str:

@@ -112,28 +112,36 @@ def _span(ranges: dict) -> dict:
 
 
 def format_description(d: dict) -> str:
+    """The text of ``inspect``: what the model is, how it was made, from which data, how it did."""
     lines = [f"bundle {d['bundle_id']}", f"{d['task']}, {d['nodes']} {d['activation']} nodes, "
              f"{d['parameters']} parameters, max |output weight| {d['max_abs_output_weight']:.3g}"]
+    meta = d["metadata"]
+    lines += _made_lines(meta)
     lines.append("features (in input order):")
     for f in d["features"]:
-        lines.append(f"  {json.dumps(f['name'])} [{f['unit']}] domain {f['domain'][0]!r} .. "
-                     f"{f['domain'][1]!r}")
-    for c in d["categorical"]:
-        lines.append(f"  {json.dumps(c['name'])} categorical, levels (code: text) "
-                     + ", ".join(f"{k}: {json.dumps(level)}" for k, level in enumerate(c["levels"])))
-    lines.append("outputs: " + ", ".join(json.dumps(t["name"]) for t in d["targets"]))
-    metrics = d["metadata"].get("metrics", {})
-    for split, values in sorted(metrics.items()):
-        lines.append(f"{split}: " + ", ".join(f"{k} {v}" for k, v in sorted(values.items())))
+        lines.append(f"  {_name(f['name'])}{_unit(f['unit'])}: domain {_exact(f['domain'][0])} .. "
+                     f"{_exact(f['domain'][1])}")
+    for c in d.get("categorical", []):
+        lines.append(f"  {_name(c['name'])}: categorical, levels (code: text) "
+                     + ", ".join(f"{k}: {_name(level)}" for k, level in enumerate(c["levels"])))
+    if d["task"] == "classification":
+        labels = d["class_labels"]
+        lines.append(f"classes ({len(labels)}): " + ", ".join(_name(label) for label in labels[:20])
+                     + (f", ... and {len(labels) - 20} more" if len(labels) > 20 else ""))
+    else:
+        lines.append("outputs: " + ", ".join(f"{_name(t['name'])}{_unit(t['unit'])}"
+                                             for t in d["targets"]))
+    lines += _metric_lines(_record(meta, "metrics"))
     lines.append(f"nodes saturated over the whole domain: {d['saturated_nodes_on_domain']} of {d['nodes']}"
                  + _span_text(d["node_z_range_on_domain"]))
     training = d["saturated_nodes_on_training_data"]
     lines.append("nodes saturated over the training data: " + (
         "not recorded" if training is None else
         f"{training} of {d['nodes']}" + _span_text(d["node_z_range_on_training_data"])))
-    diagnostics = d["metadata"].get("diagnostics", {})
+    diagnostics = _record(meta, "diagnostics")
     if diagnostics:
-        lines.append("fit diagnostics: " + ", ".join(f"{k} {v}" for k, v in sorted(diagnostics.items())))
+        lines.append("fit diagnostics: " + ", ".join(f"{k.replace('_', ' ')} {_plain(v)}"
+                                                     for k, v in sorted(diagnostics.items())))
     if "estimate" in d:
         e, budget = d["estimate"], d["accuracy_budget"]
         for target, record in d["certified_bound_by_target"].items():
@@ -146,6 +154,92 @@ def format_description(d: dict) -> str:
         lines.append(f"typical {e['precision']} error (an estimate, not a bound): "
                      f"{e['max_abs_error']:.3g}")
     return "\n".join(lines)
+
+
+def _record(meta: dict, key: str) -> dict:
+    value = meta.get(key)
+    return value if isinstance(value, dict) else {}
+
+
+def _name(text) -> str:
+    """A name as is when it is plain, else quoted with escapes (no control characters through)."""
+    text = str(text)
+    plain = text and text.isprintable() and not any(c in text for c in " \"',[]")
+    return text if plain else json.dumps(text)
+
+
+def _unit(unit) -> str:
+    return f" [{_name(unit)}]" if unit else ""
+
+
+def _exact(value: float) -> str:
+    """The shortest text that reads back as exactly this float (a domain bound is a promise)."""
+    return repr(float(value))
+
+
+def _plain(value) -> str:
+    """A metadata value without brackets: a list of one number as that number, lists joined."""
+    if isinstance(value, (list, tuple)):
+        return ", ".join(_plain(v) for v in value) if value else "none"
+    if isinstance(value, float):
+        return f"{value:.4g}"
+    return _name(value) if isinstance(value, str) else str(value)
+
+
+def _made_lines(meta: dict) -> list[str]:
+    settings, ridge = _record(meta, "settings"), _record(meta, "ridge")
+    lines = []
+    if settings:
+        neighbours = _record(meta, "diagnostics").get("neighbors", settings.get("n_neighbors"))
+        parts = [f"method {_plain(settings.get('method', '?'))}"]
+        if settings.get("method") == "data-driven":
+            parts += [f"neighbours {_plain(neighbours)}",
+                      f"slope scale {_plain(settings.get('slope_scale'))}"]
+        else:
+            parts.append(f"interval u {_plain(settings.get('interval'))}")
+        if "value" in ridge:
+            rule = ridge.get("rule", "?")
+            parts.append(f"ridge {_plain(ridge['value'])} ("
+                         + ("given" if rule == "given" else f"automatic, {_plain(rule)}") + ")")
+        parts.append(f"seed {_plain(meta.get('seed', settings.get('random_state')))}")
+        lines.append("made with: " + ", ".join(parts))
+    selection = _record(meta, "selection")
+    if selection:
+        text = (f"chosen by select: {_plain(selection.get('folds'))}-fold cross-validation over "
+                f"{_plain(selection.get('grid_points'))} grid points")
+        if selection.get("precision"):
+            text += f", for {_plain(selection['precision'])}"
+            if selection.get("tolerance") is not None:
+                text += (f" within {_plain(selection['tolerance'])} ("
+                         f"{_plain(selection.get('rejected_by_budget'))} points over budget)")
+        if selection.get("grown"):
+            text += ", then grown in batches"
+        lines.append(text)
+    data = _record(meta, "training_data")
+    rows, outside = meta.get("rows"), meta.get("rows_outside_domain")
+    text = f"training data: {_plain(rows)} rows" if rows is not None else "training data:"
+    if outside:
+        text += f" ({_plain(outside)} outside the declared domain)"
+    text += (f", SHA-256 {_plain(data.get('sha256'))}" if data.get("sha256")
+             else ", SHA-256 not recorded (bundle made before it was)")
+    return lines + [text]
+
+
+_METRIC_NAMES = {"rmse": "RMSE", "max_abs_error": "max abs error", "accuracy": "accuracy",
+                 "rmse_mean": "RMSE", "rmse_std": "+/-"}
+
+
+def _metric_lines(metrics: dict) -> list[str]:
+    lines = []
+    for split in ("training", "validation", "cross_validation"):
+        values = metrics.get(split)
+        if not isinstance(values, dict):
+            continue
+        parts = [f"{_METRIC_NAMES[k]} {_plain(values[k])}" for k in _METRIC_NAMES if k in values]
+        extra = [f"{_plain(values[k])} {k}" for k in ("folds", "rows") if k in values]
+        lines.append(f"{split.replace('_', '-')}: " + " ".join(parts).replace(" +/-", " +/-")
+                     + (f" ({', '.join(extra)})" if extra else ""))
+    return lines
 
 
 def _span_text(span: dict) -> str:

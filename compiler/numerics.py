@@ -64,10 +64,10 @@ class ErrorEstimate:
 
 def domain_probes(net: Network, count: int = _PROBES, seed: int = 0) -> np.ndarray:
     """Deterministic points of the declared domain: scrambled Sobol points plus up to 1024 corners."""
-    from scipy.stats import qmc
+    from nodecast.compiler.sobol import sobol as sobol_points  # scipy's sequence, 0.6 s faster
 
     n = net.n_features
-    sobol = qmc.Sobol(d=n, scramble=True, seed=seed).random(count)
+    sobol = sobol_points(n, count, seed)
     if n <= 10:
         corners = np.array(np.meshgrid(*[[0.0, 1.0]] * n, indexing="ij")).reshape(n, -1).T
     else:

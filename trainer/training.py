@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -108,6 +109,19 @@ def _check_target_varies(y: np.ndarray, names) -> None:
                                 "there is nothing to learn")
 
 
+def _check_classes(y: np.ndarray, name: str) -> None:
+    """At least two classes, and on average at least two rows per class (the rule under which
+    scikit-learn also suspects a regression target): otherwise most classes are single rows that
+    no classifier can learn, and the model would have as many outputs as the data has rows."""
+    n_classes, n_rows = len(set(y)), len(y)
+    if n_classes < 2:
+        raise NodecastError(f"target {name!r} holds a single class; need at least two")
+    if 2 * n_classes > n_rows:
+        raise NodecastError(f"target {name!r} has {n_classes} distinct labels in {n_rows} rows, "
+                            "fewer than 2 rows per class: too few to learn any class (a continuous "
+                            "target? train it with --task regression)")
+
+
 def make_estimator(job: TrainingJob, low, high):
     cls = RandomNodeClassifier if job.task == "classification" else RandomNodeRegressor
     try:
@@ -116,8 +130,10 @@ def make_estimator(job: TrainingJob, low, high):
         raise NodecastError(f"bad training option: {exc}") from None
 
 
-def train(table, job: TrainingJob) -> Bundle:
-    """Fit on all rows; report validation metrics from a same-settings fit on a held-out split."""
+def train(table, job: TrainingJob, on_stage=None) -> Bundle:
+    """Fit on all rows; report validation metrics from a same-settings fit on a held-out split.
+
+    ``on_stage``: None or callable(text, rows), told before each fit (for progress lines)."""
     features = feature_columns(table.header, job)
     numeric = split_features(features, job.categorical, job.targets)
     X = table.numbers(numeric)
@@ -129,8 +145,7 @@ def train(table, job: TrainingJob) -> Bundle:
         if len(job.targets) != 1:
             raise NodecastError("classification takes exactly one --target column (the labels)")
         y = np.asarray(table.texts(job.targets[0]), dtype=object)
-        if len(set(y)) < 2:
-            raise NodecastError(f"target {job.targets[0]!r} holds a single class; need at least two")
+        _check_classes(y, job.targets[0])
     else:
         y = table.numbers(job.targets)
         _check_finite(y, job.targets, "target")
@@ -139,12 +154,15 @@ def train(table, job: TrainingJob) -> Bundle:
     inputs = design(table, numeric, job.categorical, X, job.params.get("n_neighbors"))
     low, high = inputs.box(low, high)
     estimator = make_estimator(job, low, high)
+    if on_stage is not None:
+        _check_memory(job, X, y)  # refuse in one line before any progress or warning
+        on_stage("fitting on all rows", X.shape[0])
     try:
         estimator.fit(inputs.X, y)
     except ValueError as exc:
         raise NodecastError(f"cannot train: {' '.join(str(exc).split())}") from None
     metrics = {"training": _metrics(estimator, inputs.X, y, job.task)}
-    metrics.update(_validation(job, low, high, inputs.X, y))
+    metrics.update(_validation(job, low, high, inputs.X, y, on_stage))
     units = dict(job.units)
     target_names = job.targets if job.task == "regression" else tuple(map(str, estimator.classes_))
     metadata = {"seed": job.seed, "metrics": metrics, "rows": int(X.shape[0]),
@@ -160,15 +178,29 @@ def train(table, job: TrainingJob) -> Bundle:
         target_units=[units.get(name, "") for name in target_names], metadata=metadata)
 
 
-def _validation(job: TrainingJob, low, high, X, y) -> dict:
+def _check_memory(job: TrainingJob, X: np.ndarray, y: np.ndarray) -> None:
+    from nodecast.trainer.memory import check_fits_in_memory
+
+    outputs = len(set(y)) if job.task == "classification" else y.shape[1]
+    try:
+        check_fits_in_memory(X.shape[0], X.shape[1], int(job.params.get("n_nodes", 200)), outputs)
+    except ValueError as exc:
+        raise NodecastError(f"cannot train: {exc}") from None
+
+
+def _validation(job: TrainingJob, low, high, X, y, on_stage=None) -> dict:
     n_valid = int(round(job.validation_fraction * X.shape[0]))
     if n_valid < 1 or X.shape[0] - n_valid < 2:
         return {}
+    if on_stage is not None:
+        on_stage("validation fit", X.shape[0] - n_valid)
     order = np.random.RandomState(job.seed).permutation(X.shape[0])
     valid, fit = order[:n_valid], order[n_valid:]
     estimator = make_estimator(job, low, high)
     try:
-        estimator.fit(X[fit], y[fit])
+        with warnings.catch_warnings():  # the split may hold a class once; all rows passed _check_classes
+            warnings.filterwarnings("ignore", "The number of unique classes", UserWarning)
+            estimator.fit(X[fit], y[fit])
     except ValueError:
         return {}
     return {"validation": _metrics(estimator, X[valid], y[valid], job.task)}

@@ -42,7 +42,7 @@ _POLICY_TEXT = {
     "pass": "pass: inputs outside the domain are evaluated as given (the estimate covers the "
             "domain only)",
     "clamp": "clamp: each input is clipped into its domain before evaluation",
-    "reject": "reject: {P}_predict returns {P}_ERROR_OUT_OF_DOMAIN and leaves y untouched",
+    "reject": "reject: {p}_predict returns {P}_ERROR_OUT_OF_DOMAIN and leaves y untouched",
 }
 
 
@@ -126,7 +126,8 @@ def _common_context(bundle, precision, prefix, policy, impl, estimate, context) 
                         f"{_count(net.n_outputs, 'output')}, {net.n_nodes} {net.activation} nodes, "
                         f"{precision}.",
         "precision_text": _precision_text(precision),
-        "policy_text": _POLICY_TEXT[policy].format(P=upper), "policy_bounds": policy != "pass",
+        "policy_text": _POLICY_TEXT[policy].format(P=upper, p=prefix),
+        "policy_bounds": policy != "pass",
         "bound_type": context["word"] if fixed else context["real"],
         "domain_low": context["input_low"] if fixed else context["domain_low"],
         "domain_high": context["input_high"] if fixed else context["domain_high"],

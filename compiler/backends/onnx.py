@@ -39,13 +39,23 @@ from nodecast.compiler.passes.scaling import (
 )
 from nodecast.compiler.version import __version__
 
-# The newest operator set that both the onnx checker and onnxruntime we test with accept (onnx 1.23,
-# onnxruntime 1.32), pinned so that output bytes do not change with library upgrades.
-DEFAULT_OPSET = 28
+# The default operator set is the oldest one the graph needs, so that older runtimes load it
+# (docs/onnx.md). Every op we emit exists in the form we use by opset 9, whose IR version 4 is the
+# first that lets initializers stay out of the graph inputs; the out-of-domain flag's ReduceMin
+# takes its axes as an input only from opset 18. tests/compiler/test_onnx_opset.py checks that each
+# graph passes onnx's full check and runs in onnxruntime at its default, and fails one below it.
+OLDEST_OPSET = 9
+FLAG_OPSET = 18
+NEWEST_OPSET = 28
 # IR version that goes with each opset, from the ONNX versioning table (onnx.helper.VERSION_TABLE).
-IR_VERSION_FOR_OPSET = {18: 8, 19: 9, 20: 9, 21: 10, 22: 10, 23: 11, 24: 12, 25: 13, 26: 13,
-                        27: 13, 28: 14}
+IR_VERSION_FOR_OPSET = {9: 4, 10: 5, 11: 6, 12: 7, 13: 7, 14: 7, 15: 8, 16: 8, 17: 8, 18: 8, 19: 9,
+                        20: 9, 21: 10, 22: 10, 23: 11, 24: 12, 25: 13, 26: 13, 27: 13, 28: 14}
 SUPPORTED_OPSETS = tuple(IR_VERSION_FOR_OPSET)
+
+
+def needed_opset(flag_out_of_domain: bool) -> int:
+    """The oldest opset of the graph emitted with these options (the default)."""
+    return FLAG_OPSET if flag_out_of_domain else OLDEST_OPSET
 PRECISIONS = ("float32", "float64")
 INPUT_NAME = "features"
 LEVELS_NAME = "levels"
@@ -55,13 +65,18 @@ FLAG_NAME = "outside_domain"
 _ACTIVATION_OP = {"logistic": "Sigmoid", "tanh": "Tanh"}
 
 
-def render(bundle, precision: str = "float32", opset: int = DEFAULT_OPSET,
+def render(bundle, precision: str = "float32", opset: int | None = None,
            out_of_domain: str = "pass", flag_out_of_domain: bool = False, **_ignored) -> Artifact:
     if precision not in PRECISIONS:
         raise NodecastError(f"ONNX takes precision float32 or float64, not {precision!r}")
+    needed = needed_opset(flag_out_of_domain)
+    opset = needed if opset is None else opset
     if opset not in SUPPORTED_OPSETS:
         raise NodecastError(f"opset {opset!r} is not supported; choose one of "
                             f"{SUPPORTED_OPSETS[0]}..{SUPPORTED_OPSETS[-1]}")
+    if opset < needed:
+        raise NodecastError(f"opset {opset} is too old for this graph: --flag-out-of-domain needs "
+                            f"opset {needed} or newer (ReduceMin with its axes as an input)")
     if out_of_domain not in ("pass", "clamp"):
         raise NodecastError(f"ONNX takes out-of-domain policy 'pass' or 'clamp', not {out_of_domain!r}"
                             " (a graph cannot refuse a row; use --flag-out-of-domain to mark them)")
@@ -160,7 +175,7 @@ def _flag_stage(g: _Graph, net, known_levels=()) -> None:
                          FLAG_NAME if c == len(known_levels) - 1 else f"outside_{c}")
 
 
-def build_model(bundle, precision="float32", opset=DEFAULT_OPSET, out_of_domain="pass",
+def build_model(bundle, precision="float32", opset=OLDEST_OPSET, out_of_domain="pass",
                 flag_out_of_domain=False):
     """Return (ModelProto, summary) for the bundle's network, checked with ``full_check``."""
     import onnx
@@ -187,7 +202,9 @@ def build_model(bundle, precision="float32", opset=DEFAULT_OPSET, out_of_domain=
     if net.n_categorical:
         inputs.append(helper.make_tensor_value_info(LEVELS_NAME, TensorProto.INT64,
                                                     ["batch", net.n_categorical]))
-    graph = helper.make_graph(g.nodes, "nodecast_network", inputs, outputs, initializer=g.initializers)
+    graph = helper.make_graph(g.nodes, "nodecast_network", inputs, outputs, initializer=g.initializers,
+                              doc_string=_input_order(net))
+    graph.input[0].doc_string = _input_order(net)
     summary = {"precision": precision, "opset": opset, "input_scaling": scaling,
                "out_of_domain": out_of_domain, "estimate": estimate(net, precision).as_dict(),
                "certificate": certify(net, "onnx", precision).as_dict(),
@@ -227,6 +244,15 @@ def _metadata(bundle, summary) -> dict[str, str]:
                                                        net.categorical_levels])}
            if net.n_categorical else {}),
     }
+
+
+def _input_order(net) -> str:
+    """The columns of the input tensor in order, for the graph's and the input's doc strings."""
+    return (f"Input {INPUT_NAME!r} [batch, {net.n_features}], columns in this order: "
+            + "; ".join(f"{i}: {json.dumps(name)} [{json.dumps(unit)}] {float(lo)!r} .. {float(hi)!r}"
+                        for i, (name, unit, lo, hi) in enumerate(zip(
+                            net.feature_names, net.feature_units, net.domain_low, net.domain_high,
+                            strict=True))))
 
 
 def _doc(bundle, summary) -> str:

@@ -145,7 +145,8 @@ def _measured(results, n_outputs: int) -> list[float]:
 
 
 def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
-           abs_tol: float | None = None, rel_tol: float | None = None, **run_options) -> Report:
+           abs_tol: float | None = None, rel_tol: float | None = None, *, on_engine=None,
+           **run_options) -> Report:
     """Verify ``artifact`` (a path) against ``bundle``'s float64 reference.
 
     Parameters
@@ -155,6 +156,7 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
     data : ndarray of shape (n_rows, n_features) or None, extra probes (the user's rows).
     count, seed : the number of quasi-random probes and the seed of every probe family.
     abs_tol, rel_tol : tolerance overrides (see :mod:`nodecast.compiler.verify.tolerance`).
+    on_engine : None or callable(engine, index, total, rows), told before each runtime engine runs.
     run_options : passed to the runner's ``describe`` (e.g. ``emulate="cortex-m4"`` for C).
     """
     net, path = bundle.network, Path(artifact)
@@ -174,7 +176,9 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
     X_all = np.vstack([family.X for family in families])
     engines = list(info.get("engines") or [kind])
     results = []
-    for engine in engines:
+    for index, engine in enumerate(engines):
+        if on_engine is not None:
+            on_engine(engine, index, len(engines), X_all.shape[0])
         got_all = _run(module, path, X_all, {**info, "engine": engine}, net.n_outputs)
         labels_all = _run_labels(module, path, X_all, {**info, "engine": engine}, net)
         start = 0
