@@ -197,12 +197,17 @@ def predict(model, data, output, scores, overwrite):
 @click.option("--precision", type=click.Choice(["float64", "float32", "q31", "q15"]),
               help="Also estimate the export error in this precision.")
 @click.option("--json", "as_json", is_flag=True, help="Print JSON instead of text.")
-def inspect(model, precision, as_json):
+@click.option("--cost", is_flag=True,
+              help="Also build the C for --precision (default float32) and show its footprint "
+                   "and instructions per prediction on emulated Cortex-M0 and M4F.")
+def inspect(model, precision, as_json, cost):
     """Show a bundle: sizes, domain, metrics, node diagnostics and error estimates."""
-    from nodecast.compiler.inspection import describe_bundle, format_description
+    from nodecast.compiler.inspection import describe_bundle, format_description, target_cost
 
     bundle = load_bundle(model)
     description = describe_bundle(bundle, precision)
+    if cost:
+        description["cost"] = target_cost(bundle, precision or "float32")
     click.echo(json.dumps(description, indent=2, sort_keys=True) if as_json
                else format_description(description))
 
@@ -224,6 +229,9 @@ def inspect(model, precision, as_json):
 @click.option("--bare-metal", is_flag=True,
               help="C: also write startup.c and mps2.ld, to run your own main.c bare metal on "
                    "QEMU's MPS2 Cortex-M3/M4 boards (the board support verify --emulate uses).")
+@click.option("--instruction-count/--no-instruction-count", default=True, show_default=True,
+              help="C: count the instructions per prediction on emulated Cortex-M0 and M4F "
+                   "(QEMU).")
 @click.option("-o", "--output", required=True, type=click.Path(),
               help="Output file (onnx, python) or folder (c).")
 @click.option("--overwrite", is_flag=True, help="Replace existing output files.")
@@ -231,7 +239,7 @@ def inspect(model, precision, as_json):
               help="Refuse to write an artifact larger than this, in bytes or with K, M, G "
                    "(default 64M).")
 def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, prefix, output, overwrite,
-         max_size, activation_impl, table_size, bare_metal):
+         max_size, activation_impl, table_size, bare_metal, instruction_count):
     """Compile a bundle into an artifact for a target."""
     from nodecast.compiler import emit as emit_artifact
     from nodecast.compiler.files import parse_size
@@ -245,7 +253,7 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
         options["opset"] = opset
     if target == "c":
         options.update(prefix=prefix, activation_impl=activation_impl, table_size=table_size,
-                       footprint=True, bare_metal=bare_metal)
+                       footprint=True, bare_metal=bare_metal, instruction_count=instruction_count)
     elif activation_impl or table_size or bare_metal:
         raise NodecastError("--activation-impl, --table-size and --bare-metal apply to --to c only")
     max_bytes = None if max_size is None else parse_size(max_size)
@@ -259,6 +267,10 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
 
         click.echo(format_footprint(artifact.summary["footprint"], artifact.summary["weight_bytes"]),
                    err=True)
+    if "instructions" in artifact.summary:
+        from nodecast.compiler.instruction_count import format_counts
+
+        click.echo(format_counts(artifact.summary["instructions"]), err=True)
 
 
 @cli.command(epilog=_epilog("verify"))

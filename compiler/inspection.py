@@ -107,6 +107,8 @@ def format_description(d: dict) -> str:
     diagnostics = d["metadata"].get("diagnostics", {})
     if diagnostics:
         lines.append("fit diagnostics: " + ", ".join(f"{k} {v}" for k, v in sorted(diagnostics.items())))
+    if "cost" in d:
+        lines.extend(_cost_lines(d["cost"]))
     if "estimate" in d:
         e = d["estimate"]
         lines.append(f"estimated {e['precision']} export error: max abs {e['max_abs_error']:.3e} "
@@ -117,3 +119,26 @@ def format_description(d: dict) -> str:
 def _span_text(span: dict) -> str:
     return (f" (pre-activations from {span['min_low']:.3g} to {span['max_high']:.3g}, median node "
             f"width {span['median_width']:.3g})")
+
+
+def target_cost(bundle, precision: str) -> dict:
+    """Footprint and instructions per prediction of the C artifact in ``precision`` with the
+    default options (fixed point clamps out-of-domain inputs), as ``emit --to c`` reports them."""
+    from nodecast.compiler.backends import render
+
+    policy = "clamp" if precision in ("q15", "q31") else "pass"
+    artifact = render(bundle, "c", precision=precision, out_of_domain=policy, footprint=True,
+                      instruction_count=True)
+    summary = artifact.summary
+    return {"precision": precision, "activation_impl": summary["activation_impl"],
+            "weight_bytes": summary["weight_bytes"], "footprint": summary["footprint"],
+            "instructions": summary["instructions"]}
+
+
+def _cost_lines(cost: dict) -> list[str]:
+    from nodecast.compiler.instruction_count import format_counts
+    from nodecast.compiler.toolchain import format_footprint
+
+    return [f"C cost ({cost['precision']}, activation {cost['activation_impl']}):",
+            format_footprint(cost["footprint"], cost["weight_bytes"]),
+            format_counts(cost["instructions"])]

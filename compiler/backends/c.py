@@ -5,7 +5,8 @@
 and ``model.c.j2``. The float32/float64 layout lives in :mod:`~nodecast.compiler.backends.c_float`,
 the q15/q31 one in :mod:`~nodecast.compiler.backends.c_fixed` (formats from
 :mod:`nodecast.compiler.fixedpoint`). The footprint (sizes and stack on the host and on Cortex-M)
-is measured by :mod:`nodecast.compiler.toolchain` when asked for.
+is measured by :mod:`nodecast.compiler.toolchain` when asked for, the instructions per prediction
+on emulated Cortex-M cores by :mod:`nodecast.compiler.instruction_count`.
 """
 
 from __future__ import annotations
@@ -40,7 +41,8 @@ _POLICY_TEXT = {
 
 def render(bundle, precision: str = "float32", prefix: str = "model", out_of_domain: str = "pass",
            activation_impl: str | None = None, table_size: int | None = None,
-           footprint: bool = False, bare_metal: bool = False, **_ignored) -> Artifact:
+           footprint: bool = False, bare_metal: bool = False, instruction_count: bool = False,
+           **_ignored) -> Artifact:
     """Render ``<prefix>.h`` and ``<prefix>.c`` for ``bundle``; see docs/c-backend.md."""
     check_prefix(prefix)
     if precision not in PRECISIONS:
@@ -76,6 +78,10 @@ def render(bundle, precision: str = "float32", prefix: str = "model", out_of_dom
         from nodecast.compiler.toolchain import footprint as measure_footprint
 
         summary["footprint"] = measure_footprint(files, prefix, uses_libm=impl == "libm")
+    if instruction_count:
+        from nodecast.compiler.instruction_count import instruction_counts
+
+        summary["instructions"] = instruction_counts(files, net, prefix, precision)
     if bare_metal:
         files.update(board_files())
     return Artifact("c", files, False, summary)
