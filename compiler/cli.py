@@ -223,7 +223,8 @@ def inspect(model, precision, as_json, cost):
 @click.option("--opset", type=int, help="ONNX operator set version (default: pinned newest).")
 @click.option("--prefix", default="model", show_default=True, help="C: file and identifier prefix.")
 @click.option("--activation-impl", type=click.Choice(["libm", "rational", "table"]),
-              help="C: how tanh is evaluated (default: libm for float, table for q31/q15).")
+              help="C: how tanh is evaluated (default: rational for float32, libm for float64, "
+                   "table for q31/q15).")
 @click.option("--table-size", type=click.IntRange(16, 65536),
               help="C, --activation-impl table: table intervals (default 512; q31 2048).")
 @click.option("--bare-metal", is_flag=True,
