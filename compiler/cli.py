@@ -16,6 +16,7 @@ import click
 
 from nodecast.compiler.cli_score import score as score_command
 from nodecast.compiler.cli_select import select as select_command
+from nodecast.compiler.cli_shrink import shrink as shrink_command
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.version import __version__
 
@@ -333,6 +334,7 @@ def demo(output, data_only):
 
 cli.add_command(score_command)
 cli.add_command(select_command)
+cli.add_command(shrink_command)
 
 
 def _stop_on_sigterm(signum, frame) -> None:

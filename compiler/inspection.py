@@ -11,6 +11,8 @@ from nodecast.compiler.activations import get_activation
 from nodecast.compiler.reference import hidden_layer
 
 SATURATION = 0.01  # a node is saturated where its slope is below 1% of the slope at its inflection
+DUPLICATE_TOLERANCE = 1e-3  # pre-activation units: tanh or logistic values then differ <= 1e-3
+LISTED = 20  # nodes listed by index in the text output
 
 
 def saturated_nodes(activation: str, low: np.ndarray, high: np.ndarray) -> np.ndarray:
@@ -32,7 +34,17 @@ def node_ranges(bundle) -> dict:
     low, high = centre - radius, centre + radius
     saturated = saturated_nodes(net.activation, low, high)
     return {"z_low": low.tolist(), "z_high": high.tolist(), "saturated": int(saturated.sum()),
-            "saturated_threshold": SATURATION}
+            "saturated_threshold": SATURATION,
+            "saturated_nodes": [int(j) for j in np.flatnonzero(saturated)]}
+
+
+def duplicate_nodes(net) -> list[dict]:
+    """Node pairs whose pre-activations (or one's negative) differ by at most
+    ``DUPLICATE_TOLERANCE`` anywhere in the declared domain: ``nodecast shrink`` merges them."""
+    from nodecast.compiler.passes.shrink import duplicate_pairs
+
+    return [{"node": j, "like": i, "sign": s, "max_difference": d}
+            for j, i, s, d in duplicate_pairs(net, DUPLICATE_TOLERANCE)]
 
 
 def training_node_ranges(bundle) -> dict | None:
@@ -69,6 +81,8 @@ def describe_bundle(bundle, precision: str | None = None) -> dict:
                           + net.output_bias.size),
         "max_abs_output_weight": float(np.max(np.abs(net.output_weights * net.output_scale))),
         "saturated_nodes_on_domain": ranges["saturated"],
+        "saturated_node_indices": ranges["saturated_nodes"],
+        "duplicate_nodes": duplicate_nodes(net),
         "saturated_nodes_on_training_data": None if training is None else training["saturated"],
         "node_z_range_on_domain": _span(ranges),
         "node_z_range_on_training_data": None if training is None else _span(training),
@@ -100,6 +114,7 @@ def format_description(d: dict) -> str:
         lines.append(f"{split}: " + ", ".join(f"{k} {v}" for k, v in sorted(values.items())))
     lines.append(f"nodes saturated over the whole domain: {d['saturated_nodes_on_domain']} of {d['nodes']}"
                  + _span_text(d["node_z_range_on_domain"]))
+    lines.extend(_node_lists(d))
     training = d["saturated_nodes_on_training_data"]
     lines.append("nodes saturated over the training data: " + (
         "not recorded" if training is None else
@@ -142,3 +157,22 @@ def _cost_lines(cost: dict) -> list[str]:
     return [f"C cost ({cost['precision']}, activation {cost['activation_impl']}):",
             format_footprint(cost["footprint"], cost["weight_bytes"]),
             format_counts(cost["instructions"])]
+
+
+def _node_lists(d: dict) -> list[str]:
+    """The saturated nodes and near-duplicate pairs by index (the first ``LISTED``)."""
+    lines = []
+    saturated = d["saturated_node_indices"]
+    if saturated:
+        more = f" and {len(saturated) - LISTED} more" if len(saturated) > LISTED else ""
+        lines.append("  saturated (nearly constant) nodes: "
+                     + ", ".join(map(str, saturated[:LISTED])) + more)
+    pairs = d["duplicate_nodes"]
+    lines.append(f"near-duplicate node pairs (pre-activations within {DUPLICATE_TOLERANCE:g} over "
+                 f"the domain): {len(pairs)}")
+    for p in pairs[:LISTED]:
+        lines.append(f"  node {p['node']} = {'' if p['sign'] == 1 else '-'}node {p['like']} "
+                     f"(max difference {p['max_difference']:.2g})")
+    if len(pairs) > LISTED:
+        lines.append(f"  and {len(pairs) - LISTED} more")
+    return lines
