@@ -3,7 +3,11 @@ activation implementation, against a straightforward row-by-row loop with libm o
 weights built with the same flags, against the arithmetic floor of the CPU, and against a single-row
 call through onnxruntime's Python API. Prints JSON; asserts nothing.
 
-    python tests/benchmarks/c_speed.py [--rows 1000] [--repeats 40] [--passes 3]
+    python tests/benchmarks/c_speed.py [--rows 1000] [--repeats 40] [--passes 3] [--no-count]
+
+It also counts the instructions one prediction executes on an emulated Cortex-M4F for each
+activation implementation (nodecast.compiler.instruction_count; 32 in-domain probes), and the
+cycles estimated from them.
 
 Builds use ``-std=gnu99`` (GCC's default contraction: a * b + c may become one fused multiply-add)
 and never ``-ffast-math``. Every binary runs ``--passes`` times, interleaved with the others, and
@@ -30,7 +34,8 @@ from nodecast.compiler import emit
 from nodecast.compiler.passes.scaling import folded_input_layer, folded_output_layer
 from nodecast.trainer import RandomNodeRegressor, to_bundle
 
-FLAG_SETS = {"O2": ("-O2",), "O3_native": ("-O3", "-march=native")}
+FLAG_SETS = {"O2": ("-O2",), "O3_native": ("-O3", "-march=native"),
+             "O3_avx2": ("-O3", "-march=x86-64-v3")}
 IMPLS = ("rational", "table", "libm")
 
 PLAIN_LOOP = r"""
@@ -220,11 +225,27 @@ def _binaries(bundle, rows, folder: Path, repeats: int) -> dict[str, Path]:
     return binaries
 
 
+def _cortex_m4f(bundle) -> dict:
+    from nodecast.compiler.backends import render
+    from nodecast.compiler.instruction_count import count_instructions, counting_rows, summarise
+
+    rows = counting_rows(bundle.network)[:32]
+    info = {"prefix": "model", "precision": "float32", "n_inputs": bundle.network.n_features}
+    figures = {}
+    for impl in IMPLS:
+        artifact = render(bundle, "c", precision="float32", activation_impl=impl)
+        counts = count_instructions(artifact.files, info, rows, "cortex-m4f")
+        summary = summarise(counts, "cortex-m4f")
+        figures[impl] = {k: summary[k] for k in ("min", "median", "max", "cycles_estimate")}
+    return figures
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--rows", type=int, default=1000)
     parser.add_argument("--repeats", type=int, default=40)
     parser.add_argument("--passes", type=int, default=3)
+    parser.add_argument("--no-count", action="store_true", help="Skip the Cortex-M4F counts.")
     args = parser.parse_args()
     bundle, X = _bundle()
     rows, net = X[: args.rows], bundle.network
@@ -258,6 +279,8 @@ def main() -> None:
         figures["onnxruntime_single_row_over_fastest"] = (result["onnxruntime_single_row_ns"]
                                                           / fastest)
         result[flag_name] = figures
+    if not args.no_count:
+        result["cortex_m4f_instructions"] = _cortex_m4f(bundle)
     print(json.dumps(result, indent=2, sort_keys=True))
 
 
