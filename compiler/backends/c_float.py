@@ -4,8 +4,9 @@ Layout for speed (register tiling): the nodes are taken in tiles of ``tile``; th
 are stored ``W[t][i][k]`` (tile, input, node within the tile), so one tile's pre-activations build up
 in ``tile`` independent sums that stay in registers (vector registers on a host, the FPU's registers
 on a Cortex-M4F), go through the activation, and add their share of each output to ``tile``
-interleaved partial sums, without ever storing the node values. The last tile is padded with zero
-nodes (zero weights, bias and output weights: each adds exactly +0). ``tile`` is the widest of
+interleaved partial sums, without ever storing the node values. The last tile is padded with
+copies of the last node whose output weights are zero: each adds exactly zero for every input the
+copied node is finite on (zero weights would not do: 0 times an infinite input is NaN). ``tile`` is the widest of
 ``TILES`` whose padding stays within ``MAX_PADDING_SHARE`` of the nodes (32 for 500 nodes: two
 AVX-512 or four AVX registers per sum set; 8 for 100 nodes), since padding costs flash and work.
 
@@ -105,8 +106,8 @@ def float_context(net, precision: str, impl: str, table_size: int | None) -> dic
     tile = tile_width(net.n_nodes)
     n_tiles = -(-net.n_nodes // tile)
     padded = n_tiles * tile - net.n_nodes
-    tiles = [np.pad(a, [(0, padded)] + [(0, 0)] * (a.ndim - 1)) for a in (weights, biases,
-                                                                         out_weights)]
+    tiles = [np.pad(a, [(0, padded)] + [(0, 0)] * (a.ndim - 1), mode=mode)
+             for a, mode in ((weights, "edge"), (biases, "edge"), (out_weights, "constant"))]
     context = {
         "real": "float" if precision == "float32" else "double",
         "fold_inputs": fold, "tile": tile, "n_tiles": n_tiles, "padded_nodes": padded,

@@ -124,5 +124,5 @@ def test_every_weight_is_written_exactly(small_bundle, tmp_path):
     values = np.array([float(v) for v in re.sub(r"[{}\n]", " ", biases).split(",") if v.strip()])
     net = small_bundle.network
     expected = folded_input_layer(net)[1] if should_fold_inputs(net) else net.hidden_biases
-    padding = values[net.n_nodes:]  # the last tile's zero nodes
-    assert np.array_equal(values[:net.n_nodes], expected) and np.all(padding == 0.0)
+    padding = values[net.n_nodes:]  # the last tile's copies of the last node
+    assert np.array_equal(values[:net.n_nodes], expected) and np.all(padding == expected[-1])
