@@ -116,3 +116,20 @@ def test_emit_and_inspect_print_instruction_counts(ten_input_bundles, tmp_path):
     cost = json.loads(result.output)["cost"]
     assert cost["instructions"]["cortex-m4f"]["median"] > 25 * 10
     assert cost["footprint"]["cortex-m0"]["text"] > 0
+
+
+def test_a_core_that_cannot_be_counted_is_reported_skipped_not_fatal(ten_input_bundles,
+                                                                     monkeypatch):
+    need(*TOOLS)
+
+    def too_long(files, info, X, core):
+        if core == "cortex-m0":
+            raise NodecastError("a prediction took more than 2^24 SysTick ticks")
+        return np.array([7, 9, 8])
+
+    monkeypatch.setattr(ic, "count_instructions", too_long)
+    bundle = ten_input_bundles[25]
+    figures = ic.instruction_counts({}, bundle.network, "model", "float32")
+    assert "2^24" in figures["cortex-m0"]["skipped"]
+    assert figures["cortex-m4f"]["median"] == 8 and figures["cortex-m4f"]["max"] == 9
+    assert "skipped" in ic.format_counts(figures)
