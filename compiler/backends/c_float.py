@@ -6,9 +6,10 @@ in ``tile`` independent sums that stay in registers (vector registers on a host,
 on a Cortex-M4F), go through the activation, and add their share of each output to ``tile``
 interleaved partial sums, without ever storing the node values. The last tile is padded with
 copies of the last node whose output weights are zero: each adds exactly zero for every input the
-copied node is finite on (zero weights would not do: 0 times an infinite input is NaN). ``tile`` is the widest of
-``TILES`` whose padding stays within ``MAX_PADDING_SHARE`` of the nodes (32 for 500 nodes: two
-AVX-512 or four AVX registers per sum set; 8 for 100 nodes), since padding costs flash and work.
+copied node is finite on (zero weights would not do: 0 times an infinite input is NaN).
+``tile`` is the widest of ``TILES`` whose padding stays within ``MAX_PADDING_SHARE`` of the nodes
+(32 for 500 nodes: two AVX-512 or four AVX registers per sum set; 8 for 100 nodes), since padding
+costs flash and work.
 
 Summation structure (what an error bound must follow): node j's pre-activation is
 ``((b_j + w_j0 u_0) + w_j1 u_1) + ... + w_j,n-1 u_n-1``, in input order; output o's lane k is the sum

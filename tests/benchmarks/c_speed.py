@@ -180,7 +180,6 @@ def _plain_source(net) -> str:
 
 def _floor_binary(folder: Path) -> Path:
     from nodecast.compiler.backends.c_float import RATIONAL_DENOMINATOR, RATIONAL_NUMERATOR
-
     from nodecast.compiler.backends.c_format import float_literal
 
     terms = {f"p{i}": float_literal(v) for i, v in enumerate(RATIONAL_NUMERATOR)}

@@ -4,7 +4,6 @@ bundle never become code."""
 from __future__ import annotations
 
 import re
-
 import subprocess
 
 import numpy as np

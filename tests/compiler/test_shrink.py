@@ -177,7 +177,7 @@ def test_data_re_solves_the_output_layer_and_reports_it(tmp_path):
     save(to_bundle(model, feature_names=[f"x{i}" for i in range(5)], target_names=["y"]), source)
     data = tmp_path / "rows.csv"
     data.write_text("x0,x1,x2,x3,x4,y\n" + "".join(
-        ",".join(repr(float(v)) for v in (*row, t)) + "\n" for row, t in zip(X, y)))
+        ",".join(repr(float(v)) for v in (*row, t)) + "\n" for row, t in zip(X, y, strict=True)))
     out = tmp_path / "small.ncz"
     result = CliRunner().invoke(cli, ["shrink", str(source), "--max-error", "0.3", "--data",
                                       str(data), "-o", str(out)])
