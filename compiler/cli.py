@@ -18,6 +18,7 @@ from nodecast.compiler.cli_compare import compare as compare_command
 from nodecast.compiler.cli_diff import diff as diff_command
 from nodecast.compiler.cli_score import score as score_command
 from nodecast.compiler.cli_select import select as select_command
+from nodecast.compiler.cli_shrink import shrink as shrink_command
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.version import __version__
 
@@ -315,9 +316,13 @@ def kept_columns(table, names) -> tuple[list[str], list[list[str]]]:
 @click.option("--data", type=click.Path(dir_okay=False),
               help="With --plot: labelled rows for the predicted-against-actual plot.")
 @click.option("--overwrite", is_flag=True, help="Replace existing plot files.")
-def inspect(model, precision, as_json, plot_folder, data, overwrite):
+
+@click.option("--cost", is_flag=True,
+              help="Also build the C for --precision (default float32) and show its footprint "
+                   "and instructions per prediction on emulated Cortex-M0 and M4F.")
+def inspect(model, precision, as_json, plot_folder, data, overwrite, cost):
     """Show a bundle: sizes, domain, metrics, node diagnostics and error estimates."""
-    from nodecast.compiler.inspection import describe_bundle, format_description
+    from nodecast.compiler.inspection import describe_bundle, format_description, target_cost
 
     if data and not plot_folder:
         raise NodecastError("--data is for the predicted-against-actual plot; add --plot DIR")
@@ -329,6 +334,8 @@ def inspect(model, precision, as_json, plot_folder, data, overwrite):
         for path in plot_bundle(bundle, plot_folder, read_table(data) if data else None, overwrite):
             click.echo(f"wrote {path}", err=True)
     description = describe_bundle(bundle, precision)
+    if cost:
+        description["cost"] = target_cost(bundle, precision or "float32")
     click.echo(json.dumps(description, indent=2, sort_keys=True) if as_json
                else format_description(description))
 
@@ -346,12 +353,16 @@ def inspect(model, precision, as_json, plot_folder, data, overwrite):
                    "--flag-out-of-domain; see docs/onnx.md).")
 @click.option("--prefix", default="model", show_default=True, help="C: file and identifier prefix.")
 @click.option("--activation-impl", type=click.Choice(["libm", "rational", "table"]),
-              help="C: how tanh is evaluated (default: libm for float, table for q31/q15).")
+              help="C: how tanh is evaluated (default: rational for float32, libm for float64, "
+                   "table for q31/q15).")
 @click.option("--table-size", type=click.IntRange(16, 65536),
               help="C, --activation-impl table: table intervals (default 512; q31 2048).")
 @click.option("--bare-metal", is_flag=True,
               help="C: also write startup.c and mps2.ld, to run your own main.c bare metal on "
                    "QEMU's MPS2 Cortex-M3/M4 boards (the board support verify --emulate uses).")
+@click.option("--instruction-count/--no-instruction-count", default=True, show_default=True,
+              help="C: count the instructions per prediction on emulated Cortex-M0 and M4F "
+                   "(QEMU).")
 @click.option("-o", "--output", required=True, type=click.Path(),
               help="Output file (onnx, python) or folder (c).")
 @click.option("--overwrite", is_flag=True, help="Replace existing output files.")
@@ -359,7 +370,7 @@ def inspect(model, precision, as_json, plot_folder, data, overwrite):
               help="Refuse to write an artifact larger than this, in bytes or with K, M, G "
                    "(default 64M).")
 def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, prefix, output, overwrite,
-         max_size, activation_impl, table_size, bare_metal):
+         max_size, activation_impl, table_size, bare_metal, instruction_count):
     """Compile a bundle into an artifact for a target."""
     from nodecast.compiler import emit as emit_artifact
     from nodecast.compiler.files import parse_size
@@ -373,7 +384,7 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
         options["opset"] = opset
     if target == "c":
         options.update(prefix=prefix, activation_impl=activation_impl, table_size=table_size,
-                       footprint=True, bare_metal=bare_metal)
+                       footprint=True, bare_metal=bare_metal, instruction_count=instruction_count)
     elif activation_impl or table_size or bare_metal:
         raise NodecastError("--activation-impl, --table-size and --bare-metal apply to --to c only")
     max_bytes = None if max_size is None else parse_size(max_size)
@@ -388,6 +399,10 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
 
         click.echo(format_footprint(artifact.summary["footprint"], artifact.summary["weight_bytes"]),
                    err=True)
+    if "instructions" in artifact.summary:
+        from nodecast.compiler.instruction_count import format_counts
+
+        click.echo(format_counts(artifact.summary["instructions"]), err=True)
 
 
 def emitted_line(output, target: str, summary: dict) -> str:
@@ -481,6 +496,7 @@ cli.add_command(diff_command)
 cli.add_command(score_command)
 cli.add_command(select_command)
 cli.add_command(compare_command)
+cli.add_command(shrink_command)
 
 
 def _stop_on_sigterm(signum, frame) -> None:

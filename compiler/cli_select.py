@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import json
 from dataclasses import replace
+from functools import partial
 
 import click
 
@@ -55,6 +56,14 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp "
 @click.option("--tolerance", type=click.FloatRange(min=0, min_open=True),
               help="With --precision: reject grid points whose estimated export error exceeds "
                    "this (target units); exit 2 when none meets it.")
+@click.option("--max-flash", help="Budget: flash of the model's C on --core, bytes (K, M "
+                                   "suffixes); only node counts that fit are chosen.")
+@click.option("--max-cycles", type=click.IntRange(min=1),
+              help="Budget: estimated cycles per prediction on --core (emulated instruction "
+                   "count times an assumed cycles per instruction).")
+@click.option("--core", type=click.Choice(["cortex-m0", "cortex-m4f"]), default="cortex-m4f",
+              show_default=True, help="The core of --max-flash and --max-cycles; the precision "
+                                      "is --precision (default float32).")
 @click.option("--grow", is_flag=True, help="Grow the model in batches of nodes with the chosen "
                                            "generator settings and lambda, keeping a batch only "
                                            "if it pays.")
@@ -80,8 +89,9 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp "
 @click.option("--overwrite", is_flag=True, help="Replace existing output files.")
 def select(data, target, features, domain, units, categorical, method, nodes, neighbors,
            slope_scales, intervals, angle_ranges, weight_sums, ridge, folds, activation, seed, task,
-           scoring, precision, tolerance, grow, grow_batch, grow_threshold, grow_patience,
-           grow_pool, validation_fraction, jobs, output, report, plot, overwrite):
+           scoring, precision, tolerance, max_flash, max_cycles, core, grow, grow_batch,
+           grow_threshold, grow_patience, grow_pool, validation_fraction, jobs, output, report,
+           plot, overwrite):
     """Choose nodes, the generator and its settings, and ridge by k-fold cross-validation on
     DATA.csv (a classifier: by accuracy or log-loss), refit the choice on all rows and save it
     as a bundle."""
@@ -128,15 +138,20 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     growth = GrowthSettings(grow_batch, grow_threshold, grow_patience,
                             grow_pool or 2 * max(grid.nodes)) if grow else None
     table, record = read_table(data), file_record(data)
+    budget = _budget(table, job, grid, precision, core, max_flash, max_cycles, grow)
+    search = partial(run_selection, allowed_nodes=None if budget is None else budget["allowed_nodes"])
     with Progress("select") as progress:
         result, bundle = run_interruptible(
-            run_selection, table, job, grid, settings, growth,
+            search, table, job, grid, settings, growth,
             callback=UnitClock(progress, len(table.rows), max(grid.nodes), folds, grow),
             progress=progress)
     bundle = with_training_data(bundle, record)
     save(bundle, output, overwrite=overwrite)
+    if budget is not None:
+        budget["frontier"] = _frontier(result, budget)
+        click.echo(_budget_lines(budget, bundle.network.n_nodes), err=True)
     if report:
-        _write_report(report, result, bundle, overwrite)
+        _write_report(report, result, bundle, overwrite, budget)
     if plot:
         from nodecast.trainer.selection_plot import plot_search
 
@@ -186,11 +201,50 @@ class UnitClock:
                                 2 * rate * fit_units(self.rows, self.max_nodes))
 
 
-def _write_report(path, result, bundle, overwrite: bool) -> None:
+def _budget(table, job, grid, precision, core, max_flash, max_cycles, grow) -> dict | None:
+    """Flash and cycles of every --nodes value on ``core``, and those within the budgets."""
+    if max_flash is None and max_cycles is None:
+        return None
+    from nodecast.compiler.files import parse_size
+    from nodecast.compiler.target_budget import allowed_nodes, grid_costs
+    from nodecast.trainer.training import feature_columns
+
+    if grow:
+        raise NodecastError("--max-flash and --max-cycles apply to a grid search, not to --grow")
+    flash = None if max_flash is None else parse_size(max_flash)
+    costs = grid_costs(len(feature_columns(table.header, job)), len(job.targets), grid.nodes,
+                       precision or "float32", core)
+    return {"core": core, "precision": precision or "float32", "max_flash": flash,
+            "max_cycles": max_cycles, "costs": costs,
+            "allowed_nodes": allowed_nodes(costs, flash, max_cycles)}
+
+
+def _frontier(result, budget) -> list[dict]:
+    """Per node count: the best cross-validated RMSE (largest over targets) beside its cost."""
+    best = {}
+    for p in result.points:
+        best[p.nodes] = min(best.get(p.nodes, float("inf")), max(p.rmse_mean))
+    return [{**cost, "cv_rmse": best[cost["nodes"]],
+             "meets_budget": cost["nodes"] in budget["allowed_nodes"]} for cost in budget["costs"]]
+
+
+def _budget_lines(budget, chosen_nodes) -> str:
+    lines = [f"budget on {budget['core']} ({budget['precision']}): nodes, flash, cycles, CV RMSE"]
+    for row in budget["frontier"]:
+        mark = " <- chosen" if row["nodes"] == chosen_nodes else (
+            "" if row["meets_budget"] else " (over budget)")
+        lines.append(f"  {row['nodes']:>6} {row['flash']:>8} B {row['cycles']:>10} "
+                     f"{row['cv_rmse']:.4g}{mark}")
+    return "\n".join(lines)
+
+
+def _write_report(path, result, bundle, overwrite: bool, budget=None) -> None:
     from nodecast.compiler.files import write_atomic
 
     document = {"bundle_id": bundle.bundle_id, "features": list(bundle.network.feature_names),
                 "targets": list(bundle.network.target_names), **result.as_dict()}
+    if budget is not None:
+        document["budget"] = budget
     text = json.dumps(document, indent=2, sort_keys=True, allow_nan=False) + "\n"
     write_atomic(path, text.encode("utf-8"), overwrite=overwrite)
 

@@ -11,6 +11,8 @@ from nodecast.compiler.activations import get_activation
 from nodecast.compiler.reference import hidden_layer
 
 SATURATION = 0.01  # a node is saturated where its slope is below 1% of the slope at its inflection
+DUPLICATE_TOLERANCE = 1e-3  # pre-activation units: tanh or logistic values then differ <= 1e-3
+LISTED = 20  # nodes listed by index in the text output
 
 
 def saturated_nodes(activation: str, low: np.ndarray, high: np.ndarray) -> np.ndarray:
@@ -37,7 +39,17 @@ def node_ranges(bundle) -> dict:
         low, high = low + vectors.min(axis=0), high + vectors.max(axis=0)
     saturated = saturated_nodes(net.activation, low, high)
     return {"z_low": low.tolist(), "z_high": high.tolist(), "saturated": int(saturated.sum()),
-            "saturated_threshold": SATURATION}
+            "saturated_threshold": SATURATION,
+            "saturated_nodes": [int(j) for j in np.flatnonzero(saturated)]}
+
+
+def duplicate_nodes(net) -> list[dict]:
+    """Node pairs whose pre-activations (or one's negative) differ by at most
+    ``DUPLICATE_TOLERANCE`` anywhere in the declared domain: ``nodecast shrink`` merges them."""
+    from nodecast.compiler.passes.shrink import duplicate_pairs
+
+    return [{"node": j, "like": i, "sign": s, "max_difference": d}
+            for j, i, s, d in duplicate_pairs(net, DUPLICATE_TOLERANCE)]
 
 
 def training_node_ranges(bundle) -> dict | None:
@@ -76,6 +88,8 @@ def describe_bundle(bundle, precision: str | None = None) -> dict:
                           + net.output_bias.size + net.level_weights.size),
         "max_abs_output_weight": float(np.max(np.abs(net.output_weights * net.output_scale))),
         "saturated_nodes_on_domain": ranges["saturated"],
+        "saturated_node_indices": ranges["saturated_nodes"],
+        "duplicate_nodes": duplicate_nodes(net),
         "saturated_nodes_on_training_data": None if training is None else training["saturated"],
         "node_z_range_on_domain": _span(ranges),
         "node_z_range_on_training_data": None if training is None else _span(training),
@@ -134,6 +148,7 @@ def format_description(d: dict) -> str:
     lines += _metric_lines(_record(meta, "metrics"))
     lines.append(f"nodes saturated over the whole domain: {d['saturated_nodes_on_domain']} of {d['nodes']}"
                  + _span_text(d["node_z_range_on_domain"]))
+    lines.extend(_node_lists(d))
     training = d["saturated_nodes_on_training_data"]
     lines.append("nodes saturated over the training data: " + (
         "not recorded" if training is None else
@@ -142,6 +157,8 @@ def format_description(d: dict) -> str:
     if diagnostics:
         lines.append("fit diagnostics: " + ", ".join(f"{k.replace('_', ' ')} {_plain(v)}"
                                                      for k, v in sorted(diagnostics.items())))
+    if "cost" in d:
+        lines.extend(_cost_lines(d["cost"]))
     if "estimate" in d:
         e, budget = d["estimate"], d["accuracy_budget"]
         for target, record in d["certified_bound_by_target"].items():
@@ -245,3 +262,45 @@ def _metric_lines(metrics: dict) -> list[str]:
 def _span_text(span: dict) -> str:
     return (f" (pre-activations from {span['min_low']:.3g} to {span['max_high']:.3g}, median node "
             f"width {span['median_width']:.3g})")
+
+
+def target_cost(bundle, precision: str) -> dict:
+    """Footprint and instructions per prediction of the C artifact in ``precision`` with the
+    default options (fixed point clamps out-of-domain inputs), as ``emit --to c`` reports them."""
+    from nodecast.compiler.backends import render
+
+    policy = "clamp" if precision in ("q15", "q31") else "pass"
+    artifact = render(bundle, "c", precision=precision, out_of_domain=policy, footprint=True,
+                      instruction_count=True)
+    summary = artifact.summary
+    return {"precision": precision, "activation_impl": summary["activation_impl"],
+            "weight_bytes": summary["weight_bytes"], "footprint": summary["footprint"],
+            "instructions": summary["instructions"]}
+
+
+def _cost_lines(cost: dict) -> list[str]:
+    from nodecast.compiler.instruction_count import format_counts
+    from nodecast.compiler.toolchain import format_footprint
+
+    return [f"C cost ({cost['precision']}, activation {cost['activation_impl']}):",
+            format_footprint(cost["footprint"], cost["weight_bytes"]),
+            format_counts(cost["instructions"])]
+
+
+def _node_lists(d: dict) -> list[str]:
+    """The saturated nodes and near-duplicate pairs by index (the first ``LISTED``)."""
+    lines = []
+    saturated = d["saturated_node_indices"]
+    if saturated:
+        more = f" and {len(saturated) - LISTED} more" if len(saturated) > LISTED else ""
+        lines.append("  saturated (nearly constant) nodes: "
+                     + ", ".join(map(str, saturated[:LISTED])) + more)
+    pairs = d["duplicate_nodes"]
+    lines.append(f"near-duplicate node pairs (pre-activations within {DUPLICATE_TOLERANCE:g} over "
+                 f"the domain): {len(pairs)}")
+    for p in pairs[:LISTED]:
+        lines.append(f"  node {p['node']} = {'' if p['sign'] == 1 else '-'}node {p['like']} "
+                     f"(max difference {p['max_difference']:.2g})")
+    if len(pairs) > LISTED:
+        lines.append(f"  and {len(pairs) - LISTED} more")
+    return lines

@@ -6,8 +6,9 @@ outputs are compared on the box both models declare. Then, per output, the large
 |new(x) - old(x)| over that box, found by the seeded adversarial search of the certified-bound
 work (:func:`nodecast.compiler.bounds.search.find_worst`): a value the models really take at
 the reported input, so a lower bound of the true largest change, never more. With ``data``, the
-change on those rows too, and with labelled rows the metrics of both models and their difference. ``max_change`` makes it a
-gate: the report fails when a change exceeds its limit or the domain changed.
+change on those rows too, and with labelled rows the metrics of both models and their difference.
+``max_change`` makes it a gate: the report fails when a change exceeds its limit or the domain
+changed.
 
 Report schema (``as_dict``; also what ``diff --report`` writes): ``passed``, ``gated``, ``task``,
 ``old`` and ``new`` (``bundle_id``), ``features``, ``outputs`` (``names``, ``units``), ``domain``

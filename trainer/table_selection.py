@@ -25,12 +25,13 @@ from nodecast.trainer.selection import (
 )
 
 
-def run_selection(table, job, grid, settings, growth=None, progress=None):
+def run_selection(table, job, grid, settings, growth=None, progress=None, allowed_nodes=None):
     """Search, refit (or grow) and bundle; returns (SelectionResult, Bundle).
 
     table : a :class:`nodecast.compiler.csvio.Table`; job : TrainingJob (targets, features,
     domain, units, seed, validation fraction); grid : Grid; settings : SearchSettings; growth :
-    GrowthSettings or None.
+    GrowthSettings or None; allowed_nodes : node counts that meet flash and cycle budgets (None:
+    all); the others are searched (for the report's frontier) but never chosen.
     """
     features = training.feature_columns(table.header, job)
     numeric = split_features(features, job.categorical, job.targets)
@@ -39,6 +40,9 @@ def run_selection(table, job, grid, settings, growth=None, progress=None):
     declared = inputs.box(*declared_box(job, numeric))  # NaN: the data's range
     X = inputs.X
     points, diagnostics = run_search(X, Y, grid, settings, declared, progress)
+    if allowed_nodes is not None:
+        points = [p if p.nodes in allowed_nodes else replace(p, meets_budget=False)
+                  for p in points]
     if growth is not None:
         result, bundle = _grown(X, Y, features, inputs, job, points, grid, settings, declared,
                                 growth)

@@ -5,7 +5,8 @@
 and ``model.c.j2``. The float32/float64 layout lives in :mod:`~nodecast.compiler.backends.c_float`,
 the q15/q31 one in :mod:`~nodecast.compiler.backends.c_fixed` (formats from
 :mod:`nodecast.compiler.fixedpoint`). The footprint (sizes and stack on the host and on Cortex-M)
-is measured by :mod:`nodecast.compiler.toolchain` when asked for.
+is measured by :mod:`nodecast.compiler.toolchain` when asked for, the instructions per prediction
+on emulated Cortex-M cores by :mod:`nodecast.compiler.instruction_count`.
 """
 
 from __future__ import annotations
@@ -16,10 +17,9 @@ from nodecast.compiler import numerics
 from nodecast.compiler.backends import Artifact
 from nodecast.compiler.backends.c_board import board_files
 from nodecast.compiler.backends.c_fixed import fixed_context
-from nodecast.compiler.backends.c_float import float_context
+from nodecast.compiler.backends.c_float import DEFAULT_FLOAT_IMPLS, float_context
 from nodecast.compiler.backends.c_format import (
     _with_point,
-    array_rows,
     c_comment,
     c_string,
     check_prefix,
@@ -33,6 +33,7 @@ from nodecast.compiler.version import __version__
 
 PRECISIONS = ("float64", "float32", "q31", "q15")
 ACTIVATION_IMPLS = ("libm", "rational", "table")
+DEFAULT_IMPLS = {**DEFAULT_FLOAT_IMPLS, "q31": "table", "q15": "table"}
 _IMPL_TEXT = {
     "libm": "the C library's {fn}",
     "rational": "a rational approximation x P(x^2)/Q(x^2), clipped at |x| = 9 (no libm)",
@@ -48,7 +49,8 @@ _POLICY_TEXT = {
 
 def render(bundle, precision: str = "float32", prefix: str = "model", out_of_domain: str = "pass",
            activation_impl: str | None = None, table_size: int | None = None,
-           footprint: bool = False, bare_metal: bool = False, **_ignored) -> Artifact:
+           footprint: bool = False, bare_metal: bool = False, instruction_count: bool = False,
+           **_ignored) -> Artifact:
     """Render ``<prefix>.h`` and ``<prefix>.c`` for ``bundle``; see docs/c-backend.md."""
     check_prefix(prefix)
     if precision not in PRECISIONS:
@@ -59,7 +61,7 @@ def render(bundle, precision: str = "float32", prefix: str = "model", out_of_dom
     if fixed and out_of_domain == "pass":
         raise NodecastError(f"{precision} integers hold the declared domain only, so inputs "
                             "outside it cannot pass; choose --out-of-domain clamp or reject")
-    impl = activation_impl or ("table" if fixed else "libm")
+    impl = activation_impl or DEFAULT_IMPLS[precision]
     if impl not in ACTIVATION_IMPLS:
         raise NodecastError(f"--activation-impl is one of {', '.join(ACTIVATION_IMPLS)}, "
                             f"not {impl!r}")
@@ -92,6 +94,10 @@ def render(bundle, precision: str = "float32", prefix: str = "model", out_of_dom
         from nodecast.compiler.toolchain import footprint as measure_footprint
 
         summary["footprint"] = measure_footprint(files, prefix, uses_libm=impl == "libm")
+    if instruction_count:
+        from nodecast.compiler.instruction_count import instruction_counts
+
+        summary["instructions"] = instruction_counts(files, net, prefix, precision)
     if bare_metal:
         files.update(board_files())
     return Artifact("c", files, False, summary)
@@ -149,7 +155,7 @@ def stated_activation_error(net, precision: str, impl: str | None, table_size: i
         return make_plan(net, precision, table_size).table_error
     from nodecast.compiler.backends.c_float import activation_error
 
-    return activation_error(impl or "libm", precision, table_size)
+    return activation_error(impl or DEFAULT_IMPLS[precision], precision, table_size)
 
 
 def _bound_context(net, certificate) -> dict:
@@ -161,8 +167,10 @@ def _bound_context(net, certificate) -> dict:
 
 
 def _level_context(net, context) -> dict:
-    """Categorical inputs: per input its level table (levels x nodes, scaled like the hidden
-    layer) and the header's code listing."""
+    """Categorical inputs: per input its level table (levels x tiles x tile, in the hidden
+    layer's tiles, the padding nodes copying the last node) and the header's code listing."""
+    from nodecast.compiler.backends.c_float import tiled_rows
+
     tables = []
     for c, (name, levels) in enumerate(zip(net.categorical_names, net.categorical_levels,
                                            strict=True)):
@@ -170,7 +178,7 @@ def _level_context(net, context) -> dict:
         weights = net.level_weights[start : start + len(levels)]
         tables.append({
             "count": len(levels), "name": c_comment(name),
-            "rows": array_rows([[context["literal"](v) for v in row] for row in weights]),
+            "rows": tiled_rows(weights, context["tile"], context["n_tiles"], context["literal"]),
             "codes": [f"{k} = {c_comment(level)}" for k, level in enumerate(levels)],
             "strings": [c_string(level) for level in levels]})
     return {"n_categorical": net.n_categorical, "level_tables": tables}
@@ -260,9 +268,10 @@ def _layout_lines(fixed: bool, upper: str) -> list[str]:
         return ["Layout: node-major weights; one pass over the nodes computes each node's",
                 "pre-activation, its tanh and its share of every output, so the stack holds only",
                 f"the normalised inputs and the output accumulators ({upper}_SCRATCH_BYTES)."]
-    return ["Layout: hidden weights input-major, so each pass over the nodes is contiguous and",
-            "vectorises; the output sums run in interleaved partial sums. The stack holds the",
-            f"normalised inputs, the node array and the partial sums ({upper}_SCRATCH_BYTES).",
+    return ["Layout: the nodes go in tiles; each tile's pre-activations build up in registers",
+            "(input by input), pass through tanh and add their share of each output to",
+            "interleaved partial sums, so node values are never stored. The stack holds the",
+            f"normalised inputs, one tile and the partial sums ({upper}_SCRATCH_BYTES).",
             "Build with -ffp-contract=off for results that match other builds bit for bit",
             "(fused multiply-add changes the last bits, within the stated estimate)."]
 

@@ -109,7 +109,11 @@ def box_function(net: Network, target: str, precision: str, activation_impl: str
         program.y_ceiling = fixed.certified_ceiling(plan, net)
         return lambda lo, hi: fixed.box_bounds(program, lo, hi)
     if target == "c":
-        program = programs.c_float_program(net, precision, activation_impl or "libm", table_size)
+        from nodecast.compiler.backends.c_float import DEFAULT_FLOAT_IMPLS
+
+        program = programs.c_float_program(net, precision,
+                                           activation_impl or DEFAULT_FLOAT_IMPLS[precision],
+                                           table_size)
     elif target == "onnx":
         program = programs.onnx_program(net, precision)
     elif target == "python":

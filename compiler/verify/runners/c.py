@@ -74,8 +74,9 @@ def describe(path: Path, emulate: str | None = None, **_options) -> dict:
     return info
 
 
-def harness_source(info: dict, rows: np.ndarray | None = None) -> bytes:
-    """The harness main for ``info``'s artifact: rows from stdin, or compiled in (semihosted)."""
+def harness_source(info: dict, rows: np.ndarray | None = None, timed: bool = False) -> bytes:
+    """The harness main for ``info``'s artifact: rows from stdin, or compiled in (semihosted);
+    ``timed`` (semihosted only) prints SysTick ticks per call instead of the outputs."""
     from nodecast.compiler.backends.c_format import array_body
     from nodecast.templates import render
 
@@ -84,6 +85,7 @@ def harness_source(info: dict, rows: np.ndarray | None = None) -> bytes:
                "precision": info["precision"], "io_type": _IO_TYPES[info["precision"]],
                "n_inputs": info["n_inputs"], "semihosted": rows is not None,
                "n_categorical": info.get("n_categorical", 0),
+               "timed": timed and rows is not None,
                "row_count": 0 if rows is None else int(rows.shape[0]),
                "rows": array_body([f"UINT64_C(0x{int(b):016x})" for b in bits]) or "    0,"}
     return render("harness", "main.c.j2", **context).encode("ascii")
