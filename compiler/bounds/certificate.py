@@ -86,6 +86,10 @@ def _assumption(target: str, precision: str, impl: str | None) -> str:
         return f"numpy's tanh is within {proven.NUMPY_ULPS:g} ulp of exact"
     if precision in ("q15", "q31"):
         return "none beyond C99 with arithmetic right shifts of negative values"
+    if impl is None:
+        from nodecast.compiler.backends.c_float import DEFAULT_FLOAT_IMPLS
+
+        impl = DEFAULT_FLOAT_IMPLS[precision]
     if impl == "libm":
         return (f"the C library's tanh{'f' if precision == 'float32' else ''} is within "
                 f"{proven.LIBM_ULPS:g} ulp of exact")
