@@ -233,5 +233,7 @@ class Network:
     def replace(self, **changes) -> Network:
         """A copy with some fields changed (the IR itself never changes)."""
         values = {f.name: getattr(self, f.name) for f in fields(self)}
+        if not self.n_categorical and "level_weights" not in changes:
+            values["level_weights"] = None  # no levels: sized to whatever node count comes
         values.update(changes)
         return Network(**values)

@@ -83,18 +83,20 @@ def test_cv_plot_shows_the_actual_k_units_and_an_edge_hint(capsys, fan, tmp_path
 
     from nodecast.compiler.csvio import read_table
     from nodecast.trainer.grid import make_grid
+    from nodecast.trainer.method_grid import layer_grid
     from nodecast.trainer.selection import SearchSettings
     from nodecast.trainer.selection_plot import search_figure
     from nodecast.trainer.table_selection import run_selection
     from nodecast.trainer.training import TrainingJob
 
     job = TrainingJob(targets=("heatsink_temp",), units={"heatsink_temp": "degC"})
-    grid = make_grid((5, 10), [None], (1.0,), (1e-6,))
+    grid = make_grid((5, 10), (1e-6,), layer_grid(["data-driven"], {"n_neighbors": [None],
+                                                                    "slope_scale": [1.0]}))
     result, _ = run_selection(read_table(fan / "r.csv"), job, grid, SearchSettings(3, 0))
     figure = search_figure(plt, result, "heatsink_temp", "degC", n_features=4)
     ax = figure.axes[0]
     labels = ax.get_legend().get_texts()
-    assert "k = 10 (default)" in [t.get_text() for t in labels]  # max(10, 2 (4 + 1)) = 10
+    assert "data-driven, k = 10 (default)" in [t.get_text() for t in labels]  # max(10, 2 (4 + 1))
     assert ax.get_ylabel() == "3-fold CV RMSE of heatsink_temp [degC]"
     texts = [t.get_text() for t in ax.texts]
     if result.chosen.nodes == 10:  # the largest M tried: the plot and the command say so

@@ -45,6 +45,7 @@ from nodecast.compiler.version import __version__
 # takes its axes as an input only from opset 18. tests/compiler/test_onnx_opset.py checks that each
 # graph passes onnx's full check and runs in onnxruntime at its default, and fails one below it.
 OLDEST_OPSET = 9
+LEVELS_OPSET = 12  # categorical inputs: GreaterOrEqual (the known-level test) is opset 12
 FLAG_OPSET = 18
 NEWEST_OPSET = 28
 # IR version that goes with each opset, from the ONNX versioning table (onnx.helper.VERSION_TABLE).
@@ -53,9 +54,11 @@ IR_VERSION_FOR_OPSET = {9: 4, 10: 5, 11: 6, 12: 7, 13: 7, 14: 7, 15: 8, 16: 8, 1
 SUPPORTED_OPSETS = tuple(IR_VERSION_FOR_OPSET)
 
 
-def needed_opset(flag_out_of_domain: bool) -> int:
+def needed_opset(flag_out_of_domain: bool, categorical: bool = False) -> int:
     """The oldest opset of the graph emitted with these options (the default)."""
-    return FLAG_OPSET if flag_out_of_domain else OLDEST_OPSET
+    if flag_out_of_domain:
+        return FLAG_OPSET
+    return LEVELS_OPSET if categorical else OLDEST_OPSET
 PRECISIONS = ("float32", "float64")
 INPUT_NAME = "features"
 LEVELS_NAME = "levels"
@@ -69,14 +72,15 @@ def render(bundle, precision: str = "float32", opset: int | None = None,
            out_of_domain: str = "pass", flag_out_of_domain: bool = False, **_ignored) -> Artifact:
     if precision not in PRECISIONS:
         raise NodecastError(f"ONNX takes precision float32 or float64, not {precision!r}")
-    needed = needed_opset(flag_out_of_domain)
+    needed = needed_opset(flag_out_of_domain, bundle.network.n_categorical > 0)
     opset = needed if opset is None else opset
     if opset not in SUPPORTED_OPSETS:
         raise NodecastError(f"opset {opset!r} is not supported; choose one of "
                             f"{SUPPORTED_OPSETS[0]}..{SUPPORTED_OPSETS[-1]}")
     if opset < needed:
-        raise NodecastError(f"opset {opset} is too old for this graph: --flag-out-of-domain needs "
-                            f"opset {needed} or newer (ReduceMin with its axes as an input)")
+        raise NodecastError(f"opset {opset} is too old for this graph: it needs opset {needed} or "
+                            "newer (--flag-out-of-domain: ReduceMin with its axes as an input; "
+                            "categorical inputs: GreaterOrEqual)")
     if out_of_domain not in ("pass", "clamp"):
         raise NodecastError(f"ONNX takes out-of-domain policy 'pass' or 'clamp', not {out_of_domain!r}"
                             " (a graph cannot refuse a row; use --flag-out-of-domain to mark them)")

@@ -147,7 +147,8 @@ def merge_node(net: Network, j: int, i: int, sign: int) -> Network:
 def _without(net: Network, j: int) -> Network:
     keep = np.arange(net.n_nodes) != j
     return net.replace(hidden_weights=net.hidden_weights[keep], hidden_biases=net.hidden_biases[keep],
-                       output_weights=net.output_weights[keep])
+                       output_weights=net.output_weights[keep],
+                       level_weights=net.level_weights[:, keep])
 
 
 @dataclass(frozen=True)
@@ -167,6 +168,9 @@ def shrink(net: Network, max_error: float, actions=ACTIONS) -> ShrinkResult:
     merges into the earlier node it duplicates)."""
     if not (np.isfinite(max_error) and max_error >= 0):
         raise NodecastError(f"the error budget must be a finite number >= 0, got {max_error!r}")
+    if net.n_categorical:
+        raise NodecastError("shrinking does not cover categorical inputs yet (their level vectors "
+                            "move every node's pre-activation range); shrink a model without them")
     unknown = set(actions) - set(ACTIONS)
     if unknown:
         raise NodecastError(f"shrink actions are {', '.join(ACTIONS)}, not {sorted(unknown)[0]!r}")

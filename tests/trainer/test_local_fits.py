@@ -100,8 +100,8 @@ def test_counts_are_in_the_bundle_and_shown_by_inspect(tmp_path, capsys):
     capsys.readouterr()
     assert main(["inspect", str(model)]) in (0, None)
     shown = capsys.readouterr().out
-    assert f"damped_fits {diagnostics['damped_fits']}" in shown
-    assert f"rank_deficient_fits {diagnostics['rank_deficient_fits']}" in shown
+    assert f"damped fits {diagnostics['damped_fits']}" in shown
+    assert f"rank deficient fits {diagnostics['rank_deficient_fits']}" in shown
 
 
 def test_local_fits_run_on_one_blas_thread(monkeypatch):
