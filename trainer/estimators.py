@@ -95,7 +95,8 @@ class _RandomNodeBase(BaseEstimator):
             slope_scale=float(self.slope_scale), interval=float(self.interval))
         self.hidden_weights_, self.hidden_biases_ = layer.weights, layer.biases
         self.diagnostics_ = {**layer.diagnostics, **self._data_diagnostics(X)}
-        factor, ranges = self._accumulate(U, T, activation)
+        with solvers.single_blas_thread():  # threaded products round differently: one thread,
+            factor, ranges = self._accumulate(U, T, activation)  # same bundle (reliability.md)
         self.training_z_low_, self.training_z_high_ = ranges.low, ranges.high
         if self.ridge == "auto":
             self.ridge_, self.ridge_choice_ = ridge_choice.choose(factor, self._float32_error(factor))
