@@ -132,11 +132,11 @@ def train(data, target, features, domain, units, method, nodes, neighbors, slope
     """Train a network on DATA.csv and save it as a bundle."""
     from nodecast.compiler.bundle import save
     from nodecast.compiler.csvio import read_table
-    from nodecast.compiler.files import refuse_existing
+    from nodecast.compiler.files import check_outputs
     from nodecast.trainer.training import TrainingJob
     from nodecast.trainer.training import train as run_training
 
-    refuse_existing(Path(output), overwrite)  # before training, not after minutes of it
+    check_outputs({"-o": output}, {"DATA": data}, overwrite)  # before training, not after it
 
     job = TrainingJob(
         targets=parse_list(target, option="--target"), features=parse_list(features, option="--features"),
@@ -173,8 +173,9 @@ def predict(model, data, output, scores, overwrite):
 
     from nodecast.compiler import reference
     from nodecast.compiler.csvio import read_table, write_table
-    from nodecast.compiler.files import write_atomic
+    from nodecast.compiler.files import check_outputs, write_atomic
 
+    check_outputs({"-o": output}, {"MODEL": model, "DATA": data}, overwrite)
     net = load_bundle(model).network
     X = read_table(data).numbers(net.feature_names, allow_nonfinite=True)
     with np.errstate(over="ignore", invalid="ignore"):  # IEEE 754 results: docs/reliability.md
@@ -234,7 +235,9 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
          max_size, activation_impl, table_size, bare_metal):
     """Compile a bundle into an artifact for a target."""
     from nodecast.compiler import emit as emit_artifact
-    from nodecast.compiler.files import parse_size
+    from nodecast.compiler.files import check_outputs, parse_size
+
+    check_outputs({"-o": output}, {"MODEL": model}, overwrite, folders=("-o",) if target == "c" else ())
 
     options = {"out_of_domain": out_of_domain}
     if precision:
@@ -274,26 +277,29 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
 @click.option("--junit", type=click.Path(dir_okay=False), help="Write a JUnit XML report here.")
 @click.option("--emulate", type=click.Choice(["cortex-m3", "cortex-m4"]),
               help="C artifacts: run on an emulated Cortex-M (QEMU) instead of the host.")
-def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, junit, emulate):
+@click.option("--overwrite", is_flag=True, help="Replace existing report files.")
+def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, junit, emulate, overwrite):
     """Run ARTIFACT in its real runtime and compare it with the bundle's reference.
 
     Exit 0 when every probe family agrees within the tolerance, 1 when one does not, 2 on bad input.
     """
     from nodecast.compiler.csvio import read_table
-    from nodecast.compiler.files import write_atomic
+    from nodecast.compiler.files import check_outputs, write_atomic
     from nodecast.compiler.verify import format_table
     from nodecast.compiler.verify import verify as run_verify
     from nodecast.compiler.verify.report import to_json, verify_junit
 
+    check_outputs({"--report": report, "--junit": junit},
+                  {"MODEL": model, "ARTIFACT": artifact, "--data": data}, overwrite)
     bundle = load_bundle(model)
     rows = read_table(data).numbers(bundle.network.feature_names) if data else None
     run_options = {"emulate": emulate} if emulate else {}
     result = run_verify(bundle, artifact, rows, probes, seed, abs_tol, rel_tol, **run_options)
     click.echo(format_table(result))
     if report:
-        write_atomic(report, to_json(result.as_dict()).encode("utf-8"), overwrite=True)
+        write_atomic(report, to_json(result.as_dict()).encode("utf-8"), overwrite=overwrite)
     if junit:
-        write_atomic(junit, verify_junit(result.as_dict()).encode("utf-8"), overwrite=True)
+        write_atomic(junit, verify_junit(result.as_dict()).encode("utf-8"), overwrite=overwrite)
     sys.exit(0 if result.passed else 1)
 
 
@@ -302,20 +308,22 @@ def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, junit,
               help="Folder for the demo's data, bundle, artifacts and reports.")
 @click.option("--data-only", is_flag=True,
               help="Only write the demo data (readings.csv, held_out.csv), for your own experiments.")
-def demo(output, data_only):
+@click.option("--overwrite", is_flag=True, help="Replace the demo's files left in the folder.")
+def demo(output, data_only, overwrite):
     """Run the whole job on the built-in demo scenario (a cooling-fan controller).
 
     The scenario is invented: four sensor readings of a made-up power stage (ambient temperature,
     fan speed, load current, supply voltage) and its heatsink temperature, from a made-up formula
     plus noise.
     """
-    from nodecast.compiler.demo import run_demo, write_data
+    from nodecast.compiler.demo import check_demo_outputs, run_demo, write_data
 
+    check_demo_outputs(Path(output), data_only, overwrite)
     if data_only:
-        write_data(Path(output))
+        write_data(Path(output), overwrite)
         click.echo(f"wrote {Path(output) / 'readings.csv'} and {Path(output) / 'held_out.csv'}", err=True)
         return
-    sys.exit(run_demo(Path(output), echo=click.echo))
+    sys.exit(run_demo(Path(output), echo=click.echo, overwrite=overwrite))
 
 
 cli.add_command(score_command)

@@ -79,6 +79,9 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
     from nodecast.trainer.table_selection import run_selection
     from nodecast.trainer.training import TrainingJob
 
+    from nodecast.compiler.files import check_outputs
+
+    check_outputs({"-o": output, "--report": report, "--plot": plot}, {"DATA": data}, overwrite)
     if tolerance is not None and precision is None:
         raise NodecastError("--tolerance needs --precision (the precision to estimate it in)")
     job = TrainingJob(
@@ -95,11 +98,11 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
     result, bundle = run_selection(read_table(data), job, grid, settings, growth, _progress())
     save(bundle, output, overwrite=overwrite)
     if report:
-        _write_report(report, result, bundle)
+        _write_report(report, result, bundle, overwrite)
     if plot:
         from nodecast.trainer.selection_plot import plot_search
 
-        plot_search(result, plot, overwrite=True)
+        plot_search(result, plot, overwrite=overwrite)
     click.echo(_summary(result, bundle, output), err=True)
 
 
@@ -131,13 +134,13 @@ def _progress():
     return show
 
 
-def _write_report(path, result, bundle) -> None:
+def _write_report(path, result, bundle, overwrite: bool) -> None:
     from nodecast.compiler.files import write_atomic
 
     document = {"bundle_id": bundle.bundle_id, "features": list(bundle.network.feature_names),
                 "targets": list(bundle.network.target_names), **result.as_dict()}
     text = json.dumps(document, indent=2, sort_keys=True, allow_nan=False) + "\n"
-    write_atomic(path, text.encode("utf-8"), overwrite=True)
+    write_atomic(path, text.encode("utf-8"), overwrite=overwrite)
 
 
 def _summary(result, bundle, output) -> str:
