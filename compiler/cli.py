@@ -10,6 +10,7 @@ import json
 import signal
 import sys
 import threading
+import warnings
 from pathlib import Path
 
 import click
@@ -338,22 +339,59 @@ def _stop_on_sigterm(signum, frame) -> None:
 def main(argv=None) -> None:
     if threading.current_thread() is threading.main_thread():
         signal.signal(signal.SIGTERM, _stop_on_sigterm)
+    from nodecast.compiler.terminal import EscapingStream
+
+    streams = sys.stdout, sys.stderr
+    sys.stdout, sys.stderr = EscapingStream(sys.stdout), EscapingStream(sys.stderr)
+    try:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("default")
+            code = _run(argv)
+        _show_warnings(caught, failed=code != 0)
+    finally:
+        sys.stdout, sys.stderr = streams
+    if code:
+        sys.exit(code)
+
+
+def _run(argv) -> int:
+    """The command's exit status; every error becomes one line on stderr."""
     try:
         cli.main(args=argv, prog_name="nodecast", standalone_mode=False)
     except click.exceptions.Exit as exc:
-        sys.exit(exc.exit_code)
+        return exc.exit_code
+    except SystemExit as exc:
+        return exc.code if isinstance(exc.code, int) else (0 if exc.code is None else 1)
     except click.ClickException as exc:
         exc.show()
-        sys.exit(2)
-    except click.exceptions.Abort:
-        click.echo("aborted", err=True)
-        sys.exit(2)
+        return 2
+    except (click.exceptions.Abort, KeyboardInterrupt):  # click turns Ctrl-C into Abort
+        click.echo("nodecast: interrupted", err=True)
+        return 130
     except NodecastError as exc:
         click.echo(f"nodecast: error: {' '.join(str(exc).split())}", err=True)
-        sys.exit(2)
-    except KeyboardInterrupt:
-        click.echo("nodecast: interrupted", err=True)
-        sys.exit(130)
+        return 2
+    except MemoryError:
+        click.echo("nodecast: error: out of memory; the input or the model is too large for this "
+                   "machine", err=True)
+        return 2
+    return 0
+
+
+def _show_warnings(caught, failed: bool) -> None:
+    """Library warnings as one line each, after the command; none after an error (the error line
+    says what matters). NumPy's floating-point RuntimeWarnings are dropped: results that overflow
+    are checked and refused by the code that uses them."""
+    if failed:
+        return
+    shown = set()
+    for warning in caught:
+        text = " ".join(str(warning.message).split())
+        if issubclass(warning.category, RuntimeWarning) and "encountered in" in text:
+            continue
+        if text not in shown:
+            shown.add(text)
+            click.echo(f"nodecast: warning: {text}", err=True)
 
 
 if __name__ == "__main__":

@@ -90,9 +90,10 @@ def c_comment(text: str) -> str:
 
 def float_literal(value: float) -> str:
     """A float (binary32) literal that reads back as float32(value); raise if it would overflow."""
-    single = np.float32(value)
+    with np.errstate(over="ignore"):
+        single = np.float32(value)
     if not np.isfinite(single):
-        raise NodecastError(f"value {value!r} does not fit float32; emit float64 instead")
+        raise NodecastError(f"value {float(value):.17g} does not fit float32; emit float64 instead")
     return _with_point(f"{float(single):.9g}") + "f"
 
 
