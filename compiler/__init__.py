@@ -31,6 +31,11 @@ def emit(bundle: Bundle, to: str, path=None, overwrite: bool = False, max_bytes:
         raise NodecastError(f"the {to} {artifact.summary.get('precision', '')} artifact's error "
                             "cannot be bounded (the model's values overflow that precision); "
                             "choose a wider precision or a better-regularised model")
+    from dataclasses import replace
+
+    from nodecast.compiler.integrity import seal
+
+    artifact = replace(artifact, files={name: seal(name, data) for name, data in artifact.files.items()})
     check_artifact_size(to, artifact.files, MAX_ARTIFACT_BYTES if max_bytes is None else max_bytes)
     if path is not None:
         if artifact.single_file:

@@ -45,10 +45,15 @@ def parse_list(text: str | None, kind=str, option: str = "") -> tuple:
                             f"got {text!r}") from None
 
 
+SEED = click.IntRange(0, 2**32 - 1)  # common practice for seeds; exact in every JSON reader
+
+
 def parse_domain(text: str | None) -> dict[str, tuple[float, float]]:
     domain = {}
     for item in parse_list(text, option="--domain"):
         name, sep, bounds = item.rpartition("=")
+        if name in domain:
+            raise NodecastError(f"--domain names {name!r} twice; give each feature once")
         low, colon, high = bounds.partition(":")
         try:
             lo, hi = float(low), float(high)
@@ -79,8 +84,21 @@ def parse_units(text: str | None) -> dict[str, str]:
         name, sep, unit = item.partition("=")
         if not sep or not name:
             raise NodecastError(f"--units takes NAME=UNIT, got {item!r}")
+        if name in units:
+            raise NodecastError(f"--units names {name!r} twice; give each column once")
         units[name] = unit
     return units
+
+
+def check_units(units: dict, table, job) -> None:
+    """Refuse --units for a column that is neither a feature nor a target (a typo, most likely)."""
+    from nodecast.trainer.training import feature_columns
+
+    known = set(feature_columns(table.header, job)) | set(job.targets)
+    unknown = [name for name in units if name not in known]
+    if unknown:
+        raise NodecastError(f"--units names {', '.join(map(repr, unknown))}, not a feature or "
+                            "target column")
 
 
 def load_bundle(path):
@@ -122,7 +140,7 @@ def cli():
               show_default=True)
 @click.option("--task", type=click.Choice(["regression", "classification"]), default="regression",
               show_default=True)
-@click.option("--seed", type=int, default=0, show_default=True)
+@click.option("--seed", type=SEED, default=0, show_default=True)
 @click.option("--validation-fraction", type=click.FloatRange(0, 0.9), default=0.2, show_default=True,
               help="Share of rows held out for the reported validation error (the bundle's model "
                    "is fitted on all rows).")
@@ -145,7 +163,9 @@ def train(data, target, features, domain, units, method, nodes, neighbors, slope
         validation_fraction=validation_fraction,
         params=dict(n_nodes=nodes, method=method, n_neighbors=neighbors, slope_scale=slope_scale,
                     interval=interval, ridge=parse_ridge(ridge), activation=activation))
-    bundle = run_training(read_table(data), job)
+    table = read_table(data)
+    check_units(job.units, table, job)
+    bundle = run_training(table, job)
     save(bundle, output, overwrite=overwrite)
     click.echo(f"wrote {output} (bundle {bundle.bundle_id[:12]}); {_metrics_line(bundle)}", err=True)
 
@@ -252,6 +272,9 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
                        footprint=True, bare_metal=bare_metal)
     elif activation_impl or table_size or bare_metal:
         raise NodecastError("--activation-impl, --table-size and --bare-metal apply to --to c only")
+    if flag_out_of_domain and target != "onnx":
+        raise NodecastError(f"--flag-out-of-domain adds an output to an ONNX graph; the {target} "
+                            "artifact handles inputs outside the domain by --out-of-domain")
     max_bytes = None if max_size is None else parse_size(max_size)
     artifact = emit_artifact(load_bundle(model), target, output, overwrite=overwrite,
                              max_bytes=max_bytes, **options)
@@ -271,7 +294,7 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
 @click.option("--data", type=click.Path(dir_okay=False), help="Also probe the rows of this CSV.")
 @click.option("--probes", type=click.IntRange(min=1), default=4096, show_default=True,
               help="Quasi-random probes in the declared domain.")
-@click.option("--seed", type=int, default=0, show_default=True)
+@click.option("--seed", type=SEED, default=0, show_default=True)
 @click.option("--abs-tol", type=click.FloatRange(min=0), help="Tolerance in target units.")
 @click.option("--rel-tol", type=click.FloatRange(min=0), help="Tolerance, share of the output range.")
 @click.option("--report", type=click.Path(dir_okay=False), help="Write the JSON report here.")
@@ -283,6 +306,11 @@ def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, junit,
     """Run ARTIFACT in its real runtime and compare it with the bundle's reference.
 
     Exit 0 when every probe family agrees within the tolerance, 1 when one does not, 2 on bad input.
+
+    Verify runs the artifact's code: a C artifact is compiled and run, a Python predictor is run.
+    Verify only artifacts you trust as much as code you would run. They run in a child process
+    with an empty environment and a time limit, and the report says when a generated file changed
+    since emit (each records its SHA-256).
     """
     from nodecast.compiler.csvio import read_table
     from nodecast.compiler.files import check_outputs, write_atomic
@@ -362,8 +390,13 @@ def _run(argv) -> int:
         return exc.exit_code
     except SystemExit as exc:
         return exc.code if isinstance(exc.code, int) else (0 if exc.code is None else 1)
+    except click.UsageError as exc:  # one line, like every other error (docs/reliability.md)
+        command = exc.ctx.command_path if exc.ctx is not None else "nodecast"
+        click.echo(f"nodecast: error: {' '.join(exc.format_message().split())} (see {command} "
+                   "--help)", err=True)
+        return 2
     except click.ClickException as exc:
-        exc.show()
+        click.echo(f"nodecast: error: {' '.join(exc.format_message().split())}", err=True)
         return 2
     except (click.exceptions.Abort, KeyboardInterrupt):  # click turns Ctrl-C into Abort
         click.echo("nodecast: interrupted", err=True)

@@ -36,7 +36,7 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
               help="Shuffled cross-validation folds.")
 @click.option("--activation", type=click.Choice(["logistic", "tanh"]), default="logistic",
               show_default=True)
-@click.option("--seed", type=int, default=0, show_default=True,
+@click.option("--seed", type=click.IntRange(0, 2**32 - 1), default=0, show_default=True,
               help="Seeds the folds and every hidden-layer draw (the final model's seed).")
 @click.option("--precision", type=click.Choice(["float32", "float64", "q31", "q15"]),
               help="Target precision: report the chosen model's estimated export error in it.")
@@ -71,7 +71,7 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
     """Choose nodes, neighbours, slope scale and ridge by k-fold cross-validation on DATA.csv,
     refit the choice on all rows and save it as a bundle."""
     from nodecast.compiler.bundle import save
-    from nodecast.compiler.cli import parse_domain, parse_list, parse_units
+    from nodecast.compiler.cli import check_units, parse_domain, parse_list, parse_units
     from nodecast.compiler.csvio import read_table
     from nodecast.trainer.grid import make_grid
     from nodecast.trainer.growth import GrowthSettings
@@ -95,7 +95,9 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
     settings = SearchSettings(folds, seed, activation, precision, tolerance, _jobs(jobs))
     growth = GrowthSettings(grow_batch, grow_threshold, grow_patience,
                             grow_pool or 2 * max(grid.nodes)) if grow else None
-    result, bundle = run_selection(read_table(data), job, grid, settings, growth, _progress())
+    table = read_table(data)
+    check_units(job.units, table, job)
+    result, bundle = run_selection(table, job, grid, settings, growth, _progress())
     save(bundle, output, overwrite=overwrite)
     if report:
         _write_report(report, result, bundle, overwrite)
@@ -109,7 +111,7 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
 def _jobs(text: str) -> int | None:
     if text == "auto":
         return None
-    if text.isdigit() and int(text) >= 1:
+    if text.isascii() and text.isdigit() and int(text) >= 1:
         return int(text)
     raise NodecastError(f"--jobs takes a positive integer or 'auto', got {text!r}")
 

@@ -69,6 +69,14 @@ def _describe(module, path: Path, bundle, run_options: dict) -> dict:
         raise NodecastError(f"{path} was generated from bundle {str(info.get('bundle_id'))[:12]}"
                             f"..., not from this bundle {bundle.bundle_id[:12]}...; verify it "
                             "against the bundle it was emitted from")
+    net = bundle.network
+    declared = {"n_inputs": net.n_features, "n_outputs": net.n_outputs,
+                "feature_names": list(net.feature_names)}
+    for key, want in declared.items():
+        if key in info and info[key] != want:
+            raise NodecastError(f"{path} declares {key.replace('_', ' ')} {str(info[key])[:80]}, "
+                                f"the bundle has {str(want)[:80]}: the artifact was edited or is "
+                                "not this model's")
     policy = info.get("out_of_domain")
     if policy not in ("clamp", "pass", "reject"):
         raise NodecastError(f"{path} declares an unknown out-of-domain policy {policy!r}")
@@ -173,18 +181,38 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
                                     None if labels_all is None else labels_all[rows])
             results.append({"engine": engine, **record})
     passed = all(r["passed"] for r in results)
+    files = _generated_files(kind, path, info)
     document = {
         "passed": passed, "bundle_id": bundle.bundle_id, "task": net.task,
-        "artifact": {**_plain(info), "path": str(path), "kind": kind, "engines": engines},
+        "artifact": {**_plain(info), "path": str(path), "kind": kind, "engines": engines,
+                     "files": files},
         "outputs": {"names": list(net.target_names), "units": list(net.target_units)},
         "max_abs_error": max(r["max_abs_error"] for r in results),
         "max_rel_error": max(r["max_rel_error"] for r in results),
         "tolerance": tolerance.as_dict(), "estimate": est.as_dict(),
         "probes": {"seed": seed, "sobol": count, "total": int(X_all.shape[0]),
                    "families": {f.name: int(f.X.shape[0]) for f in families}},
-        "families": results, "notes": _notes(tolerance, est, results),
+        "families": results, "notes": _file_notes(files) + _notes(tolerance, est, results),
     }
     return Report(passed, document)
+
+
+def _generated_files(kind: str, path: Path, info: dict) -> dict[str, str]:
+    """Each generated file's state against the SHA-256 emit recorded in it (compiler/integrity)."""
+    from nodecast.compiler.integrity import check_files
+
+    if kind == "c":
+        return check_files([path / f"{info['prefix']}.h", path / f"{info['prefix']}.c"])
+    return check_files([path])
+
+
+def _file_notes(files: dict[str, str]) -> list[str]:
+    changed = [name for name, state in files.items() if state != "unchanged"]
+    if not changed:
+        return []
+    return [f"{', '.join(changed)}: changed since emit or not recorded by it (the SHA-256 emit "
+            "wrote into each generated file does not match); these results are for the code as "
+            "it is now, which nodecast did not write"]
 
 
 def _plain(value):
