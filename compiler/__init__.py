@@ -25,6 +25,14 @@ def emit(bundle: Bundle, to: str, path=None, overwrite: bool = False, max_bytes:
         write_files,
     )
 
+    from nodecast.compiler.limits import check_artifact_estimate, check_memory, estimate_bytes
+
+    net = bundle.network
+    default = "float64" if to == "python" else "float32"
+    check_artifact_estimate(net, to, options.get("precision") or default,
+                            MAX_ARTIFACT_BYTES if max_bytes is None else max_bytes)
+    check_memory(estimate_bytes(net), f"the export-error estimate of {net.n_nodes} nodes",
+                 "emit on a machine with more memory, or use fewer nodes")
     artifact = render(bundle, to, **options)
     estimate = artifact.summary.get("estimate", {}).get("max_abs_error", 0.0)
     if not math.isfinite(estimate):

@@ -224,6 +224,11 @@ def inspect(model, precision, as_json):
     from nodecast.compiler.inspection import describe_bundle, format_description
 
     bundle = load_bundle(model)
+    if precision:
+        from nodecast.compiler.limits import check_memory, estimate_bytes
+
+        check_memory(estimate_bytes(bundle.network), f"the {precision} error estimate of "
+                     f"{bundle.network.n_nodes} nodes", "inspect without --precision")
     description = describe_bundle(bundle, precision)
     click.echo(json.dumps(description, indent=2, sort_keys=True) if as_json
                else format_description(description))

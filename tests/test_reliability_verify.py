@@ -140,3 +140,23 @@ def test_python_predictor_with_edited_declarations_is_one_line(work, capsys):
     predictor.write_bytes(source.encode().replace(b"FEATURE_NAMES", b"\xff", 1))
     code, _, err = run_cli(["verify", work / "m.ncz", predictor, "--probes", "16"], capsys)
     assert one_line_refusal(code, err), err
+
+
+def test_predictor_reads_a_header_of_40000_extra_columns(work, capsys):
+    """The duplicate-header check is one pass (it was quadratic: 77 s for 40,000 columns); see
+    tests/benchmarks/predictor_wide_header.py for the time."""
+    import subprocess
+    import sys
+
+    predictor = _emit(work, capsys, "python", "p.py")
+    extra = [f"c{i}" for i in range(40_000)]
+    header = ",".join(["load", "speed"] + extra)
+    row = ",".join(["0.25", "0.5"] + ["0"] * len(extra))
+    done = subprocess.run([sys.executable, "-I", "-S", str(predictor)], input=f"{header}\n{row}\n",
+                          capture_output=True, text=True, timeout=600, check=False)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.splitlines()[0] == "temp"
+    doubled = f"{header},c17\n{row},0\n"
+    done = subprocess.run([sys.executable, "-I", "-S", str(predictor)], input=doubled,
+                          capture_output=True, text=True, timeout=600, check=False)
+    assert done.returncode == 2 and "duplicated column name(s) 'c17'" in done.stderr

@@ -161,6 +161,7 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
                             "artifact, which runs on the host only")
     module = runner(kind)
     info = _describe(module, path, bundle, run_options)
+    _check_verify_memory(net, data, count)
     families = probe_families(net, data, count, seed)
     wanted = [expected_outputs(net, f.X, info["out_of_domain"]) for f in families]
     tolerance, per_family, out_range, est = _tolerances(net, families, wanted, info, abs_tol,
@@ -195,6 +196,18 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
         "families": results, "notes": _file_notes(files) + _notes(tolerance, est, results),
     }
     return Report(passed, document)
+
+
+def _check_verify_memory(net, data, count: int) -> None:
+    """Refuse, with the estimate, a verification that would exhaust the memory."""
+    from nodecast.compiler.limits import check_memory, verify_bytes
+    from nodecast.compiler.verify.probes import ALL_CORNERS_UP_TO, MAX_CORNERS
+
+    n = net.n_features
+    corners = 2**n if n <= ALL_CORNERS_UP_TO else MAX_CORNERS
+    rows = count + corners + 8 * n + 2 + (0 if data is None else len(data))
+    check_memory(verify_bytes(net, rows), f"verifying {net.n_nodes} nodes and {n} features on "
+                 f"{rows} probe rows", "lower --probes or verify on a machine with more memory")
 
 
 def _generated_files(kind: str, path: Path, info: dict) -> dict[str, str]:
