@@ -7,6 +7,7 @@ stderr, no traceback). Heavy libraries (scikit-learn, onnx, onnxruntime) load in
 from __future__ import annotations
 
 import json
+import re
 import signal
 import sys
 import threading
@@ -407,13 +408,21 @@ def _run(argv) -> int:
         click.echo("nodecast: interrupted", err=True)
         return 130
     except NodecastError as exc:
-        click.echo(f"nodecast: error: {' '.join(str(exc).split())}", err=True)
+        click.echo(f"nodecast: error: {_plain_numbers(' '.join(str(exc).split()))}", err=True)
         return 2
     except MemoryError:
         click.echo("nodecast: error: out of memory; the input or the model is too large for this "
                    "machine", err=True)
         return 2
     return 0
+
+
+_NUMPY_REPR = re.compile(r"\bnp\.(?:float|int|uint|bool|complex)\w*\(([^()]*)\)")
+
+
+def _plain_numbers(message: str) -> str:
+    """A message with NumPy scalar reprs (``np.float64(0.5)``, NumPy 2) shown as plain numbers."""
+    return _NUMPY_REPR.sub(r"\1", message)
 
 
 def _show_warnings(caught, failed: bool) -> None:

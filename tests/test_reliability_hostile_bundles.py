@@ -230,3 +230,18 @@ def test_ctrl_c_exits_130(monkeypatch, tmp_path, capsys):
         main(["inspect", str(tmp_path / "m.ncz")])
     assert info.value.code == 130
     assert capsys.readouterr().err.strip() == "nodecast: interrupted"
+
+
+def test_error_messages_show_numbers_not_numpy_reprs(monkeypatch, tmp_path, capsys):
+    from nodecast.compiler import inspection
+    from nodecast.compiler.errors import NodecastError
+
+    def refuse(*args, **kwargs):
+        raise NodecastError(f"value {np.float64(0.0099)!r} and {np.int64(3)!r} out of range")
+
+    monkeypatch.setattr(inspection, "describe_bundle", refuse)
+    (tmp_path / "m.ncz").write_bytes(to_bytes(Bundle(network(), {})))
+    with pytest.raises(SystemExit) as info:
+        main(["inspect", str(tmp_path / "m.ncz")])
+    assert info.value.code == 2
+    assert capsys.readouterr().err == "nodecast: error: value 0.0099 and 3 out of range\n"
