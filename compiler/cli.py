@@ -381,15 +381,15 @@ def main(argv=None) -> None:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("default")
             code = _run(argv)
-        _show_warnings(caught, failed=code != 0)
+        _show_warnings(caught, failed=bool(code))
     finally:
         sys.stdout, sys.stderr = streams
-    if code:
+    if code is not None:  # a command that returns normally returns here too
         sys.exit(code)
 
 
-def _run(argv) -> int:
-    """The command's exit status; every error becomes one line on stderr."""
+def _run(argv) -> int | None:
+    """The command's exit status (None: it returned normally); every error is one line."""
     try:
         cli.main(args=argv, prog_name="nodecast", standalone_mode=False)
     except click.exceptions.Exit as exc:
@@ -414,7 +414,7 @@ def _run(argv) -> int:
         click.echo("nodecast: error: out of memory; the input or the model is too large for this "
                    "machine", err=True)
         return 2
-    return 0
+    return None
 
 
 _NUMPY_REPR = re.compile(r"\bnp\.(?:float|int|uint|bool|complex)\w*\(([^()]*)\)")
