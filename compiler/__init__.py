@@ -24,7 +24,6 @@ def emit(bundle: Bundle, to: str, path=None, overwrite: bool = False, max_bytes:
         write_atomic,
         write_files,
     )
-
     from nodecast.compiler.limits import check_artifact_estimate, check_memory, estimate_bytes
 
     net = bundle.network

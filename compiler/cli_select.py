@@ -73,13 +73,12 @@ def select(data, target, features, domain, units, nodes, neighbors, slope_scales
     from nodecast.compiler.bundle import save
     from nodecast.compiler.cli import check_units, parse_domain, parse_list, parse_units
     from nodecast.compiler.csvio import read_table
+    from nodecast.compiler.files import check_outputs
     from nodecast.trainer.grid import make_grid
     from nodecast.trainer.growth import GrowthSettings
     from nodecast.trainer.selection import SearchSettings
     from nodecast.trainer.table_selection import run_selection
     from nodecast.trainer.training import TrainingJob
-
-    from nodecast.compiler.files import check_outputs
 
     check_outputs({"-o": output, "--report": report, "--plot": plot}, {"DATA": data}, overwrite)
     if tolerance is not None and precision is None:

@@ -152,7 +152,8 @@ def test_every_command_on_a_crafted_bundle_is_exit_0_or_one_line(name, tmp_path)
         if not acceptable(code, err):
             problems.append((args[0], args[2:], code, err[-400:]))
     for kind, precision in EMITS:
-        out = tmp_path / f"{kind}-{precision}{'.onnx' if kind == 'onnx' else '.py' if kind == 'python' else ''}"
+        suffix = {"onnx": ".onnx", "python": ".py"}.get(kind, "")
+        out = tmp_path / f"{kind}-{precision}{suffix}"
         policy = ["--out-of-domain", "clamp"] if precision.startswith("q") else []
         code, err = run(["emit", path, "--to", kind, "--precision", precision, "-o", out, *policy])
         if not acceptable(code, err):
