@@ -102,7 +102,7 @@ def test_firmware_example_runs_on_emulated_cortex_m4_within_the_estimate(tmp_pat
             raise AssertionError(f"CI must install {', '.join(missing)} (see .ci/run)")
         pytest.skip(f"needs {', '.join(missing)}")
     result = _run("firmware/run.sh", tmp_path)
-    assert "within the estimate" in result.stdout
+    assert "within the bound" in result.stdout
     assert json.loads((tmp_path / "verify_m4.json").read_text())["passed"] is True
     lines = (tmp_path / "firmware" / "results.txt").read_text().split("\n")
     assert len([line for line in lines if line.startswith("0 ")]) == 16  # every reading accepted
