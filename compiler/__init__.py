@@ -35,7 +35,14 @@ def emit(bundle, to: str, path=None, overwrite: bool = False, max_bytes: int | N
         write_atomic,
         write_files,
     )
+    from nodecast.compiler.limits import check_artifact_estimate, check_memory, estimate_bytes
 
+    net = bundle.network
+    default = "float64" if to == "python" else "float32"
+    check_artifact_estimate(net, to, options.get("precision") or default,
+                            MAX_ARTIFACT_BYTES if max_bytes is None else max_bytes)
+    check_memory(estimate_bytes(net), f"the export-error estimate of {net.n_nodes} nodes",
+                 "emit on a machine with more memory, or use fewer nodes")
     artifact = render(bundle, to, **options)
     estimate = artifact.summary.get("estimate", {}).get("max_abs_error", 0.0)
     bound = max(artifact.summary.get("certificate", {}).get("certified_bound", [0.0]))
@@ -43,6 +50,11 @@ def emit(bundle, to: str, path=None, overwrite: bool = False, max_bytes: int | N
         raise NodecastError(f"the {to} {artifact.summary.get('precision', '')} artifact's error "
                             "cannot be bounded (the model's values overflow that precision); "
                             "choose a wider precision or a better-regularised model")
+    from dataclasses import replace
+
+    from nodecast.compiler.integrity import seal
+
+    artifact = replace(artifact, files={name: seal(name, data) for name, data in artifact.files.items()})
     check_artifact_size(to, artifact.files, MAX_ARTIFACT_BYTES if max_bytes is None else max_bytes)
     if path is not None:
         if artifact.single_file:

@@ -7,9 +7,11 @@ stderr, no traceback). Heavy libraries (scikit-learn, onnx, onnxruntime) load in
 from __future__ import annotations
 
 import json
+import re
 import signal
 import sys
 import threading
+import warnings
 from pathlib import Path
 
 import click
@@ -49,10 +51,15 @@ def parse_list(text: str | None, kind=str, option: str = "") -> tuple:
                             f"got {text!r}") from None
 
 
+SEED = click.IntRange(0, 2**32 - 1)  # common practice for seeds; exact in every JSON reader
+
+
 def parse_domain(text: str | None) -> dict[str, tuple[float, float]]:
     domain = {}
     for item in parse_list(text, option="--domain"):
         name, sep, bounds = item.rpartition("=")
+        if name in domain:
+            raise NodecastError(f"--domain names {name!r} twice; give each feature once")
         low, colon, high = bounds.partition(":")
         try:
             lo, hi = float(low), float(high)
@@ -83,8 +90,21 @@ def parse_units(text: str | None) -> dict[str, str]:
         name, sep, unit = item.partition("=")
         if not sep or not name:
             raise NodecastError(f"--units takes NAME=UNIT, got {item!r}")
+        if name in units:
+            raise NodecastError(f"--units names {name!r} twice; give each column once")
         units[name] = unit
     return units
+
+
+def check_units(units: dict, table, job) -> None:
+    """Refuse --units for a column that is neither a feature nor a target (a typo, most likely)."""
+    from nodecast.trainer.training import feature_columns
+
+    known = set(feature_columns(table.header, job)) | set(job.targets)
+    unknown = [name for name in units if name not in known]
+    if unknown:
+        raise NodecastError(f"--units names {', '.join(map(repr, unknown))}, not a feature or "
+                            "target column")
 
 
 def load_bundle(path):
@@ -135,7 +155,7 @@ def cli():
               show_default=True)
 @click.option("--task", type=click.Choice(["regression", "classification"]), default="regression",
               show_default=True)
-@click.option("--seed", type=int, default=0, show_default=True)
+@click.option("--seed", type=SEED, default=0, show_default=True)
 @click.option("--validation-fraction", type=click.FloatRange(0, 0.9), default=0.2, show_default=True,
               help="Share of rows held out for the reported validation error (the bundle's model "
                    "is fitted on all rows).")
@@ -147,14 +167,14 @@ def train(data, target, features, domain, units, categorical, method, nodes, nei
     """Train a network on DATA.csv and save it as a bundle."""
     from nodecast.compiler.bundle import save
     from nodecast.compiler.csvio import read_table
-    from nodecast.compiler.files import refuse_existing
+    from nodecast.compiler.files import check_outputs
     from nodecast.compiler.progress import Progress, run_interruptible
     from nodecast.compiler.provenance import file_record, with_training_data
     from nodecast.trainer.cost import FitClock
     from nodecast.trainer.training import TrainingJob, heavy_tail_note
     from nodecast.trainer.training import train as run_training
 
-    refuse_existing(Path(output), overwrite)  # before training, not after minutes of it
+    check_outputs({"-o": output}, {"DATA": data}, overwrite)  # before training, not after it
 
     job = TrainingJob(
         targets=parse_list(target, option="--target"), features=parse_list(features, option="--features"),
@@ -167,6 +187,7 @@ def train(data, target, features, domain, units, categorical, method, nodes, nei
                     weight_sum=_parse_range(weight_sum, "--weight-sum"),
                     ridge=parse_ridge(ridge), activation=activation))
     table, record = read_table(data), file_record(data)
+    check_units(job.units, table, job)
     given = click.get_current_context().get_parameter_source("nodes").name == "COMMANDLINE"
     with Progress("train") as progress:
         clock = FitClock(progress, nodes, on_start=warn_more_nodes_than_rows if given else None)
@@ -271,9 +292,10 @@ def predict(model, data, output, scores, keep, overwrite):
 
     from nodecast.compiler import reference
     from nodecast.compiler.csvio import read_table, write_table
-    from nodecast.compiler.files import write_atomic
+    from nodecast.compiler.files import check_outputs, write_atomic
     from nodecast.compiler.levels import table_rows
 
+    check_outputs({"-o": output}, {"MODEL": model, "DATA": data}, overwrite)
     net = load_bundle(model).network
     table = read_table(data)
     kept_names, kept = kept_columns(table, parse_list(keep, option="--keep"))
@@ -333,6 +355,11 @@ def inspect(model, precision, as_json, plot_folder, data, overwrite, cost):
 
         for path in plot_bundle(bundle, plot_folder, read_table(data) if data else None, overwrite):
             click.echo(f"wrote {path}", err=True)
+    if precision:
+        from nodecast.compiler.limits import check_memory, estimate_bytes
+
+        check_memory(estimate_bytes(bundle.network), f"the {precision} error estimate of "
+                     f"{bundle.network.n_nodes} nodes", "inspect without --precision")
     description = describe_bundle(bundle, precision)
     if cost:
         description["cost"] = target_cost(bundle, precision or "float32")
@@ -373,7 +400,9 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
          max_size, activation_impl, table_size, bare_metal, instruction_count):
     """Compile a bundle into an artifact for a target."""
     from nodecast.compiler import emit as emit_artifact
-    from nodecast.compiler.files import parse_size
+    from nodecast.compiler.files import check_outputs, parse_size
+
+    check_outputs({"-o": output}, {"MODEL": model}, overwrite, folders=("-o",) if target == "c" else ())
 
     options = {"out_of_domain": out_of_domain}
     if precision:
@@ -387,6 +416,9 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
                        footprint=True, bare_metal=bare_metal, instruction_count=instruction_count)
     elif activation_impl or table_size or bare_metal:
         raise NodecastError("--activation-impl, --table-size and --bare-metal apply to --to c only")
+    if flag_out_of_domain and target != "onnx":
+        raise NodecastError(f"--flag-out-of-domain adds an output to an ONNX graph; the {target} "
+                            "artifact handles inputs outside the domain by --out-of-domain")
     max_bytes = None if max_size is None else parse_size(max_size)
     artifact = emit_artifact(load_bundle(model), target, output, overwrite=overwrite,
                              max_bytes=max_bytes, **options)
@@ -433,7 +465,7 @@ def budget_warning(bundle, summary: dict) -> str | None:
 @click.option("--data", type=click.Path(dir_okay=False), help="Also probe the rows of this CSV.")
 @click.option("--probes", type=click.IntRange(min=1), default=4096, show_default=True,
               help="Quasi-random probes in the declared domain.")
-@click.option("--seed", type=int, default=0, show_default=True)
+@click.option("--seed", type=SEED, default=0, show_default=True)
 @click.option("--abs-tol", type=click.FloatRange(min=0), help="Tolerance in target units.")
 @click.option("--rel-tol", type=click.FloatRange(min=0), help="Tolerance, share of the output range.")
 @click.option("--report", type=click.Path(dir_okay=False), help="Write the JSON report here.")
@@ -445,16 +477,22 @@ def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, junit,
     """Run ARTIFACT in its real runtime and compare it with the bundle's reference.
 
     Exit 0 when every probe family agrees within the tolerance, 1 when one does not, 2 on bad input.
+
+    Verify runs the artifact's code: a C artifact is compiled and run, a Python predictor is run.
+    Verify only artifacts you trust as much as code you would run. They run in a child process
+    with an empty environment and a time limit, and the report says when a generated file changed
+    since emit (each records its SHA-256).
     """
     from nodecast.compiler.csvio import read_table
-    from nodecast.compiler.files import refuse_existing_outputs, write_atomic
+    from nodecast.compiler.files import check_outputs, write_atomic
     from nodecast.compiler.levels import table_rows
     from nodecast.compiler.progress import EngineClock, Progress
     from nodecast.compiler.verify import format_table
     from nodecast.compiler.verify import verify as run_verify
     from nodecast.compiler.verify.report import to_json, verify_junit
 
-    refuse_existing_outputs(overwrite, report, junit)
+    check_outputs({"--report": report, "--junit": junit},
+                  {"MODEL": model, "ARTIFACT": artifact, "--data": data}, overwrite)
     bundle = load_bundle(model)
     rows = table_rows(read_table(data), bundle.network) if data else None
     run_options = {"emulate": emulate} if emulate else {}
@@ -476,20 +514,22 @@ def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, junit,
               help="Folder for the demo's data, bundle, artifacts and reports.")
 @click.option("--data-only", is_flag=True,
               help="Only write the demo data (readings.csv, held_out.csv), for your own experiments.")
-def demo(output, data_only):
+@click.option("--overwrite", is_flag=True, help="Replace the demo's files left in the folder.")
+def demo(output, data_only, overwrite):
     """Run the whole job on the built-in demo scenario (a cooling-fan controller).
 
     The scenario is invented: four sensor readings of a made-up power stage (ambient temperature,
     fan speed, load current, supply voltage) and its heatsink temperature, from a made-up formula
     plus noise.
     """
-    from nodecast.compiler.demo import run_demo, write_data
+    from nodecast.compiler.demo import check_demo_outputs, run_demo, write_data
 
+    check_demo_outputs(Path(output), data_only, overwrite)
     if data_only:
-        write_data(Path(output))
+        write_data(Path(output), overwrite)
         click.echo(f"wrote {Path(output) / 'readings.csv'} and {Path(output) / 'held_out.csv'}", err=True)
         return
-    sys.exit(run_demo(Path(output), echo=click.echo))
+    sys.exit(run_demo(Path(output), echo=click.echo, overwrite=overwrite))
 
 
 cli.add_command(diff_command)
@@ -514,28 +554,73 @@ def usage_error_line(exc) -> str:
 def main(argv=None) -> None:
     if threading.current_thread() is threading.main_thread():
         signal.signal(signal.SIGTERM, _stop_on_sigterm)
+    from nodecast.compiler.terminal import EscapingStream
+
+    streams = sys.stdout, sys.stderr
+    sys.stdout, sys.stderr = EscapingStream(sys.stdout), EscapingStream(sys.stderr)
+    try:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("default")
+            code = _run(argv)
+        _show_warnings(caught, failed=bool(code))
+    finally:
+        sys.stdout, sys.stderr = streams
+    if code is not None:  # a command that returns normally returns here too
+        sys.exit(code)
+
+
+def _run(argv) -> int | None:
+    """The command's exit status (None: it returned normally); every error is one line."""
     try:
         cli.main(args=argv, prog_name="nodecast", standalone_mode=False)
     except click.exceptions.Exit as exc:
-        sys.exit(exc.exit_code)
+        return exc.exit_code
+    except SystemExit as exc:
+        return exc.code if isinstance(exc.code, int) else (0 if exc.code is None else 1)
     except click.exceptions.NoArgsIsHelpError as exc:  # bare `nodecast`: the help, as asked
         click.echo(exc.ctx.get_help(), err=True)
-        sys.exit(2)
-    except click.UsageError as exc:
+        return 2
+    except click.UsageError as exc:  # one line, like every other error (docs/reliability.md)
         click.echo(usage_error_line(exc), err=True)
-        sys.exit(2)
+        return 2
     except click.ClickException as exc:
-        exc.show()
-        sys.exit(2)
-    except click.exceptions.Abort:  # click's form of Ctrl-C (KeyboardInterrupt) in a command
+        click.echo(f"nodecast: error: {' '.join(exc.format_message().split())}", err=True)
+        return 2
+    except (click.exceptions.Abort, KeyboardInterrupt):  # click turns Ctrl-C into Abort
         click.echo("nodecast: interrupted", err=True)
-        sys.exit(130)
+        return 130
     except NodecastError as exc:
-        click.echo(f"nodecast: error: {' '.join(str(exc).split())}", err=True)
-        sys.exit(2)
-    except KeyboardInterrupt:
-        click.echo("nodecast: interrupted", err=True)
-        sys.exit(130)
+        click.echo(f"nodecast: error: {_plain_numbers(' '.join(str(exc).split()))}", err=True)
+        return 2
+    except MemoryError:
+        click.echo("nodecast: error: out of memory; the input or the model is too large for this "
+                   "machine", err=True)
+        return 2
+    return None
+
+
+_NUMPY_REPR = re.compile(r"\bnp\.(?:float|int|uint|bool|complex)\w*\(([^()]*)\)")
+
+
+def _plain_numbers(message: str) -> str:
+    """A message with NumPy scalar reprs (``np.float64(0.5)``, NumPy 2) shown as plain numbers."""
+    return _NUMPY_REPR.sub(r"\1", message)
+
+
+def _show_warnings(caught, failed: bool) -> None:
+    """Library warnings as one line each, after the command; none after an error (the error line
+    says what matters). NumPy's floating-point RuntimeWarnings are dropped: results that overflow
+    are checked and refused by the code that uses them."""
+    if failed:
+        return
+    shown = set()
+    for warning in caught:
+        text = " ".join(str(warning.message).split())
+        if issubclass(warning.category, RuntimeWarning) and "encountered in" in text:
+            continue
+        if text not in shown:
+            shown.add(text)
+            click.echo(f"nodecast: warning: {text}", err=True)
 
 
 if __name__ == "__main__":

@@ -63,11 +63,12 @@ def score(model, data, max_rmse, min_accuracy, baseline, rmse_margin, accuracy_m
     """
     from nodecast.compiler.bundle import load
     from nodecast.compiler.csvio import read_table
-    from nodecast.compiler.files import refuse_existing_outputs
+    from nodecast.compiler.files import check_outputs
     from nodecast.compiler.scoring import score as run_score
     from nodecast.compiler.verify.report import format_score_table, score_junit, to_json
 
-    refuse_existing_outputs(overwrite, report, junit)
+    check_outputs({"--report": report, "--junit": junit},
+                  {"MODEL": model, "DATA": data, "--baseline": baseline}, overwrite)
     result = run_score(load(model), read_table(data), max_rmse=_limits(max_rmse),
                        min_accuracy=min_accuracy, baseline=load(baseline) if baseline else None,
                        rmse_margin=rmse_margin, accuracy_margin=accuracy_margin,

@@ -44,7 +44,7 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp "
               help="Shuffled cross-validation folds.")
 @click.option("--activation", type=click.Choice(["logistic", "tanh"]), default="logistic",
               show_default=True)
-@click.option("--seed", type=int, default=0, show_default=True,
+@click.option("--seed", type=click.IntRange(0, 2**32 - 1), default=0, show_default=True,
               help="Seeds the folds and every hidden-layer draw (the final model's seed).")
 @click.option("--task", type=click.Choice(["regression", "classification"]), default="regression",
               show_default=True)
@@ -96,9 +96,9 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     DATA.csv (a classifier: by accuracy or log-loss), refit the choice on all rows and save it
     as a bundle."""
     from nodecast.compiler.bundle import save
-    from nodecast.compiler.cli import parse_domain, parse_list, parse_units
+    from nodecast.compiler.cli import check_units, parse_domain, parse_list, parse_units
     from nodecast.compiler.csvio import read_table
-    from nodecast.compiler.files import refuse_existing_outputs
+    from nodecast.compiler.files import check_outputs
     from nodecast.compiler.progress import Progress, run_interruptible
     from nodecast.compiler.provenance import file_record, with_training_data
     from nodecast.trainer.grid import make_grid
@@ -108,9 +108,9 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     from nodecast.trainer.table_selection import run_selection
     from nodecast.trainer.training import TrainingJob
 
+    check_outputs({"-o": output, "--report": report, "--plot": plot}, {"DATA": data}, overwrite)
     if tolerance is not None and precision is None:
         raise NodecastError("--tolerance needs --precision (the precision to estimate it in)")
-    refuse_existing_outputs(overwrite, output, report, plot)  # before the search, not after it
     job = TrainingJob(
         targets=parse_list(target, option="--target"),
         features=parse_list(features, option="--features"),
@@ -138,6 +138,7 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     growth = GrowthSettings(grow_batch, grow_threshold, grow_patience,
                             grow_pool or 2 * max(grid.nodes)) if grow else None
     table, record = read_table(data), file_record(data)
+    check_units(job.units, table, job)
     budget = _budget(table, job, grid, precision, core, max_flash, max_cycles, grow)
     search = partial(run_selection, allowed_nodes=None if budget is None else budget["allowed_nodes"])
     with Progress("select") as progress:
@@ -168,7 +169,7 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
 def _jobs(text: str) -> int | None:
     if text == "auto":
         return None
-    if text.isdigit() and int(text) >= 1:
+    if text.isascii() and text.isdigit() and int(text) >= 1:
         return int(text)
     raise NodecastError(f"--jobs takes a positive integer or 'auto', got {text!r}")
 

@@ -27,6 +27,10 @@ from nodecast.compiler.activations import get_activation
 from nodecast.compiler.errors import NodecastError
 
 Task = Literal["regression", "classification"]
+# Content limits (docs/reliability.md, "Bundles"): far beyond any trained model, and low enough that
+# squares and sums of these values stay finite in float64 everywhere nodecast computes with them.
+MAX_MAGNITUDE = 1e100
+MIN_SCALE = 1e-100
 OUT_OF_DOMAIN_POLICIES = ("clamp", "pass", "reject")
 
 ARRAY_FIELDS = (
@@ -111,6 +115,7 @@ class Network:
         if not self.target_units:
             object.__setattr__(self, "target_units", ("",) * len(self.target_names))
         self._check_shapes()
+        self._check_magnitudes()
         self._check_names()
         self._freeze_categorical()
 
@@ -138,6 +143,34 @@ class Network:
                 raise NodecastError(f"feature name {value!r} is empty or starts or ends with "
                                     "white space; CSV headers could never match it")
 
+    def _check_magnitudes(self) -> None:
+        """Refuse absurd but finite numbers (a hostile bundle's 1e308): every stored value, the
+        normalised domain, the pre-activation and the output bounds over the domain within
+        MAX_MAGNITUDE, and scales at least MIN_SCALE."""
+        for name in ARRAY_FIELDS:
+            array = getattr(self, name)
+            if array.size and float(np.max(np.abs(array))) > MAX_MAGNITUDE:
+                raise NodecastError(f"{name} holds {float(np.max(np.abs(array))):.3g}, beyond the "
+                                    f"{MAX_MAGNITUDE:.0e} this tool accepts (a broken or hostile "
+                                    "model)")
+        for name in ("input_scale", "output_scale"):
+            if float(np.min(getattr(self, name))) < MIN_SCALE:
+                raise NodecastError(f"{name} holds {float(np.min(getattr(self, name))):.3g}, below "
+                                    f"the {MIN_SCALE:.0e} this tool accepts (a broken or hostile "
+                                    "model)")
+        with np.errstate(all="ignore"):
+            reach = np.maximum(np.abs(self.domain_low - self.input_offset),
+                               np.abs(self.domain_high - self.input_offset)) / self.input_scale
+            z = np.abs(self.hidden_weights) @ reach + np.abs(self.hidden_biases)
+            y = np.abs(self.output_offset) + self.output_scale * (
+                np.sum(np.abs(self.output_weights), axis=0) + np.abs(self.output_bias))
+        for what, values in (("the normalised domain", reach), ("the pre-activations", z),
+                             ("the outputs", y)):
+            if values.size and not float(np.max(values)) <= MAX_MAGNITUDE:
+                raise NodecastError(f"{what} reach {float(np.max(values)):.3g} over the declared "
+                                    f"domain, beyond the {MAX_MAGNITUDE:.0e} this tool accepts (a "
+                                    "broken or hostile model)")
+
     def _check_shapes(self) -> None:
         m, n = self.hidden_weights.shape
         t = self.output_weights.shape[1]
@@ -159,6 +192,8 @@ class Network:
             raise ValueError("domain_low must not exceed domain_high")
         if self.task not in ("regression", "classification"):
             raise ValueError(f"task must be 'regression' or 'classification', got {self.task!r}")
+        if self.task == "classification" and t < 2:
+            raise ValueError(f"a classifier needs at least two classes, got {t}")
         if self.task == "classification" and len(self.class_labels) != t:
             raise ValueError(f"a classifier needs {t} class labels, got {len(self.class_labels)}")
         if self.task == "regression" and self.class_labels:

@@ -128,7 +128,9 @@ class _RandomNodeBase(BaseEstimator):
             # the rows are folded in the same order whatever the ridge, so that giving the ridge
             # "auto" chose reproduces the model bit for bit
             checked = ridge_choice.check_rows(U, rng)
-            return (layer,) + self._accumulate(layer, U, T, activation, checked)
+            with solvers.single_blas_thread():  # threaded products round differently: one
+                # thread, the same bundle whatever the machine (docs/reliability.md)
+                return (layer,) + self._accumulate(layer, U, T, activation, checked)
 
         auto = self.method == "data-driven" and "auto" in (self.n_neighbors, self.slope_scale)
         if not auto:

@@ -69,6 +69,7 @@ def render(bundle, precision: str = "float32", prefix: str = "model", out_of_dom
     if fixed and net.n_categorical:
         raise NodecastError(f"{precision} artifacts do not take categorical inputs yet; choose "
                             "float32 or float64")
+    _check_label_lengths(net.class_labels)
     make_context = fixed_context if fixed else float_context
     context = make_context(net, precision, impl, table_size)
     if fixed:
@@ -101,6 +102,18 @@ def render(bundle, precision: str = "float32", prefix: str = "model", out_of_dom
     if bare_metal:
         files.update(board_files())
     return Artifact("c", files, False, summary)
+
+
+C99_STRING_LIMIT = 4095  # ISO C99 5.2.4.1: the characters a string literal must be able to hold
+
+
+def _check_label_lengths(labels) -> None:
+    """A class label becomes a string literal; longer than C99 guarantees, -Wpedantic refuses it."""
+    for label in labels:
+        size = len(label.encode("utf-8"))
+        if size > C99_STRING_LIMIT:
+            raise NodecastError(f"class label {label[:20]!r}... is {size} bytes; a C99 string "
+                                f"literal holds at most {C99_STRING_LIMIT}; shorten the labels")
 
 
 def _render_template(name: str, context: dict) -> bytes:

@@ -129,7 +129,8 @@ def run_host(path: Path, X: np.ndarray, info: dict, extra_flags=()) -> str:
         toolchain.run([compiler, "-std=c99", "-O2", *toolchain.REPRODUCIBLE, *extra_flags,
                        f"{prefix}.c", "harness.c", "-o", "harness", "-lm"], cwd=folder)
         rows = np.ascontiguousarray(X, dtype="<f8").tobytes()
-        return toolchain.run([str(folder / "harness")], cwd=folder, stdin=rows).decode("ascii")
+        return toolchain.run([str(folder / "harness")], cwd=folder, stdin=rows,
+                             env=toolchain.artifact_environment()).decode("ascii")
 
 
 def run(path: Path, X: np.ndarray, info: dict) -> np.ndarray:

@@ -21,6 +21,7 @@ from pathlib import Path
 import numpy as np
 
 from nodecast.compiler.errors import NodecastError
+from nodecast.compiler.toolchain import artifact_environment
 
 _CONSTANTS = ("BUNDLE_ID", "PRECISION", "OUT_OF_DOMAIN", "TASK", "TOOL_VERSION", "FEATURE_NAMES",
               "N_OUTPUTS")
@@ -51,6 +52,11 @@ def read_constants(path: Path) -> dict:
     missing = [name for name in _CONSTANTS if name not in found]
     if missing:
         raise NodecastError(f"{path} was not made by nodecast (no {', '.join(missing)})")
+    names = found["FEATURE_NAMES"]
+    if (not isinstance(names, (list, tuple)) or not all(isinstance(n, str) for n in names)
+            or type(found["N_OUTPUTS"]) is not int
+            or not all(isinstance(found[k], str) for k in _CONSTANTS[:5])):
+        raise NodecastError(f"{path} declares constants of the wrong type (edited?)")
     return found
 
 
@@ -124,7 +130,7 @@ def run(path: Path, X: np.ndarray, info: dict) -> np.ndarray:
         done = subprocess.run(command, input=rows_as_csv(info["feature_names"], X,
                                                          info.get("categorical", ())),
                               capture_output=True, timeout=_MIN_SECONDS + _SECONDS_PER_ROW * len(X),
-                              check=False)
+                              check=False, env=artifact_environment())
     except (OSError, subprocess.TimeoutExpired) as exc:
         raise NodecastError(f"cannot run {path} with {executable}: {exc}") from None
     if done.returncode != 0:
