@@ -43,11 +43,17 @@ def node_ranges(bundle) -> dict:
             "saturated_nodes": [int(j) for j in np.flatnonzero(saturated)]}
 
 
-def duplicate_nodes(net) -> list[dict]:
+DUPLICATE_SCAN_NODES = 5000  # the pair scan is quadratic in the nodes: larger models are not scanned
+
+
+def duplicate_nodes(net) -> list[dict] | None:
     """Node pairs whose pre-activations (or one's negative) differ by at most
-    ``DUPLICATE_TOLERANCE`` anywhere in the declared domain: ``nodecast shrink`` merges them."""
+    ``DUPLICATE_TOLERANCE`` anywhere in the declared domain: ``nodecast shrink`` merges them.
+    None for a model of more than ``DUPLICATE_SCAN_NODES`` nodes (not scanned)."""
     from nodecast.compiler.passes.shrink import duplicate_pairs
 
+    if net.n_nodes > DUPLICATE_SCAN_NODES:
+        return None
     return [{"node": j, "like": i, "sign": s, "max_difference": d}
             for j, i, s, d in duplicate_pairs(net, DUPLICATE_TOLERANCE)]
 
@@ -296,8 +302,13 @@ def _node_lists(d: dict) -> list[str]:
         lines.append("  saturated (nearly constant) nodes: "
                      + ", ".join(map(str, saturated[:LISTED])) + more)
     pairs = d["duplicate_nodes"]
-    lines.append(f"near-duplicate node pairs (pre-activations within {DUPLICATE_TOLERANCE:g} over "
-                 f"the domain): {len(pairs)}")
+    if pairs is None:
+        lines.append(f"near-duplicate node pairs: not scanned (more than {DUPLICATE_SCAN_NODES} "
+                     "nodes)")
+        pairs = []
+    else:
+        lines.append(f"near-duplicate node pairs (pre-activations within "
+                     f"{DUPLICATE_TOLERANCE:g} over the domain): {len(pairs)}")
     for p in pairs[:LISTED]:
         lines.append(f"  node {p['node']} = {'' if p['sign'] == 1 else '-'}node {p['like']} "
                      f"(max difference {p['max_difference']:.2g})")
