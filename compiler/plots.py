@@ -44,9 +44,9 @@ def plot_bundle(bundle, folder: str | Path, table=None, overwrite: bool = False)
         wanted.append(folder / PREDICTED_FILE)
     if folder.exists() and not folder.is_dir():
         raise NodecastError(f"{folder} is a file; --plot takes a folder")
-    refuse_existing_outputs(overwrite, *wanted)
     _pyplot()  # refuse before creating the folder when matplotlib is missing
-    folder.mkdir(parents=True, exist_ok=True)
+    folder.mkdir(parents=True, exist_ok=True)  # before the check: outputs need their folder
+    refuse_existing_outputs(overwrite, *wanted)
     written = [plot_node_ranges(bundle, wanted[0], overwrite)]
     if labelled:
         X, y = table.numbers(net.feature_names), table.numbers(net.target_names)
