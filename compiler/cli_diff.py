@@ -50,12 +50,13 @@ def diff(old, new, data, max_change, samples, seed, report, junit, overwrite):
     from nodecast.compiler.bundle import load
     from nodecast.compiler.csvio import read_table
     from nodecast.compiler.diff_report import diff_junit, format_diff_table
-    from nodecast.compiler.files import refuse_existing_outputs, write_atomic
+    from nodecast.compiler.files import check_outputs, write_atomic
     from nodecast.compiler.model_diff import diff as run_diff
     from nodecast.compiler.verify.report import to_json
 
     limits = _limits(max_change)
-    refuse_existing_outputs(overwrite, report, junit)
+    check_outputs({"--report": report, "--junit": junit}, {"OLD": old, "NEW": new, "--data": data},
+                  overwrite)
     result = run_diff(load(old), load(new), read_table(data) if data else None, limits, seed,
                       samples)
     click.echo(format_diff_table(result))

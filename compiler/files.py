@@ -309,14 +309,3 @@ def _umask() -> int:
     umask = os.umask(0)
     os.umask(umask)
     return umask
-
-
-def refuse_existing_outputs(overwrite: bool, *paths) -> None:
-    """:func:`refuse_existing` for each given output path (None: not asked for), and refuse the
-    same path given twice; commands call it before their work so that no run is lost to it."""
-    given = [Path(p) for p in paths if p is not None]
-    resolved = [p.resolve() for p in given]
-    for index, path in enumerate(given):
-        if resolved[index] in resolved[:index]:
-            raise NodecastError(f"{path} is given as two different outputs; give each its own file")
-        refuse_existing(path, overwrite)

@@ -30,7 +30,7 @@ NODES_FILE, PREDICTED_FILE = "nodes.png", "predicted_vs_actual.png"
 def plot_bundle(bundle, folder: str | Path, table=None, overwrite: bool = False) -> list[Path]:
     """``inspect --plot``: nodes.png, and predicted_vs_actual.png when ``table`` (a csvio Table)
     holds a regression bundle's target columns; every file checked before any is drawn."""
-    from nodecast.compiler.files import refuse_existing_outputs
+    from nodecast.compiler.files import check_outputs
 
     net, folder = bundle.network, Path(folder)
     wanted = [folder / NODES_FILE]
@@ -46,7 +46,7 @@ def plot_bundle(bundle, folder: str | Path, table=None, overwrite: bool = False)
         raise NodecastError(f"{folder} is a file; --plot takes a folder")
     _pyplot()  # refuse before creating the folder when matplotlib is missing
     folder.mkdir(parents=True, exist_ok=True)  # before the check: outputs need their folder
-    refuse_existing_outputs(overwrite, *wanted)
+    check_outputs({str(path): path for path in wanted}, None, overwrite)
     written = [plot_node_ranges(bundle, wanted[0], overwrite)]
     if labelled:
         X, y = table.numbers(net.feature_names), table.numbers(net.target_names)

@@ -163,9 +163,9 @@ def _common_context(bundle, precision, prefix, policy, impl, estimate, context) 
 def stated_activation_error(net, precision: str, impl: str | None, table_size: int | None) -> float:
     """The ACTIVATION_ERROR an artifact with these options states (what verify expects)."""
     if precision in FIXED_PRECISIONS:
-        from nodecast.compiler.fixedpoint import make_plan
+        from nodecast.compiler.fixedpoint import table_error
 
-        return make_plan(net, precision, table_size).table_error
+        return table_error(precision, table_size)
     from nodecast.compiler.backends.c_float import activation_error
 
     return activation_error(impl or DEFAULT_IMPLS[precision], precision, table_size)

@@ -108,9 +108,7 @@ def box_function(net: Network, target: str, precision: str, activation_impl: str
     if target == "c" and precision in ("q15", "q31"):
         from nodecast.compiler.fixedpoint import make_plan
 
-        plan = make_plan(net, precision, table_size)
-        program = fixed.FixedProgram(plan, net)
-        program.y_ceiling = fixed.certified_ceiling(plan, net)
+        program = fixed.FixedProgram(make_plan(net, precision, table_size), net)
         return lambda lo, hi: fixed.box_bounds(program, lo, hi)
     if target == "c":
         from nodecast.compiler.backends.c_float import DEFAULT_FLOAT_IMPLS
