@@ -10,10 +10,9 @@ import numpy as np
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.fixedpoint import (
     INTERPOLATION_ROUNDING,
+    SCALES,
     Z_FRAC,
     FixedPlan,
-    make_plan,
-    real_values,
     table_tanh,
 )
 from nodecast.compiler.ir import Network
@@ -27,7 +26,8 @@ _BLOCK = 256
 
 
 def estimate(net: Network, precision: str, X: np.ndarray | None = None,
-             activation_error: float = 0.0, table_size: int | None = None) -> ErrorEstimate:
+             activation_error: float = 0.0, table_size: int | None = None,
+             scales: str = SCALES[0], plan: FixedPlan | None = None) -> ErrorEstimate:
     """Estimated max abs error (target units) of the fixed-point artifact of ``net`` on the domain.
 
     Per probe: the quantisation of weights and biases, known exactly and propagated signed (first
@@ -43,12 +43,16 @@ def estimate(net: Network, precision: str, X: np.ndarray | None = None,
     exactly at each probe, varies with x like a random function (every node sits at its own place
     between two entries), so it adds as the larger of its maximum over the probes and
     ``TABLE_COVERAGE`` times its root mean square over them (capped by sum |weight| times the
-    table's maximum error, which bounds it).
+    table's maximum error, which bounds it). ``plan``: the artifact's plan when the caller holds it
+    (else one is made for ``table_size`` and ``scales``).
     """
     if net.n_categorical:
         raise NodecastError(f"{precision} artifacts do not take categorical inputs yet; choose "
                             "float32 or float64")
-    plan = make_plan(net, precision, table_size)
+    if plan is None:
+        from nodecast.compiler.passes.quantise import make_plan
+
+        plan = make_plan(net, precision, table_size, scales)
     X = domain_probes(net) if X is None else np.asarray(X, dtype=np.float64)
     X = np.clip(X, net.domain_low, net.domain_high)
     excess = max(float(activation_error) - plan.table_error, 0.0)
@@ -79,34 +83,18 @@ def _input_errors(plan: FixedPlan, X: np.ndarray):
     return t, np.where(half > 0, eps, 0.0)
 
 
-def _node_rounding(plan: FixedPlan, n_inputs: int) -> float:
-    """Bound on the rounding of one node's accumulator and of its conversion to Q5.26."""
-    eps = 2.0**-Z_FRAC
-    if plan.hidden_acc_frac > Z_FRAC:
-        eps += 0.5 * 2.0**-Z_FRAC
-    if plan.hidden_pre_shift:
-        eps += 0.5 * n_inputs * 2.0**-plan.hidden_acc_frac
-    return eps
-
-
 def _block_errors(plan: FixedPlan, X: np.ndarray, excess_activation_error: float):
     t, eps_t = _input_errors(plan, X)
-    A = real_values(plan.hidden_weights, plan.hidden_frac)
-    B = real_values(plan.hidden_biases, plan.hidden_acc_frac)
-    Bo = real_values(plan.output_weights, np.asarray(plan.output_frac)[None, :])
-    C = real_values(plan.output_biases, np.asarray(plan.output_acc_frac))
+    A, B, Bo, C = plan.real_weights()
     z = t @ plan.at.T + plan.bt
     th, h = np.tanh(z), table_tanh(plan, z)
     slope = 1.0 - th * th
     dz_weights = t @ (A - plan.at).T + (B - plan.bt)
-    eps_z = _node_rounding(plan, X.shape[1])
+    eps_z = 2.0**-Z_FRAC + plan.node_rounding()  # (M,): the table position's truncation too
     eps_h = INTERPOLATION_ROUNDING * 2.0 ** -(plan.word_bits - 1)
     dz = np.abs(dz_weights) + np.abs(plan.at) @ eps_t + eps_z
     result_step = np.ldexp(1.0, -np.asarray(plan.result_frac))
-    output_round = 0.5 * result_step
-    if plan.output_pre_shift:
-        acc_step = np.ldexp(1.0, -np.asarray(plan.output_acc_frac))
-        output_round = output_round + 0.5 * z.shape[1] * acc_step
+    output_round = 0.5 * result_step + plan.output_rounding()
     top = (2 ** (plan.word_bits - 1) - 1) * result_step
     typical = np.zeros((X.shape[0], Bo.shape[1]))
     worst, table = np.zeros_like(typical), np.zeros_like(typical)

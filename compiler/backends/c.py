@@ -11,10 +11,9 @@ on emulated Cortex-M cores by :mod:`nodecast.compiler.instruction_count`.
 
 from __future__ import annotations
 
-import numpy as np
-
 from nodecast.compiler import numerics
 from nodecast.compiler.backends import Artifact
+from nodecast.compiler.backends import c_header as text
 from nodecast.compiler.backends.c_board import board_files
 from nodecast.compiler.backends.c_fixed import fixed_context
 from nodecast.compiler.backends.c_float import DEFAULT_FLOAT_IMPLS, float_context
@@ -27,7 +26,7 @@ from nodecast.compiler.backends.c_format import (
 )
 from nodecast.compiler.bounds import certify
 from nodecast.compiler.errors import NodecastError
-from nodecast.compiler.fixedpoint import FIXED_PRECISIONS
+from nodecast.compiler.fixedpoint import FIXED_PRECISIONS, SCALES
 from nodecast.compiler.ir import OUT_OF_DOMAIN_POLICIES
 from nodecast.compiler.version import __version__
 
@@ -49,48 +48,40 @@ _POLICY_TEXT = {
 
 def render(bundle, precision: str = "float32", prefix: str = "model", out_of_domain: str = "pass",
            activation_impl: str | None = None, table_size: int | None = None,
-           footprint: bool = False, bare_metal: bool = False, instruction_count: bool = False,
-           **_ignored) -> Artifact:
-    """Render ``<prefix>.h`` and ``<prefix>.c`` for ``bundle``; see docs/c-backend.md."""
-    check_prefix(prefix)
-    if precision not in PRECISIONS:
-        raise NodecastError(f"C takes precision {', '.join(PRECISIONS)}, not {precision!r}")
-    if out_of_domain not in OUT_OF_DOMAIN_POLICIES:
-        raise NodecastError(f"--out-of-domain is clamp, pass or reject, not {out_of_domain!r}")
-    fixed = precision in FIXED_PRECISIONS
-    if fixed and out_of_domain == "pass":
-        raise NodecastError(f"{precision} integers hold the declared domain only, so inputs "
-                            "outside it cannot pass; choose --out-of-domain clamp or reject")
-    impl = activation_impl or DEFAULT_IMPLS[precision]
-    if impl not in ACTIVATION_IMPLS:
-        raise NodecastError(f"--activation-impl is one of {', '.join(ACTIVATION_IMPLS)}, "
-                            f"not {impl!r}")
+           scales: str | None = None, footprint: bool = False, bare_metal: bool = False,
+           instruction_count: bool = False, **_ignored) -> Artifact:
+    """Render ``<prefix>.h`` and ``<prefix>.c`` for ``bundle``; see docs/c-backend.md.
+    ``scales`` ("node", the default, or "layer"): q15/q31 fixed-point scales per hidden node or
+    per layer (see :mod:`nodecast.compiler.fixedpoint`)."""
     net = bundle.network
-    if fixed and net.n_categorical:
-        raise NodecastError(f"{precision} artifacts do not take categorical inputs yet; choose "
-                            "float32 or float64")
-    _check_label_lengths(net.class_labels)
-    make_context = fixed_context if fixed else float_context
-    context = make_context(net, precision, impl, table_size)
+    fixed = _check_options(net, precision, prefix, out_of_domain, activation_impl, scales)
+    impl = activation_impl or DEFAULT_IMPLS[precision]
     if fixed:
         from nodecast.compiler.fixedpoint_error import estimate as fixed_estimate
+        from nodecast.compiler.passes.quantise import make_plan
 
-        estimate = fixed_estimate(net, precision, table_size=context["plan"].table_size)
+        plan = make_plan(net, precision, table_size, scales or SCALES[0])
+        context = fixed_context(net, plan)
+        estimate = fixed_estimate(net, precision, plan=plan)
+        certificate = certify(net, "c", precision, plan=plan)
     else:
+        context = float_context(net, precision, impl, table_size)
         estimate = numerics.estimate(net, precision, activation_error=context["activation_error"])
-    certificate = certify(net, "c", precision, activation_impl=impl,
-                          table_size=context.get("table_size") if not fixed
-                          else context["plan"].table_size)
+        certificate = certify(net, "c", precision, activation_impl=impl,
+                              table_size=context.get("table_size"))
     context.update(_common_context(bundle, precision, prefix, out_of_domain, impl, estimate,
                                    context))
     context.update(_bound_context(net, certificate))
     files = {f"{prefix}.h": _render_template("model.h.j2", context),
-             f"{prefix}.c": _render_template("model.c.j2", context)}
+             f"{prefix}.c": _render_template("model_fixed.c.j2" if fixed else "model_float.c.j2",
+                                             context)}
     summary = {"precision": precision, "estimate": estimate.as_dict(), "prefix": prefix,
                "certificate": certificate.as_dict(),
                "activation_impl": impl, "activation_error": context["activation_error"],
                "out_of_domain": out_of_domain, "weight_bytes": context["weight_bytes"],
                "scratch_bytes": context["scratch_bytes"]}
+    if fixed:
+        summary["scales"] = plan.scales
     if footprint:
         from nodecast.compiler.toolchain import footprint as measure_footprint
 
@@ -102,6 +93,33 @@ def render(bundle, precision: str = "float32", prefix: str = "model", out_of_dom
     if bare_metal:
         files.update(board_files())
     return Artifact("c", files, False, summary)
+
+
+def _check_options(net, precision, prefix, out_of_domain, impl, scales) -> bool:
+    """Refuse options that do not go together (one line each); True for fixed point."""
+    check_prefix(prefix)
+    if precision not in PRECISIONS:
+        raise NodecastError(f"C takes precision {', '.join(PRECISIONS)}, not {precision!r}")
+    if out_of_domain not in OUT_OF_DOMAIN_POLICIES:
+        raise NodecastError(f"--out-of-domain is clamp, pass or reject, not {out_of_domain!r}")
+    fixed = precision in FIXED_PRECISIONS
+    if fixed and out_of_domain == "pass":
+        raise NodecastError(f"{precision} integers hold the declared domain only, so inputs "
+                            "outside it cannot pass; choose --out-of-domain clamp or reject")
+    if (impl or DEFAULT_IMPLS[precision]) not in ACTIVATION_IMPLS:
+        raise NodecastError(f"--activation-impl is one of {', '.join(ACTIVATION_IMPLS)}, "
+                            f"not {impl!r}")
+    if fixed and impl not in (None, "table"):
+        raise NodecastError(f"{precision} evaluates its activation from a table; "
+                            f"--activation-impl {impl!r} is for float32 and float64")
+    if scales is not None and (not fixed or scales not in SCALES):
+        raise NodecastError(f"--scales is {' or '.join(SCALES)}, for q15 and q31 only; got "
+                            f"{scales!r} with precision {precision}")
+    if fixed and net.n_categorical:
+        raise NodecastError(f"{precision} artifacts do not take categorical inputs yet; choose "
+                            "float32 or float64")
+    _check_label_lengths(net.class_labels)
+    return fixed
 
 
 C99_STRING_LIMIT = 4095  # ISO C99 5.2.4.1: the characters a string literal must be able to hold
@@ -141,20 +159,23 @@ def _common_context(bundle, precision, prefix, policy, impl, estimate, context) 
         "table_size": size, "fixed": fixed, "classifier": net.task == "classification",
         "n_inputs": net.n_features, "n_outputs": net.n_outputs, "n_nodes": net.n_nodes,
         "io_type": context["word"] if fixed else context["real"],
-        "summary_line": f"{net.task} network: {_count(net.n_features, 'input')} -> "
-                        f"{_count(net.n_outputs, 'output')}, {net.n_nodes} {net.activation} nodes, "
+        "summary_line": f"{net.task} network: {text.count(net.n_features, 'input')} -> "
+                        f"{text.count(net.n_outputs, 'output')}, {net.n_nodes} {net.activation} nodes, "
                         f"{precision}.",
-        "precision_text": _precision_text(precision),
+        "precision_text": text.precision_text(precision),
         "policy_text": _POLICY_TEXT[policy].format(P=upper, p=prefix),
         "policy_bounds": policy != "pass",
         "bound_type": context["word"] if fixed else context["real"],
         "domain_low": context["input_low"] if fixed else context["domain_low"],
         "domain_high": context["input_high"] if fixed else context["domain_high"],
-        "z_range": _z_range(net), "estimate_lines": _estimate_lines(net, estimate),
-        "input_lines": _input_lines(net, context), "output_lines": _output_lines(net, context),
-        "format_lines": _format_lines(context) if fixed else [],
-        "layout_lines": _layout_lines(fixed, upper),
-        "return_text": _return_text(fixed, policy, upper),
+        "z_range": text.z_range(net), "estimate_lines": text.estimate_lines(net, estimate),
+        "input_lines": text.input_lines(net, context), "output_lines": text.output_lines(net, context),
+        "format_lines": text.format_lines({**context, "prefix": prefix}) if fixed else [],
+        "layout_lines": text.layout_lines(fixed, upper),
+        "return_text": text.return_text(fixed, policy, upper),
+        "status_codes": text.status_codes(fixed, policy, upper),
+        **dict(zip(("scratch_members", "scratch_text"),
+                   text.scratch_members({**context, "PREFIX": upper}, fixed), strict=True)),
         "class_names": [c_string(label) for label in net.class_labels],
         **_level_context(net, context),
     }
@@ -197,102 +218,3 @@ def _level_context(net, context) -> dict:
     return {"n_categorical": net.n_categorical, "level_tables": tables}
 
 
-def _count(number: int, noun: str) -> str:
-    return f"{number} {noun}" + ("" if number == 1 else "s")
-
-
-def _precision_text(precision: str) -> str:
-    return {"float64": "float64 (IEEE 754 binary64) inputs, outputs and arithmetic",
-            "float32": "float32 (IEEE 754 binary32) inputs, outputs and arithmetic",
-            "q31": "q31: int32_t inputs and outputs, 32-bit weights, 64-bit accumulators",
-            "q15": "q15: int16_t inputs and outputs, 16-bit weights, 64-bit accumulators",
-            }[precision]
-
-
-def _z_range(net) -> str:
-    weights = net.hidden_weights / net.input_scale
-    centre = 0.5 * (net.domain_low + net.domain_high)
-    mid = net.hidden_biases + weights @ (centre - net.input_offset)
-    radius = np.abs(weights) @ (0.5 * (net.domain_high - net.domain_low))
-    low, high = mid - radius, mid + radius
-    for c, levels in enumerate(net.categorical_levels):  # over every level
-        vectors = net.level_weights[net.level_start(c) : net.level_start(c) + len(levels)]
-        low, high = low + vectors.min(axis=0), high + vectors.max(axis=0)
-    return f"{float(np.min(low)):.4g} .. {float(np.max(high)):.4g}"
-
-
-def _estimate_lines(net, estimate) -> list[str]:
-    return [f"y[{o}] {c_comment(name)}: {value:.3g} [{c_comment(unit)}]"
-            for o, (name, unit, value) in enumerate(zip(net.target_names, net.target_units,
-                                                        estimate.per_output, strict=True))]
-
-
-def _input_lines(net, context) -> list[str]:
-    lines = []
-    for i, (name, unit) in enumerate(zip(net.feature_names, net.feature_units, strict=True)):
-        line = (f"x[{i}] {c_comment(name)} [{c_comment(unit)}], domain "
-                f"{float(net.domain_low[i])!r} .. {float(net.domain_high[i])!r}")
-        if "plan" in context:
-            line += f", Q{context['plan'].input_frac[i]}"
-        lines.append(line)
-    return lines
-
-
-def _output_lines(net, context) -> list[str]:
-    lines = []
-    for o, (name, unit) in enumerate(zip(net.target_names, net.target_units, strict=True)):
-        line = f"y[{o}] {c_comment(name)} [{c_comment(unit)}]"
-        if net.task == "classification":
-            line += f", class {c_comment(net.class_labels[o])}"
-        if "plan" in context:
-            line += f", Q{context['plan'].result_frac[o]}"
-        lines.append(line)
-    return lines
-
-
-def _format_lines(context) -> list[str]:
-    plan, word = context["plan"], context["word"]
-    bits, norm = plan.word_bits, plan.norm_frac
-    product = f"{word} x {word} -> {context['wide']}"
-    hidden_pre = (f", each product first shifted right by {plan.hidden_pre_shift} (rounding) so "
-                  "that n of them fit" if plan.hidden_pre_shift else "")
-    output_pre = (f", each product first shifted right by {plan.output_pre_shift} (rounding)"
-                  if plan.output_pre_shift else "")
-    return [
-        f"Inputs: {word} in the Q format listed per input; the domain is clamped or checked in",
-        f"that format, then each input is centred and normalised into Q{norm} (-1 .. 1).",
-        f"Hidden layer: weights in Q{plan.hidden_frac} times inputs in Q{norm} ({product}),",
-        f"summed with the bias in an int64 accumulator in Q{plan.hidden_acc_frac}{hidden_pre}.",
-        f"Activation: the accumulator is clamped to +-{plan.table_reach:g}, rounded into Q5.26 and",
-        f"interpolated in a {plan.table_size}-interval tanh table; the result is in Q{bits - 1}.",
-        "Logistic nodes are 1/2 + tanh(z/2)/2, the halves folded into the weights and biases.",
-        f"Output layer: weights in Q{', Q'.join(map(str, plan.output_frac))} times tanh in "
-        f"Q{bits - 1} ({product}),",
-        f"summed with the bias in int64{output_pre}, then rounded into the output's Q format and",
-        f"saturated to +-{context['word_max']} instead of overflowing. No sum can overflow: every",
-        "accumulator's bound was checked when the code was generated.",
-        "Right shifts of negative values are taken to be arithmetic, as GCC, Clang and Arm's",
-        "compilers implement them (C99 leaves them implementation-defined).",
-    ]
-
-
-def _layout_lines(fixed: bool, upper: str) -> list[str]:
-    if fixed:
-        return ["Layout: node-major weights; one pass over the nodes computes each node's",
-                "pre-activation, its tanh and its share of every output, so the stack holds only",
-                f"the normalised inputs and the output accumulators ({upper}_SCRATCH_BYTES)."]
-    return ["Layout: the nodes go in tiles; each tile's pre-activations build up in registers",
-            "(input by input), pass through tanh and add their share of each output to",
-            "interleaved partial sums, so node values are never stored. The stack holds the",
-            f"normalised inputs, one tile and the partial sums ({upper}_SCRATCH_BYTES).",
-            "Build with -ffp-contract=off for results that match other builds bit for bit",
-            "(fused multiply-add changes the last bits, within the stated estimate)."]
-
-
-def _return_text(fixed: bool, policy: str, upper: str) -> str:
-    codes = [] if fixed else [f"{upper}_ERROR_NAN_INPUT"]
-    if policy == "reject":
-        codes.append(f"{upper}_ERROR_OUT_OF_DOMAIN")
-    if not codes:
-        return f"{upper}_OK (always)."
-    return f"{upper}_OK, or " + " or ".join(codes) + " (then y is untouched)."

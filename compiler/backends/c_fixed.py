@@ -8,6 +8,8 @@ the size of the hidden layer: the stack holds the n normalised inputs and t outp
 
 from __future__ import annotations
 
+import numpy as np
+
 from nodecast.compiler.backends.c_format import (
     array_body,
     array_rows,
@@ -15,7 +17,7 @@ from nodecast.compiler.backends.c_format import (
     int_literal,
 )
 from nodecast.compiler.errors import NodecastError
-from nodecast.compiler.fixedpoint import ACC_LIMIT, Z_FRAC, make_plan
+from nodecast.compiler.fixedpoint import ACC_LIMIT, Z_FRAC
 
 
 def _ints(values, bits: int) -> str:
@@ -30,12 +32,9 @@ def _rounding(shift: int) -> int:
     return 2 ** (shift - 1) if shift > 0 else 0
 
 
-def fixed_context(net, precision: str, impl: str, table_size: int | None) -> dict:
-    """Template values for a q15/q31 artifact."""
-    if impl != "table":
-        raise NodecastError(f"{precision} evaluates its activation from a table; "
-                            f"--activation-impl {impl!r} is for float32 and float64")
-    plan = make_plan(net, precision, table_size)
+def fixed_context(net, plan) -> dict:
+    """Template values for the q15/q31 artifact of ``plan`` (made by
+    :func:`nodecast.compiler.passes.quantise.make_plan`)."""
     bits = plan.word_bits
     wide = 32 if bits == 16 else 64  # type of a product and of the normalisation
     context = {
@@ -52,17 +51,41 @@ def fixed_context(net, precision: str, impl: str, table_size: int | None) -> dic
         "hidden_pre_round": int_literal(_rounding(plan.hidden_pre_shift), 64),
         "output_weights": _int_rows(plan.output_weights, bits),
         "output_biases": _ints(plan.output_biases, 64),
-        "output_pre_round": int_literal(_rounding(plan.output_pre_shift), 64),
         "output_shift": array_body([str(a - r) for a, r in zip(plan.output_acc_frac,
                                                                 plan.result_frac, strict=True)]),
         "table": _ints(plan.table, bits),
         "activation_error": plan.table_error,
         "scratch_bytes": (bits // 8) * net.n_features + 8 * net.n_outputs,
         "weight_bytes": (bits // 8) * (plan.hidden_weights.size + plan.output_weights.size
-                                       + len(plan.table)) + 8 * (net.n_nodes + net.n_outputs),
+                                       + len(plan.table)) + 8 * (net.n_nodes + net.n_outputs)
+                        + (2 * net.n_nodes if plan.scales == "node" else 0),
     }
     context.update(_activation_argument(plan))
+    context.update(_product_shifts(plan))
     return context
+
+
+def _product_shifts(plan) -> dict:
+    """Per-layer scales: one pre-shift for every output product. Per-node scales: each node's
+    shift into Q(z_frac) and the shift of its output products (the same for every output; left
+    and exact, or right and rounding)."""
+    shifts = plan.output_shift
+    if plan.scales == "layer":
+        pre = int(shifts[0, 0]) if shifts.size else 0
+        return {"per_node": False, "output_pre_shift": pre,
+                "output_pre_round": int_literal(_rounding(pre), 64)}
+    if shifts.size and np.any(shifts != shifts[:, :1]):
+        raise NodecastError("internal: per-node output shifts must be one per node")
+    return {"per_node": True, "output_pre_shift": 0,
+            "node_shift": array_body([str(int(s)) for s in plan.node_shift]),
+            "output_node_shift": array_body([str(int(s)) for s in shifts[:, 0]]),
+            "hidden_frac_range": _range_text(plan.hidden_frac),
+            "output_frac_range": _range_text(plan.output_frac[:, 0])}
+
+
+def _range_text(fracs) -> str:
+    low, high = int(min(fracs)), int(max(fracs))
+    return f"Q{low}" if low == high else f"Q{low} .. Q{high}"
 
 
 def _activation_argument(plan) -> dict:
@@ -71,9 +94,9 @@ def _activation_argument(plan) -> dict:
     interval_bits = Z_FRAC - reach_bits  # fraction bits inside one table interval
     used_bits = 15 if plan.word_bits == 16 else interval_bits
     drop = max(0, interval_bits - used_bits)
-    shift = plan.hidden_acc_frac - Z_FRAC
+    shift = plan.z_frac - Z_FRAC
     if shift >= 0:
-        limit = plan.table_size * 2 ** (plan.hidden_acc_frac - reach_bits)
+        limit = plan.table_size * 2 ** (plan.z_frac - reach_bits)
     else:
         limit = (plan.table_size * 2 ** (Z_FRAC - reach_bits)) >> -shift
     limit = min(limit, ACC_LIMIT)  # beyond the accumulator's own bound the clamp never acts

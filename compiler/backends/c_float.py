@@ -73,9 +73,9 @@ def activation_error(impl: str, precision: str, table_size: int | None = None) -
 def float_table(size: int, precision: str) -> np.ndarray:
     """tanh at size + 1 knots over [0, FLOAT_TABLE_REACH], offset for a zero-mean interpolation
     error and rounded to the precision."""
-    step = FLOAT_TABLE_REACH / size
-    th = np.tanh(np.arange(size + 1) * step)
-    values = th + step**2 / 12.0 * 2.0 * th * (1.0 - th * th)
+    from nodecast.compiler.fixedpoint import offset_tanh
+
+    values = offset_tanh(size, FLOAT_TABLE_REACH / size)
     return values.astype(np.float32).astype(np.float64) if precision == "float32" else values
 
 

@@ -98,17 +98,22 @@ def _assumption(target: str, precision: str, impl: str | None) -> str:
 
 
 def box_function(net: Network, target: str, precision: str, activation_impl: str | None = None,
-                 table_size: int | None = None, extra_terms: int = 0, level_abs=0.0):
+                 table_size: int | None = None, extra_terms: int = 0, level_abs=0.0,
+                 scales: str | None = None, plan=None):
     """The per-box bound ``f(lows, highs) -> (B, t)`` of one artifact configuration
-    (``extra_terms``/``level_abs``: see :func:`certify` and :class:`floating.FloatProgram`)."""
+    (``extra_terms``/``level_abs``: see :func:`certify` and :class:`floating.FloatProgram`;
+    ``plan``: a fixed-point artifact's plan, when the caller made it already)."""
     if precision not in TARGET_PRECISIONS.get(target, ()):
         known = ", ".join(TARGET_PRECISIONS.get(target, ()))
         raise NodecastError(f"a {target} artifact computes in {known or 'no known precision'}, "
                             f"not precision {precision!r}")
     if target == "c" and precision in ("q15", "q31"):
-        from nodecast.compiler.fixedpoint import make_plan
+        from nodecast.compiler.fixedpoint import SCALES
+        from nodecast.compiler.passes.quantise import make_plan
 
-        program = fixed.FixedProgram(make_plan(net, precision, table_size), net)
+        if plan is None:
+            plan = make_plan(net, precision, table_size, scales or SCALES[0])
+        program = fixed.FixedProgram(plan, net)
         return lambda lo, hi: fixed.box_bounds(program, lo, hi)
     if target == "c":
         from nodecast.compiler.backends.c_float import DEFAULT_FLOAT_IMPLS
@@ -131,15 +136,16 @@ def box_function(net: Network, target: str, precision: str, activation_impl: str
 
 
 def certify(net: Network, target: str, precision: str, activation_impl: str | None = None,
-            table_size: int | None = None, low=None, high=None, boxes: int | None = None
-            ) -> Certificate:
+            table_size: int | None = None, low=None, high=None, boxes: int | None = None,
+            scales: str | None = None, plan=None) -> Certificate:
     """Certified bound of ``target`` at ``precision`` over the box [low, high] (default: the
     declared domain), refined by branch and bound over at most ``boxes`` boxes (default: set by
     the model's size; fewer boxes give a looser, still certified bound); see the module doc.
 
     With categorical inputs, every combination of levels (and of an unknown level, which adds
     nothing) is certified as the network whose biases hold that combination's level vectors, and
-    the bound is the largest over them.
+    the bound is the largest over them. ``scales`` (q15/q31: "node", the default, or "layer")
+    and ``plan`` (the fixed-point plan an emit made already) select the fixed-point program.
     """
     low = net.domain_low if low is None else np.asarray(low, dtype=np.float64)[: net.n_features]
     high = net.domain_high if high is None else np.asarray(high, dtype=np.float64)[: net.n_features]
@@ -148,7 +154,7 @@ def certify(net: Network, target: str, precision: str, activation_impl: str | No
     variants = list(_level_variants(net))
     for variant, extra_terms, level_abs in variants:
         bound = box_function(variant, target, precision, activation_impl, table_size,
-                             extra_terms, level_abs)
+                             extra_terms, level_abs, scales, plan)
         with np.errstate(over="ignore", invalid="ignore"):
             refined = refine(bound, low, high, _impact(net),
                              max(_MIN_BOXES, budget // len(variants)))

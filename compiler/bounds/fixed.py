@@ -7,16 +7,16 @@ each of those is bounded here, per box, in real units:
 * the caller's rounding of x into Q(f_i) and the normalisation t = (x_q - centre) recip >> s
   (half an input step, the reciprocal's own rounding, half a Q(W-2) step);
 * the hidden accumulator: the quantised weights' and bias' exact effect |dA . t + dB| (its range
-  over the box), the inputs' rounding through |A|, each pre-shift's rounding and the rounding into
-  Q5.26;
+  over the box), the inputs' rounding through |A|, each pre-shift's rounding, the node's shift into
+  the common format (per-node scales) and the rounding into Q5.26;
 * the table: its proven per-interval error over the arguments the node can reach
   (:mod:`~nodecast.compiler.bounds.activations`), the interpolation's rounding, and tanh's slope
   times the argument's error;
 * the output: sum_j |weight_j| times node j's error, the quantised output weights' and bias' exact
-  effect (interval over the box), each pre-shift's rounding, the rounding into the output format,
+  effect (interval over the box), each right-shifted product's rounding (left shifts are exact), the rounding into the output format,
   and saturation: clipping into [-top, top] only brings the result nearer a model value inside
   that range, so it adds the excess of |y| over top only where the model itself exceeds it (the
-  plan's accumulators never overflow, which :func:`~nodecast.compiler.fixedpoint.make_plan`
+  plan's accumulators never overflow, which :func:`~nodecast.compiler.passes.quantise.make_plan`
   checks).
 """
 
@@ -26,7 +26,7 @@ import numpy as np
 
 from nodecast.compiler.bounds.activations import table_errors
 from nodecast.compiler.bounds.ranges import FLOAT64_UNIT, affine_ranges, gamma, matvec
-from nodecast.compiler.fixedpoint import INTERPOLATION_ROUNDING, Z_FRAC, FixedPlan, real_values
+from nodecast.compiler.fixedpoint import INTERPOLATION_ROUNDING, Z_FRAC, FixedPlan
 
 
 class FixedProgram:
@@ -44,28 +44,20 @@ class FixedProgram:
         safe = np.where(half > 0, half, 1.0)
         self.t_error = np.where(half > 0, 0.5 / safe * (1 + ratio) + (1 + 1 / safe) * ratio
                                 + 0.5 * 2.0**-plan.norm_frac, 0.0)
-        self.weights = real_values(plan.hidden_weights, plan.hidden_frac)
-        self.biases = real_values(plan.hidden_biases, plan.hidden_acc_frac)
-        self.output_weights = real_values(plan.output_weights, np.asarray(plan.output_frac)[None, :])
-        self.output_biases = real_values(plan.output_biases, np.asarray(plan.output_acc_frac))
-        n = plan.hidden_weights.shape[1]
+        self.weights, self.biases, self.output_weights, self.output_biases = plan.real_weights()
         # the float64 arithmetic that made the plan's real weights (at, bt) from the network's
         factor = 0.5 if net.activation == "logistic" else 1.0
         shift = np.abs(self.centre - net.input_offset) / self.half
         self.hidden_size = factor * np.abs(net.hidden_biases) + np.abs(plan.at) @ shift
-        self.node_rounding = ((0.5 * n * 2.0**-plan.hidden_acc_frac if plan.hidden_pre_shift else 0.0)
-                              + (0.5 * 2.0**-Z_FRAC if plan.hidden_acc_frac > Z_FRAC else 0.0))
+        self.node_rounding = plan.node_rounding()
         table = np.asarray(plan.table, dtype=np.float64) * 2.0 ** -(bits - 1)
         step = 2.0**-plan.table_step_bits
         self.table = table_errors(table, step)
         self.interpolation = (INTERPOLATION_ROUNDING * 2.0 ** -(bits - 1)
                               + step * 2.0 ** -(Z_FRAC - plan.table_step_bits))
-        m = plan.hidden_weights.shape[0]
-        acc_step = np.ldexp(1.0, -np.asarray(plan.output_acc_frac))
         result_step = np.ldexp(1.0, -np.asarray(plan.result_frac))
         shift = np.asarray(plan.output_acc_frac) - np.asarray(plan.result_frac)
-        self.output_rounding = ((0.5 * m * acc_step if plan.output_pre_shift else 0.0)
-                                + np.where(shift > 0, 0.5 * result_step, 0.0))
+        self.output_rounding = plan.output_rounding() + np.where(shift > 0, 0.5 * result_step, 0.0)
         self.top = (2 ** (bits - 1) - 1) * result_step
         # the plan's certified max |y| over the domain (none yet while the plan computes it); the
         # per-box enclosure of |y| is loose on large boxes, so saturation is judged against both

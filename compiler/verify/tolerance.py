@@ -67,7 +67,10 @@ def _declared_options(info: dict) -> dict:
     if info["kind"] != "c":
         return {}
     size = info.get("table_size") or None
-    return {"activation_impl": info.get("activation_impl"), "table_size": size}
+    options = {"activation_impl": info.get("activation_impl"), "table_size": size}
+    if info["precision"] in ("q15", "q31"):
+        options.update(activation_impl=None, scales=info.get("scales", "layer"))
+    return options
 
 
 def check_stated(path, info: dict, tolerance: Tolerance, net) -> None:

@@ -8,7 +8,7 @@ import pytest
 from test_c_support import emit_c, need, run_c, single_node_bundle
 
 from nodecast.compiler import numerics, reference
-from nodecast.compiler.fixedpoint import make_plan
+from nodecast.compiler.passes.quantise import make_plan
 from nodecast.compiler.verify.probes import corners, near_bounds, sobol
 
 

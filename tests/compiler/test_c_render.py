@@ -35,7 +35,7 @@ def test_good_prefixes_name_files_and_macros(friedman_bundle, prefix):
     header = artifact.files[f"{prefix}.h"].decode("ascii")
     assert f"#define {prefix.upper()}_N_INPUTS 5 " in header
     assert f"#define {prefix.upper()}_N_OUTPUTS 1 " in header
-    assert f"int {prefix}_predict(const float *x, float *y);" in header
+    assert f"{prefix}_status {prefix}_predict(const float *x, float *y);" in header
 
 
 @pytest.mark.parametrize("options, message", [
@@ -92,22 +92,30 @@ def test_source_has_no_allocation_and_no_mutable_globals(friedman_bundle, precis
     assert all(" const " in f" {line} " for line in file_scope), file_scope
 
 
-def test_fixed_point_header_documents_formats_and_conversions(friedman_bundle):
-    artifact = _c(friedman_bundle, precision="q15", out_of_domain="reject")
+@pytest.mark.parametrize("scales", ["node", "layer"])
+def test_fixed_point_header_documents_formats_and_conversions(friedman_bundle, scales):
+    artifact = _c(friedman_bundle, precision="q15", out_of_domain="reject", scales=scales)
     header = artifact.files["model.h"].decode("ascii")
-    assert "int model_predict(const int16_t *x, int16_t *y);" in header
+    assert "model_status model_predict(const int16_t *x, int16_t *y);" in header
     for macro in ("MODEL_Q_FROM_REAL", "MODEL_INPUT_FROM_REAL", "MODEL_OUTPUT_TO_REAL",
                   "MODEL_INPUT_SCALE_4", "MODEL_OUTPUT_FRAC_BITS_0"):
         assert f"#define {macro}" in header
     assert "int64 accumulator" in header and "saturated" in header
-    assert re.search(r"Hidden layer: weights in Q\d+ times inputs in Q14", header)
+    if scales == "layer":
+        assert re.search(r"Hidden layer: weights in Q\d+ times inputs in Q14", header)
+    else:
+        assert re.search(r"Hidden layer: node j's weights in Q\(\d+ \+ node_shift\[j\]\) "
+                         r"\(Q\d+ \.\. Q\d+\) times", header)
+        assert "Output layer: node j's output weights (row j) in Q(" in header
+    assert f'#define MODEL_SCALES "{scales}"' in header
     assert "MODEL_ERROR_OUT_OF_DOMAIN (then y is untouched)" in header
 
 
 def test_libm_free_implementations_do_not_include_math(friedman_bundle):
     for impl in ("rational", "table"):
         source = _c(friedman_bundle, activation_impl=impl).files["model.c"].decode("ascii")
-        assert "#include <math.h>" not in source and "tanh" + "f(" not in source
+        # math.h for isnan only (a macro, no libm call; -ffast-math would fold it: documented)
+        assert "tanh" + "f(" not in source and "isnan(x[i])" in source and "x[i] != x[i]" not in source
     source = _c(friedman_bundle, activation_impl="libm").files["model.c"].decode("ascii")
     assert "#include <math.h>" in source and "tanhf(" in source
 

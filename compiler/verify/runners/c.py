@@ -60,6 +60,7 @@ def describe(path: Path, emulate: str | None = None, **_options) -> dict:
                 "emulate": emulate,
                 "engines": [f"qemu-{emulate}" if emulate else f"host-{toolchain.host_compiler()}"]}
         if info["precision"] in ("q15", "q31"):
+            info["scales"] = _declared_scales(header, macros)
             info["input_frac_bits"] = [int(macros[f"INPUT_FRAC_BITS_{i}"])
                                        for i in range(info["n_inputs"])]
             info["output_frac_bits"] = [int(macros[f"OUTPUT_FRAC_BITS_{o}"])
@@ -72,6 +73,20 @@ def describe(path: Path, emulate: str | None = None, **_options) -> dict:
     if info["precision"] not in _IO_TYPES:
         raise NodecastError(f"{header} declares an unknown precision {info['precision']!r}")
     return info
+
+
+def _declared_scales(header: Path, macros: dict) -> str:
+    """The fixed-point scales the header declares ("layer" when it predates the option), checked
+    against the source: only a per-node artifact holds the per-node shift tables."""
+    scales = macros.get("SCALES", '"layer"').strip('"')
+    if scales not in ("node", "layer"):
+        raise NodecastError(f"{header} declares unknown fixed-point scales {scales!r}")
+    per_node = f"{header.stem}_node_shift[" in header.with_suffix(".c").read_text(errors="replace")
+    if per_node != (scales == "node"):
+        raise NodecastError(f"{header} declares scales {scales!r}, but {header.stem}.c holds "
+                            f"{'per-node' if per_node else 'per-layer'} tables; the artifact "
+                            "was edited")
+    return scales
 
 
 def harness_source(info: dict, rows: np.ndarray | None = None, timed: bool = False) -> bytes:

@@ -1,0 +1,168 @@
+"""The header's prose of a C artifact: the lines that describe inputs, outputs, formats, layout,
+status codes and working memory (formatted in Python, so the templates hold layout only)."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from nodecast.compiler.backends.c_format import c_comment
+
+
+def count(number: int, noun: str) -> str:
+    return f"{number} {noun}" + ("" if number == 1 else "s")
+
+
+def precision_text(precision: str) -> str:
+    return {"float64": "float64 (IEEE 754 binary64) inputs, outputs and arithmetic",
+            "float32": "float32 (IEEE 754 binary32) inputs, outputs and arithmetic",
+            "q31": "q31: int32_t inputs and outputs, 32-bit weights, 64-bit accumulators",
+            "q15": "q15: int16_t inputs and outputs, 16-bit weights, 64-bit accumulators",
+            }[precision]
+
+
+def z_range(net) -> str:
+    weights = net.hidden_weights / net.input_scale
+    centre = 0.5 * (net.domain_low + net.domain_high)
+    mid = net.hidden_biases + weights @ (centre - net.input_offset)
+    radius = np.abs(weights) @ (0.5 * (net.domain_high - net.domain_low))
+    low, high = mid - radius, mid + radius
+    for c, levels in enumerate(net.categorical_levels):  # over every level
+        vectors = net.level_weights[net.level_start(c) : net.level_start(c) + len(levels)]
+        low, high = low + vectors.min(axis=0), high + vectors.max(axis=0)
+    return f"{float(np.min(low)):.4g} .. {float(np.max(high)):.4g}"
+
+
+def estimate_lines(net, estimate) -> list[str]:
+    return [f"y[{o}] {c_comment(name)}: {value:.3g} [{c_comment(unit)}]"
+            for o, (name, unit, value) in enumerate(zip(net.target_names, net.target_units,
+                                                        estimate.per_output, strict=True))]
+
+
+def input_lines(net, context) -> list[str]:
+    lines = []
+    for i, (name, unit) in enumerate(zip(net.feature_names, net.feature_units, strict=True)):
+        line = (f"x[{i}] {c_comment(name)} [{c_comment(unit)}], domain "
+                f"{float(net.domain_low[i])!r} .. {float(net.domain_high[i])!r}")
+        if "plan" in context:
+            line += f", Q{context['plan'].input_frac[i]}"
+        lines.append(line)
+    return lines
+
+
+def output_lines(net, context) -> list[str]:
+    lines = []
+    for o, (name, unit) in enumerate(zip(net.target_names, net.target_units, strict=True)):
+        line = f"y[{o}] {c_comment(name)} [{c_comment(unit)}]"
+        if net.task == "classification":
+            line += f", class {c_comment(net.class_labels[o])}"
+        if "plan" in context:
+            line += f", Q{context['plan'].result_frac[o]}"
+        lines.append(line)
+    return lines
+
+
+def format_lines(context) -> list[str]:
+    plan, word = context["plan"], context["word"]
+    bits, norm = plan.word_bits, plan.norm_frac
+    product = f"{word} x {word} -> {context['wide']}"
+    hidden_pre = (f", each product first shifted right by {plan.hidden_pre_shift} (rounding) so "
+                  "that n of them fit" if plan.hidden_pre_shift else "")
+    output_pre = (f", each product first shifted right by {context['output_pre_shift']} "
+                  "(rounding)" if context["output_pre_shift"] else "")
+    lines = [
+        f"Inputs: {word} in the Q format listed per input; the domain is clamped or checked in",
+        f"that format, then each input is centred and normalised into Q{norm} (-1 .. 1)."]
+    if context["per_node"]:
+        lines += node_format_lines(context, product, hidden_pre)
+    else:
+        lines += [
+            f"Hidden layer: weights in Q{plan.hidden_frac[0]} times inputs in Q{norm} ({product}),",
+            f"summed with the bias in an int64 accumulator in Q{plan.z_frac}{hidden_pre}."]
+    lines += [
+        f"Activation: the accumulator is clamped to +-{plan.table_reach:g}, rounded into Q5.26 and",
+        f"interpolated in a {plan.table_size}-interval tanh table; the result is in Q{bits - 1}.",
+        "Logistic nodes are 1/2 + tanh(z/2)/2, the halves folded into the weights and biases."]
+    if not context["per_node"]:
+        lines += [f"Output layer: weights in Q{', Q'.join(map(str, plan.output_frac[0]))} times "
+                  f"tanh in Q{bits - 1} ({product}),",
+                  f"summed with the bias in int64{output_pre}, then rounded into the output's Q "
+                  "format and"]
+    return lines + [
+        f"saturated to +-{context['word_max']} instead of overflowing. No sum can overflow: every",
+        "accumulator's bound was checked when the code was generated.",
+        "Right shifts of negative values are taken to be arithmetic, as GCC, Clang and Arm's",
+        "compilers implement them (C99 leaves them implementation-defined).",
+    ]
+
+
+def node_format_lines(context, product: str, hidden_pre: str) -> list[str]:
+    """Per-node scales: each hidden node (row) has its own weight format, and so its own
+    accumulator format; the output weights of node j (row j) have their own format too."""
+    plan, norm, bits = context["plan"], context["plan"].norm_frac, context["plan"].word_bits
+    weight_base = plan.z_frac + plan.hidden_pre_shift - norm
+    out_base = plan.output_acc_frac[0] - bits + 1
+    return [
+        "Per-node scales: every hidden node j has its own formats, so that one steep node does",
+        "not force every weight into coarse steps.",
+        f"Hidden layer: node j's weights in Q({weight_base} + node_shift[j]) "
+        f"({context['hidden_frac_range']}) times",
+        f"inputs in Q{norm} ({product}), summed with its bias in an int64 accumulator in",
+        f"Q({plan.z_frac} + node_shift[j]){hidden_pre}, then shifted right by node_shift[j]",
+        f"(rounding; {context['prefix']}_node_shift in {context['prefix']}.c) into Q{plan.z_frac}.",
+        f"Output layer: node j's output weights (row j) in Q({out_base} + s[j]) "
+        f"({context['output_frac_range']})",
+        f"times tanh in Q{bits - 1} ({product}); each product is shifted by s[j]",
+        f"({context['prefix']}_output_node_shift: right and rounding if positive, left and exact",
+        f"if negative) into one int64 accumulator per output in Q{plan.output_acc_frac[0]},",
+        "summed with the bias, then rounded into the output's Q format and"]
+
+
+def status_codes(fixed: bool, policy: str, upper: str) -> list[str]:
+    """The enumerators of the status type: only the codes the options can return."""
+    codes = [(f"{upper}_OK = 0", "y holds the outputs")]
+    if not fixed:
+        codes.append((f"{upper}_ERROR_NAN_INPUT = 1", "an input is NaN; y untouched"))
+    if policy == "reject":
+        codes.append((f"{upper}_ERROR_OUT_OF_DOMAIN = 2", "an input lies outside the declared "
+                      "domain; y untouched"))
+    return [f"{code}{',' if k < len(codes) - 1 else ''} /**< {text} */"
+            for k, (code, text) in enumerate(codes)]
+
+
+def scratch_members(context: dict, fixed: bool) -> tuple[list[str], str]:
+    """The members of the scratch type and the sentence that explains them."""
+    upper = context["PREFIX"]
+    if fixed:
+        return ([f"{context['word']} t[{upper}_N_INPUTS]; /**< normalised inputs */",
+                 f"int64_t acc[{upper}_N_OUTPUTS]; /**< output accumulators */"],
+                "one pass over the nodes computes each node's value and adds its share of every "
+                "output, so the working memory is the normalised inputs and the output "
+                "accumulators.")
+    real = context["real"]
+    return ([f"{real} u[{upper}_N_INPUTS]; /**< inputs (normalised unless folded) */",
+             f"{real} lanes[{upper}_N_OUTPUTS][{upper}_TILE]; /**< partial output sums */"],
+            f"each tile of {upper}_TILE nodes is evaluated in registers (or {upper}_TILE values "
+            "on the stack) and adds its share of every output, so the working memory is the "
+            "inputs and the partial sums.")
+
+
+def layout_lines(fixed: bool, upper: str) -> list[str]:
+    if fixed:
+        return ["Layout: node-major weights; one pass over the nodes computes each node's",
+                "pre-activation, its tanh and its share of every output, so the stack holds only",
+                f"the normalised inputs and the output accumulators ({upper}_SCRATCH_BYTES)."]
+    return ["Layout: the nodes go in tiles; each tile's pre-activations build up in registers",
+            "(input by input), pass through tanh and add their share of each output to",
+            "interleaved partial sums, so node values are never stored. The stack holds the",
+            f"normalised inputs, one tile and the partial sums ({upper}_SCRATCH_BYTES).",
+            "Build with -ffp-contract=off for results that match other builds bit for bit",
+            "(fused multiply-add changes the last bits, within the stated estimate)."]
+
+
+def return_text(fixed: bool, policy: str, upper: str) -> str:
+    codes = [] if fixed else [f"{upper}_ERROR_NAN_INPUT"]
+    if policy == "reject":
+        codes.append(f"{upper}_ERROR_OUT_OF_DOMAIN")
+    if not codes:
+        return f"{upper}_OK (always)."
+    return f"{upper}_OK, or " + " or ".join(codes) + " (then y is untouched)."

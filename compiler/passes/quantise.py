@@ -1,0 +1,196 @@
+"""Quantisation: Network -> :class:`~nodecast.compiler.fixedpoint.FixedPlan`, every Q format, integer
+weight and shift of a q15/q31 artifact (the arithmetic is described in
+:mod:`nodecast.compiler.fixedpoint`).
+
+Accumulator widths, for word W, n inputs, M nodes (every bound is checked exactly, on the integers,
+by :func:`check_accumulators` before a plan is returned):
+
+* a hidden product is W x W bits (int32 for q15, int64 for q31); a node's sum of n of them and its
+  bias is held in int64 below 2^63 - 2^61 (q31: products pre-shifted so that it is);
+* node shift and rounding: |z| + 2^(s-1) < 2^63 for every shift s <= 62;
+* an output product is W x W bits, shifted left by at most what keeps the sum of all M of them and
+  the bias below 2^63 - 2^61 in int64 (per-node scales), or pre-shifted right (per-layer scales).
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import numpy as np
+
+from nodecast.compiler.errors import NodecastError
+from nodecast.compiler.fixedpoint import (
+    ACC_LIMIT,
+    SCALES,
+    WORD_BITS,
+    Z_FRAC,
+    FixedPlan,
+    checked_table_size,
+    frac_bits,
+    pre_shift,
+    quantise,
+    tanh_table,
+)
+from nodecast.compiler.ir import Network
+from nodecast.compiler.numerics import domain_probes
+from nodecast.compiler.passes.quantise_inputs import input_formats, real_hidden, real_output
+
+MAX_ACC_FRAC = 62  # a node's accumulator format: its rounding shift 2^(s-1) stays an int64
+SUM_LIMIT = 2**63 - 2**61  # every accumulator's checked bound (a margin below int64's range)
+
+
+def make_plan(net: Network, precision: str, table_size: int | None = None,
+              scales: str = SCALES[0]) -> FixedPlan:
+    """Choose every Q format of ``net`` for ``precision`` ("q15" or "q31") with per-node or
+    per-layer ``scales``; see :mod:`nodecast.compiler.fixedpoint`."""
+    if precision not in WORD_BITS:
+        raise NodecastError(f"fixed point takes precision q15 or q31, not {precision!r}")
+    if scales not in SCALES:
+        raise NodecastError(f"fixed-point scales are {' or '.join(SCALES)}, not {scales!r}")
+    size = checked_table_size(precision, table_size)
+    bits = WORD_BITS[precision]
+    inputs = input_formats(net, precision)
+    table, step_bits, table_error = tanh_table(precision, size)
+    hidden = (_hidden_by_node if scales == "node" else _hidden_by_layer)(
+        net, bits, inputs["input_frac"], inputs["input_centre"], inputs["input_half"])
+    output = (_output_by_node if scales == "node" else _output_by_layer)(net, bits)
+    plan = FixedPlan(precision, bits, scales, **inputs, **hidden, table=table, table_size=size,
+                     table_step_bits=step_bits, table_error=table_error, **output)
+    plan = _certified_result_formats(plan, net)
+    check_accumulators(plan)
+    return plan
+
+
+def _certified_result_formats(plan: FixedPlan, net: Network) -> FixedPlan:
+    """Output formats wide enough for a certified max |y| over the domain (so no output can
+    saturate there), when that ceiling exceeds what the probes suggested."""
+    from nodecast.compiler.bounds.fixed import certified_ceiling
+
+    ceiling = certified_ceiling(plan, net)
+    result = tuple(min(f, frac_bits(float(c), plan.word_bits - 1), acc)
+                   for f, c, acc in zip(plan.result_frac, ceiling, plan.output_acc_frac, strict=True))
+    result = tuple(f - 1 if (2 ** (plan.word_bits - 1) - 1) * 2.0**-f < c else f
+                   for f, c in zip(result, ceiling, strict=True))
+    return replace(plan, result_frac=result, output_ceiling=tuple(float(c) for c in ceiling))
+
+
+def _hidden_sum_bound(weights, biases_real, acc_frac_unshifted, norm_frac: int) -> float:
+    """The largest node sum before any pre-shift, in integer units (t up to 2^norm_frac + 2)."""
+    t_max = 2**norm_frac + 2
+    rows = np.array([sum(abs(v) for v in row) for row in weights], dtype=np.float64)
+    return float(np.max(rows * t_max + np.abs(biases_real) * np.ldexp(1.0, acc_frac_unshifted),
+                        initial=0.0))
+
+
+def _hidden_by_layer(net: Network, bits: int, frac, centre, half) -> dict:
+    at, bt = real_hidden(net, frac, centre, half)
+    norm_frac = bits - 2
+    weight_frac = frac_bits(float(np.max(np.abs(at), initial=0.0)), bits - 1)
+    weights = quantise(at, weight_frac, 2 ** (bits - 1) - 1)
+    t_max = 2**norm_frac + 2
+    bound = max((sum(abs(v) for v in row) for row in weights), default=0) * t_max
+    bound += float(np.max(np.abs(bt), initial=0.0)) * 2.0 ** (weight_frac + norm_frac)
+    shift = pre_shift(float(bound))
+    acc_frac = weight_frac + norm_frac - shift
+    m = at.shape[0]
+    return {"hidden_weights": weights, "hidden_biases": quantise(bt, acc_frac, ACC_LIMIT),
+            "hidden_frac": (weight_frac,) * m, "hidden_pre_shift": shift,
+            "hidden_acc_frac": (acc_frac,) * m, "z_frac": acc_frac, "at": at, "bt": bt}
+
+
+def _hidden_by_node(net: Network, bits: int, frac, centre, half) -> dict:
+    """Node j's weights in the format its own largest weight fills; its bias may take at most as
+    much of the accumulator as its n products, so that no bias forces a coarser format on the
+    others through the common pre-shift."""
+    at, bt = real_hidden(net, frac, centre, half)
+    norm_frac, n = bits - 2, max(at.shape[1], 1)
+    weight_frac = np.array([min(frac_bits(float(np.max(np.abs(row), initial=0.0)), bits - 1),
+                                frac_bits(abs(float(b)) / n, bits - 1) if b else MAX_ACC_FRAC)
+                            for row, b in zip(at, bt, strict=True)], dtype=np.int64)
+    weights = quantise(at, weight_frac[:, None], 2 ** (bits - 1) - 1)
+    shift = pre_shift(_hidden_sum_bound(weights, bt, weight_frac + norm_frac, norm_frac))
+    acc_frac = weight_frac + norm_frac - shift
+    if np.any(acc_frac > MAX_ACC_FRAC):  # tiny rows: a coarser format loses nothing that matters
+        weight_frac = np.minimum(weight_frac, MAX_ACC_FRAC - norm_frac + shift)
+        weights = quantise(at, weight_frac[:, None], 2 ** (bits - 1) - 1)
+        acc_frac = weight_frac + norm_frac - shift
+    z_frac = int(min(Z_FRAC, int(np.min(acc_frac, initial=Z_FRAC))))
+    return {"hidden_weights": weights, "hidden_biases": quantise(bt, acc_frac, ACC_LIMIT),
+            "hidden_frac": tuple(int(f) for f in weight_frac), "hidden_pre_shift": shift,
+            "hidden_acc_frac": tuple(int(f) for f in acc_frac), "z_frac": z_frac,
+            "at": at, "bt": bt}
+
+
+def _output_ranges(net: Network) -> np.ndarray:
+    from nodecast.compiler.reference import predict
+
+    return np.max(np.abs(predict(net, domain_probes(net, count=1024))), axis=0)
+
+
+def _result_formats(net: Network, bits: int, acc_frac) -> tuple[int, ...]:
+    return tuple(min(frac_bits(float(r), bits - 2), int(acc))
+                 for r, acc in zip(_output_ranges(net), acc_frac, strict=True))
+
+
+def _output_by_layer(net: Network, bits: int) -> dict:
+    beta, ct = real_output(net)
+    weight_frac = tuple(frac_bits(float(np.max(np.abs(beta[:, o]), initial=0.0)), bits - 1)
+                        for o in range(net.n_outputs))
+    weights = quantise(beta, np.asarray(weight_frac)[None, :], 2 ** (bits - 1) - 1)
+    bound = max(sum(abs(v) for v in weights[:, o]) * 2 ** (bits - 1)
+                + abs(float(ct[o])) * 2.0 ** (weight_frac[o] + bits - 1)
+                for o in range(net.n_outputs))
+    shift = pre_shift(float(bound))
+    acc_frac = tuple(f + bits - 1 - shift for f in weight_frac)
+    m = beta.shape[0]
+    return {"output_weights": weights, "output_biases": quantise(ct, np.asarray(acc_frac), ACC_LIMIT),
+            "output_frac": np.tile(np.asarray(weight_frac, dtype=np.int64), (m, 1)),
+            "output_shift": np.full(beta.shape, shift, dtype=np.int64),
+            "output_acc_frac": acc_frac, "result_frac": _result_formats(net, bits, acc_frac),
+            "beta": beta, "ct": ct}
+
+
+def _output_by_node(net: Network, bits: int) -> dict:
+    """Node j's output weights (row j) in the format its largest fills; every product is shifted
+    into one accumulator format per network, the finest whose sum over all nodes (and the bias)
+    stays below 2^61 for every output and no finer than the finest product: left shifts (exact)
+    for coarser nodes, right shifts (rounding) where products are finer than the accumulator
+    (q31, whose products fill 62 bits)."""
+    beta, ct = real_output(net)
+    weight_frac = np.array([frac_bits(float(np.max(np.abs(row), initial=0.0)), bits - 1)
+                            for row in beta], dtype=np.int64)
+    size = np.max(np.abs(beta).sum(axis=0) + np.abs(ct), initial=0.0) * (1 + 2.0 ** (1 - bits))
+    fit = 60 - int(np.floor(np.log2(size))) if size > 0 else 60
+    acc = int(min(int(np.max(weight_frac, initial=bits - 1)) + bits - 1, fit))
+    weights = quantise(beta, weight_frac[:, None], 2 ** (bits - 1) - 1)
+    acc_frac = (acc,) * net.n_outputs
+    shift = np.repeat((weight_frac + bits - 1 - acc)[:, None], net.n_outputs, axis=1)
+    return {"output_weights": weights, "output_biases": quantise(ct, np.asarray(acc_frac), ACC_LIMIT),
+            "output_frac": np.repeat(weight_frac[:, None], net.n_outputs, axis=1),
+            "output_shift": shift, "output_acc_frac": acc_frac,
+            "result_frac": _result_formats(net, bits, acc_frac), "beta": beta, "ct": ct}
+
+
+def _shifted(value: int, shift: int) -> int:
+    """|a product| bound after its shift: right shifts round (at most one more unit)."""
+    return value // 2**shift + 1 if shift > 0 else value * 2**-shift
+
+
+def check_accumulators(plan: FixedPlan) -> None:
+    """Refuse a plan whose accumulators could overflow, checked on the integers (a guard: the
+    choices above prevent it). Hidden: |bias| + sum |w| (2^(W-2) + 2) after the pre-shift, below
+    2^63 - 2^61, so the node's rounding shift cannot overflow either. Output: |bias| + sum |w|
+    2^(W-1) after each product's shift, below the same limit."""
+    t_max = 2**plan.norm_frac + 2
+    h_max = 2 ** (plan.word_bits - 1)
+    pre_h = plan.hidden_pre_shift
+    hidden = max((sum(_shifted(abs(a) * t_max, pre_h) for a in row) + abs(b)
+                  for row, b in zip(plan.hidden_weights, plan.hidden_biases, strict=True)),
+                 default=0)
+    shifts = np.asarray(plan.output_shift, dtype=np.int64)
+    output = max(sum(_shifted(abs(v) * h_max, int(s))
+                     for v, s in zip(plan.output_weights[:, o], shifts[:, o], strict=True))
+                 + abs(plan.output_biases[o]) for o in range(plan.output_weights.shape[1]))
+    if max(hidden, output) >= SUM_LIMIT or max(plan.hidden_acc_frac, default=0) > MAX_ACC_FRAC:
+        raise NodecastError(f"the network's weights span too wide a range for {plan.precision} "
+                            "accumulators; retrain with a larger ridge or emit float32")
