@@ -10,12 +10,12 @@ The arithmetic, for word size W (16 or 32), n inputs, M nodes and t outputs:
    fills about half the word (a bit of headroom lets a rejecting artifact see values beyond it).
    The domain is clamped or checked on x_q, then centred and normalised:
    t_i = (x_q - centre_i) * recip_i >> norm_shift, t in Q(W-2), |t| <= 1 on the domain.
-2. Hidden layer: z_j = B_j + sum_i A_ji t_i, node j's weights in Q(hidden_frac[j]), products summed
-   in an int64 accumulator in Q(hidden_acc_frac[j]) (Q31 products are pre-shifted by
-   hidden_pre_shift where the sum of n of them would not fit 63 bits). Per-node scales
-   (``scales="node"``) give each node (row) the format its own largest weight fills; per-layer
-   scales (``"layer"``) give every node the format of the largest weight of the layer. Each
-   accumulator is then shifted right (rounding) by node_shift[j] into the common Q(z_frac).
+2. Hidden layer: z_j = B_j + sum_i A_ji t_i, node j's weights in Q(hidden_frac[j]); each product
+   is shifted right (rounding) by hidden_shift[j] into the int64 accumulator, Q(z_frac) for every
+   node. Per-node scales (``scales="node"``) give each node (row) the format its own largest
+   weight fills, and so its own product shift; per-layer scales (``"layer"``) give every node the
+   format of the largest weight of the layer and one pre-shift (zero for q15; for q31 where the
+   sum of n products would not fit 63 bits).
    Logistic nodes are evaluated as 1/2 + tanh(z/2)/2 with the halves folded into the weights, so
    every node evaluates tanh.
 3. tanh from a table of ``table_size`` + 1 entries in Q(W-1) over [0, K 2^-e], linear interpolation,
@@ -73,11 +73,10 @@ class FixedPlan:
     norm_shift: int
     norm_frac: int
     hidden_weights: np.ndarray  # (M, n) ints, node-major
-    hidden_biases: np.ndarray  # (M,) ints, node j's in Q(hidden_acc_frac[j])
+    hidden_biases: np.ndarray  # (M,) ints, in Q(z_frac)
     hidden_frac: tuple[int, ...]  # (M,) per node
-    hidden_pre_shift: int
-    hidden_acc_frac: tuple[int, ...]  # (M,) per node
-    z_frac: int  # the common format every node's accumulator is shifted into
+    hidden_shift: tuple[int, ...]  # (M,) right shift (rounding) of each of node j's products
+    z_frac: int  # the hidden accumulators' format
     table: tuple[int, ...]
     table_size: int
     table_step_bits: int
@@ -99,19 +98,13 @@ class FixedPlan:
         """The table covers tanh arguments 0 .. table_reach; beyond it tanh saturates."""
         return self.table_size * 2.0**-self.table_step_bits
 
-    @property
-    def node_shift(self) -> np.ndarray:
-        """(M,) right shift of each node's accumulator into Q(z_frac)."""
-        return np.asarray(self.hidden_acc_frac, dtype=np.int64) - self.z_frac
-
     def node_rounding(self) -> np.ndarray:
         """(M,) bound, in real units, on the rounding of each node's argument before the table:
-        the pre-shifted products, the node's shift into Q(z_frac) and the shift into Q5.26."""
-        acc = np.asarray(self.hidden_acc_frac, dtype=np.float64)
+        its shifted products (half a step of Q(z_frac) each) and the shift into Q5.26."""
         n = self.hidden_weights.shape[1]
-        pre = 0.5 * n * 2.0**-acc if self.hidden_pre_shift else np.zeros_like(acc)
-        node = np.where(self.node_shift > 0, 0.5 * 2.0**-self.z_frac, 0.0)
-        return pre + node + (0.5 * 2.0**-Z_FRAC if self.z_frac > Z_FRAC else 0.0)
+        shifted = np.asarray(self.hidden_shift, dtype=np.int64) > 0
+        products = np.where(shifted, 0.5 * n * 2.0**-self.z_frac, 0.0)
+        return products + (0.5 * 2.0**-Z_FRAC if self.z_frac > Z_FRAC else 0.0)
 
     def output_rounding(self) -> np.ndarray:
         """(t,) bound on the rounding of the right-shifted products, in real units."""
@@ -121,7 +114,7 @@ class FixedPlan:
     def real_weights(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """The integers' real values: hidden weights, hidden biases, output weights, output biases."""
         return (real_values(self.hidden_weights, np.asarray(self.hidden_frac)[:, None]),
-                real_values(self.hidden_biases, np.asarray(self.hidden_acc_frac)),
+                real_values(self.hidden_biases, self.z_frac),
                 real_values(self.output_weights, np.asarray(self.output_frac, dtype=np.int64)),
                 real_values(self.output_biases, np.asarray(self.output_acc_frac)))
 

@@ -48,7 +48,9 @@ def fixed_context(net, plan) -> dict:
         "norm_round": _rounding(plan.norm_shift),
         "hidden_weights": _int_rows(plan.hidden_weights, bits),
         "hidden_biases": _ints(plan.hidden_biases, 64),
-        "hidden_pre_round": int_literal(_rounding(plan.hidden_pre_shift), 64),
+        "hidden_pre_shift": 0 if plan.scales == "node" else plan.hidden_shift[0],
+        "hidden_pre_round": int_literal(_rounding(plan.hidden_shift[0]), 64)
+                            if plan.hidden_shift else "0",
         "output_weights": _int_rows(plan.output_weights, bits),
         "output_biases": _ints(plan.output_biases, 64),
         "output_shift": array_body([str(a - r) for a, r in zip(plan.output_acc_frac,
@@ -66,20 +68,27 @@ def fixed_context(net, plan) -> dict:
 
 
 def _product_shifts(plan) -> dict:
-    """Per-layer scales: one pre-shift for every output product. Per-node scales: each node's
-    shift into Q(z_frac) and the shift of its output products (the same for every output; left
-    and exact, or right and rounding)."""
-    shifts = plan.output_shift
-    if plan.scales == "layer":
-        pre = int(shifts[0, 0]) if shifts.size else 0
-        return {"per_node": False, "output_pre_shift": pre,
+    """Per-layer scales, and q31 outputs: one pre-shift for every output product. Per-node
+    scales: each node's shift into Q(z_frac); q15 outputs: the products of the nodes that share
+    an output format are summed apart (group g) and each group's sum is shifted left, exactly,
+    into the accumulator (the plan makes every shift of a node the same for all outputs)."""
+    shifts = np.asarray(plan.output_shift, dtype=np.int64)
+    context = {"per_node": plan.scales == "node", "grouped": False}
+    if plan.scales == "node":
+        context.update(hidden_shift=array_body([str(int(s)) for s in plan.hidden_shift]),
+                       hidden_frac_range=_range_text(plan.hidden_frac))
+    if np.all(shifts == shifts.flat[0]) and shifts.flat[0] >= 0:
+        pre = int(shifts.flat[0])
+        return {**context, "output_pre_shift": pre,
                 "output_pre_round": int_literal(_rounding(pre), 64)}
-    if shifts.size and np.any(shifts != shifts[:, :1]):
-        raise NodecastError("internal: per-node output shifts must be one per node")
-    return {"per_node": True, "output_pre_shift": 0,
-            "node_shift": array_body([str(int(s)) for s in plan.node_shift]),
-            "output_node_shift": array_body([str(int(s)) for s in shifts[:, 0]]),
-            "hidden_frac_range": _range_text(plan.hidden_frac),
+    if np.any(shifts > 0) or np.any(shifts != shifts[:, :1]):
+        raise NodecastError("internal: grouped output shifts must be left shifts, one per node")
+    ups = sorted({int(-s) for s in shifts[:, 0]})
+    if ups[0] != 0:
+        raise NodecastError("internal: the finest output group must need no shift")
+    return {**context, "grouped": True, "output_pre_shift": 0, "n_groups": len(ups),
+            "group_up": array_body([str(u) for u in ups]),
+            "output_group": array_body([str(ups.index(int(-s))) for s in shifts[:, 0]]),
             "output_frac_range": _range_text(plan.output_frac[:, 0])}
 
 

@@ -65,15 +65,15 @@ def format_lines(context) -> list[str]:
     plan, word = context["plan"], context["word"]
     bits, norm = plan.word_bits, plan.norm_frac
     product = f"{word} x {word} -> {context['wide']}"
-    hidden_pre = (f", each product first shifted right by {plan.hidden_pre_shift} (rounding) so "
-                  "that n of them fit" if plan.hidden_pre_shift else "")
+    hidden_pre = (f", each product first shifted right by {context['hidden_pre_shift']} "
+                  "(rounding) so that n of them fit" if context["hidden_pre_shift"] else "")
     output_pre = (f", each product first shifted right by {context['output_pre_shift']} "
                   "(rounding)" if context["output_pre_shift"] else "")
     lines = [
         f"Inputs: {word} in the Q format listed per input; the domain is clamped or checked in",
         f"that format, then each input is centred and normalised into Q{norm} (-1 .. 1)."]
     if context["per_node"]:
-        lines += node_format_lines(context, product, hidden_pre)
+        lines += node_format_lines(context, product)
     else:
         lines += [
             f"Hidden layer: weights in Q{plan.hidden_frac[0]} times inputs in Q{norm} ({product}),",
@@ -82,7 +82,9 @@ def format_lines(context) -> list[str]:
         f"Activation: the accumulator is clamped to +-{plan.table_reach:g}, rounded into Q5.26 and",
         f"interpolated in a {plan.table_size}-interval tanh table; the result is in Q{bits - 1}.",
         "Logistic nodes are 1/2 + tanh(z/2)/2, the halves folded into the weights and biases."]
-    if not context["per_node"]:
+    if context["grouped"]:
+        lines += _grouped_output_lines(context, product)
+    else:
         lines += [f"Output layer: weights in Q{', Q'.join(map(str, plan.output_frac[0]))} times "
                   f"tanh in Q{bits - 1} ({product}),",
                   f"summed with the bias in int64{output_pre}, then rounded into the output's Q "
@@ -95,26 +97,31 @@ def format_lines(context) -> list[str]:
     ]
 
 
-def node_format_lines(context, product: str, hidden_pre: str) -> list[str]:
+def node_format_lines(context, product: str) -> list[str]:
     """Per-node scales: each hidden node (row) has its own weight format, and so its own
-    accumulator format; the output weights of node j (row j) have their own format too."""
-    plan, norm, bits = context["plan"], context["plan"].norm_frac, context["plan"].word_bits
-    weight_base = plan.z_frac + plan.hidden_pre_shift - norm
-    out_base = plan.output_acc_frac[0] - bits + 1
+    product shift into the common accumulator format."""
+    plan, prefix = context["plan"], context["prefix"]
     return [
         "Per-node scales: every hidden node j has its own formats, so that one steep node does",
         "not force every weight into coarse steps.",
-        f"Hidden layer: node j's weights in Q({weight_base} + node_shift[j]) "
+        f"Hidden layer: node j's weights in Q({plan.z_frac - plan.norm_frac} + hidden_shift[j]) "
         f"({context['hidden_frac_range']}) times",
-        f"inputs in Q{norm} ({product}), summed with its bias in an int64 accumulator in",
-        f"Q({plan.z_frac} + node_shift[j]){hidden_pre}, then shifted right by node_shift[j]",
-        f"(rounding; {context['prefix']}_node_shift in {context['prefix']}.c) into Q{plan.z_frac}.",
-        f"Output layer: node j's output weights (row j) in Q({out_base} + s[j]) "
-        f"({context['output_frac_range']})",
-        f"times tanh in Q{bits - 1} ({product}); each product is shifted by s[j]",
-        f"({context['prefix']}_output_node_shift: right and rounding if positive, left and exact",
-        f"if negative) into one int64 accumulator per output in Q{plan.output_acc_frac[0]},",
-        "summed with the bias, then rounded into the output's Q format and"]
+        f"inputs in Q{plan.norm_frac} ({product}); each product is shifted right by "
+        "hidden_shift[j]",
+        f"(rounding; {prefix}_hidden_shift in {prefix}.c) and summed with the bias in an",
+        f"int64 accumulator in Q{plan.z_frac}."]
+
+
+def _grouped_output_lines(context, product: str) -> list[str]:
+    plan, bits, prefix = context["plan"], context["plan"].word_bits, context["prefix"]
+    return [
+        f"Output layer: node j's output weights (row j) in Q({plan.output_acc_frac[0] - bits + 1}"
+        f" - group_up[output_group[j]]) ({context['output_frac_range']})",
+        f"times tanh in Q{bits - 1} ({product}); the products of the nodes of one group",
+        f"({prefix}_output_group) are summed in int64, and each group's sum is shifted left,",
+        f"exactly, by {prefix}_group_up[g] into one accumulator per output in "
+        f"Q{plan.output_acc_frac[0]}, summed with",
+        "the bias, then rounded into the output's Q format and"]
 
 
 def status_codes(fixed: bool, policy: str, upper: str) -> list[str]:
@@ -133,8 +140,9 @@ def scratch_members(context: dict, fixed: bool) -> tuple[list[str], str]:
     """The members of the scratch type and the sentence that explains them."""
     upper = context["PREFIX"]
     if fixed:
+        groups = f" * {upper}_N_GROUPS" if context.get("grouped") else ""
         return ([f"{context['word']} t[{upper}_N_INPUTS]; /**< normalised inputs */",
-                 f"int64_t acc[{upper}_N_OUTPUTS]; /**< output accumulators */"],
+                 f"int64_t acc[{upper}_N_OUTPUTS{groups}]; /**< output accumulators */"],
                 "one pass over the nodes computes each node's value and adds its share of every "
                 "output, so the working memory is the normalised inputs and the output "
                 "accumulators.")

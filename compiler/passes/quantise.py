@@ -5,9 +5,9 @@ weight and shift of a q15/q31 artifact (the arithmetic is described in
 Accumulator widths, for word W, n inputs, M nodes (every bound is checked exactly, on the integers,
 by :func:`check_accumulators` before a plan is returned):
 
-* a hidden product is W x W bits (int32 for q15, int64 for q31); a node's sum of n of them and its
-  bias is held in int64 below 2^63 - 2^61 (q31: products pre-shifted so that it is);
-* node shift and rounding: |z| + 2^(s-1) < 2^63 for every shift s <= 62;
+* a hidden product is W x W bits (int32 for q15, int64 for q31), below 2^(2W-2); with its rounding
+  half added and shifted right by at most 29 (q15) or 61 (q31) it stays in that type; a node's sum
+  of n of them and its bias is held in int64 below 2^63 - 2^61;
 * an output product is W x W bits, shifted left by at most what keeps the sum of all M of them and
   the bias below 2^63 - 2^61 in int64 (per-node scales), or pre-shifted right (per-layer scales).
 """
@@ -35,8 +35,9 @@ from nodecast.compiler.ir import Network
 from nodecast.compiler.numerics import domain_probes
 from nodecast.compiler.passes.quantise_inputs import input_formats, real_hidden, real_output
 
-MAX_ACC_FRAC = 62  # a node's accumulator format: its rounding shift 2^(s-1) stays an int64
+MAX_PRODUCT_SHIFT = {16: 29, 32: 61}  # a q15 product (int32) or q31 product (int64) shift
 SUM_LIMIT = 2**63 - 2**61  # every accumulator's checked bound (a margin below int64's range)
+OUTPUT_GROUPS = 8  # q15 per-node output formats: at most this many distinct ones
 
 
 def make_plan(net: Network, precision: str, table_size: int | None = None,
@@ -74,14 +75,6 @@ def _certified_result_formats(plan: FixedPlan, net: Network) -> FixedPlan:
     return replace(plan, result_frac=result, output_ceiling=tuple(float(c) for c in ceiling))
 
 
-def _hidden_sum_bound(weights, biases_real, acc_frac_unshifted, norm_frac: int) -> float:
-    """The largest node sum before any pre-shift, in integer units (t up to 2^norm_frac + 2)."""
-    t_max = 2**norm_frac + 2
-    rows = np.array([sum(abs(v) for v in row) for row in weights], dtype=np.float64)
-    return float(np.max(rows * t_max + np.abs(biases_real) * np.ldexp(1.0, acc_frac_unshifted),
-                        initial=0.0))
-
-
 def _hidden_by_layer(net: Network, bits: int, frac, centre, half) -> dict:
     at, bt = real_hidden(net, frac, centre, half)
     norm_frac = bits - 2
@@ -94,31 +87,27 @@ def _hidden_by_layer(net: Network, bits: int, frac, centre, half) -> dict:
     acc_frac = weight_frac + norm_frac - shift
     m = at.shape[0]
     return {"hidden_weights": weights, "hidden_biases": quantise(bt, acc_frac, ACC_LIMIT),
-            "hidden_frac": (weight_frac,) * m, "hidden_pre_shift": shift,
-            "hidden_acc_frac": (acc_frac,) * m, "z_frac": acc_frac, "at": at, "bt": bt}
+            "hidden_frac": (weight_frac,) * m, "hidden_shift": (shift,) * m, "z_frac": acc_frac,
+            "at": at, "bt": bt}
 
 
 def _hidden_by_node(net: Network, bits: int, frac, centre, half) -> dict:
-    """Node j's weights in the format its own largest weight fills; its bias may take at most as
-    much of the accumulator as its n products, so that no bias forces a coarser format on the
-    others through the common pre-shift."""
+    """Node j's weights in the format its own largest weight fills; every product is shifted
+    right, rounding, into one accumulator format (the biases' too): as fine as the coarsest
+    node's products, and coarse enough that every node's sum (and bias) stays below 2^61."""
     at, bt = real_hidden(net, frac, centre, half)
-    norm_frac, n = bits - 2, max(at.shape[1], 1)
-    weight_frac = np.array([min(frac_bits(float(np.max(np.abs(row), initial=0.0)), bits - 1),
-                                frac_bits(abs(float(b)) / n, bits - 1) if b else MAX_ACC_FRAC)
-                            for row, b in zip(at, bt, strict=True)], dtype=np.int64)
+    norm_frac = bits - 2
+    weight_frac = np.array([frac_bits(float(np.max(np.abs(row), initial=0.0)), bits - 1)
+                            for row in at], dtype=np.int64)
+    size = float(np.max(np.abs(at).sum(axis=1) * 1.01 + np.abs(bt), initial=0.0))
+    fit = 60 - int(np.floor(np.log2(size))) if size > 0 else 60
+    z_frac = int(min(int(np.min(weight_frac + norm_frac, initial=fit)), fit))
+    weight_frac = np.minimum(weight_frac, z_frac - norm_frac + MAX_PRODUCT_SHIFT[bits])
     weights = quantise(at, weight_frac[:, None], 2 ** (bits - 1) - 1)
-    shift = pre_shift(_hidden_sum_bound(weights, bt, weight_frac + norm_frac, norm_frac))
-    acc_frac = weight_frac + norm_frac - shift
-    if np.any(acc_frac > MAX_ACC_FRAC):  # tiny rows: a coarser format loses nothing that matters
-        weight_frac = np.minimum(weight_frac, MAX_ACC_FRAC - norm_frac + shift)
-        weights = quantise(at, weight_frac[:, None], 2 ** (bits - 1) - 1)
-        acc_frac = weight_frac + norm_frac - shift
-    z_frac = int(min(Z_FRAC, int(np.min(acc_frac, initial=Z_FRAC))))
-    return {"hidden_weights": weights, "hidden_biases": quantise(bt, acc_frac, ACC_LIMIT),
-            "hidden_frac": tuple(int(f) for f in weight_frac), "hidden_pre_shift": shift,
-            "hidden_acc_frac": tuple(int(f) for f in acc_frac), "z_frac": z_frac,
-            "at": at, "bt": bt}
+    return {"hidden_weights": weights, "hidden_biases": quantise(bt, z_frac, ACC_LIMIT),
+            "hidden_frac": tuple(int(f) for f in weight_frac),
+            "hidden_shift": tuple(int(f + norm_frac - z_frac) for f in weight_frac),
+            "z_frac": z_frac, "at": at, "bt": bt}
 
 
 def _output_ranges(net: Network) -> np.ndarray:
@@ -151,17 +140,23 @@ def _output_by_layer(net: Network, bits: int) -> dict:
 
 
 def _output_by_node(net: Network, bits: int) -> dict:
-    """Node j's output weights (row j) in the format its largest fills; every product is shifted
-    into one accumulator format per network, the finest whose sum over all nodes (and the bias)
-    stays below 2^61 for every output and no finer than the finest product: left shifts (exact)
-    for coarser nodes, right shifts (rounding) where products are finer than the accumulator
-    (q31, whose products fill 62 bits)."""
+    """q15: node j's output weights (row j) in the format its largest fills, but no finer than
+    the accumulator, and at most ``OUTPUT_GROUPS`` - 1 bits finer than the coarsest row (the C
+    sums the products of rows that share a format apart and shifts each such sum once); every
+    product is shifted left, exactly, into one accumulator format, the finest whose sum over all
+    nodes (and the bias) stays below 2^61 for every output. q31: products fill 62 bits, so they
+    are pre-shifted into one format per output as with per-layer scales (per-node formats would
+    gain nothing there: measured, docs/c-backend.md)."""
+    if bits == 32:
+        return _output_by_layer(net, bits)
     beta, ct = real_output(net)
-    weight_frac = np.array([frac_bits(float(np.max(np.abs(row), initial=0.0)), bits - 1)
-                            for row in beta], dtype=np.int64)
+    word_frac = np.array([frac_bits(float(np.max(np.abs(row), initial=0.0)), bits - 1)
+                          for row in beta], dtype=np.int64)
     size = np.max(np.abs(beta).sum(axis=0) + np.abs(ct), initial=0.0) * (1 + 2.0 ** (1 - bits))
     fit = 60 - int(np.floor(np.log2(size))) if size > 0 else 60
-    acc = int(min(int(np.max(weight_frac, initial=bits - 1)) + bits - 1, fit))
+    weight_frac = np.minimum(word_frac, fit - (bits - 1))
+    weight_frac = np.minimum(weight_frac, int(np.min(weight_frac, initial=fit)) + OUTPUT_GROUPS - 1)
+    acc = int(np.max(weight_frac, initial=0)) + bits - 1
     weights = quantise(beta, weight_frac[:, None], 2 ** (bits - 1) - 1)
     acc_frac = (acc,) * net.n_outputs
     shift = np.repeat((weight_frac + bits - 1 - acc)[:, None], net.n_outputs, axis=1)
@@ -183,14 +178,14 @@ def check_accumulators(plan: FixedPlan) -> None:
     2^(W-1) after each product's shift, below the same limit."""
     t_max = 2**plan.norm_frac + 2
     h_max = 2 ** (plan.word_bits - 1)
-    pre_h = plan.hidden_pre_shift
-    hidden = max((sum(_shifted(abs(a) * t_max, pre_h) for a in row) + abs(b)
-                  for row, b in zip(plan.hidden_weights, plan.hidden_biases, strict=True)),
-                 default=0)
+    hidden = max((sum(_shifted(abs(a) * t_max, s) for a in row) + abs(b)
+                  for row, b, s in zip(plan.hidden_weights, plan.hidden_biases, plan.hidden_shift,
+                                       strict=True)), default=0)
     shifts = np.asarray(plan.output_shift, dtype=np.int64)
     output = max(sum(_shifted(abs(v) * h_max, int(s))
                      for v, s in zip(plan.output_weights[:, o], shifts[:, o], strict=True))
                  + abs(plan.output_biases[o]) for o in range(plan.output_weights.shape[1]))
-    if max(hidden, output) >= SUM_LIMIT or max(plan.hidden_acc_frac, default=0) > MAX_ACC_FRAC:
+    if (max(hidden, output) >= SUM_LIMIT
+            or max(plan.hidden_shift, default=0) > MAX_PRODUCT_SHIFT[plan.word_bits]):
         raise NodecastError(f"the network's weights span too wide a range for {plan.precision} "
                             "accumulators; retrain with a larger ridge or emit float32")

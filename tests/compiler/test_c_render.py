@@ -104,7 +104,7 @@ def test_fixed_point_header_documents_formats_and_conversions(friedman_bundle, s
     if scales == "layer":
         assert re.search(r"Hidden layer: weights in Q\d+ times inputs in Q14", header)
     else:
-        assert re.search(r"Hidden layer: node j's weights in Q\(\d+ \+ node_shift\[j\]\) "
+        assert re.search(r"Hidden layer: node j's weights in Q\(\d+ \+ hidden_shift\[j\]\) "
                          r"\(Q\d+ \.\. Q\d+\) times", header)
         assert "Output layer: node j's output weights (row j) in Q(" in header
     assert f'#define MODEL_SCALES "{scales}"' in header

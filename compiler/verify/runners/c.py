@@ -81,7 +81,7 @@ def _declared_scales(header: Path, macros: dict) -> str:
     scales = macros.get("SCALES", '"layer"').strip('"')
     if scales not in ("node", "layer"):
         raise NodecastError(f"{header} declares unknown fixed-point scales {scales!r}")
-    per_node = f"{header.stem}_node_shift[" in header.with_suffix(".c").read_text(errors="replace")
+    per_node = f"{header.stem}_hidden_shift[" in header.with_suffix(".c").read_text(errors="replace")
     if per_node != (scales == "node"):
         raise NodecastError(f"{header} declares scales {scales!r}, but {header.stem}.c holds "
                             f"{'per-node' if per_node else 'per-layer'} tables; the artifact "
