@@ -171,17 +171,14 @@ def table_tanh(plan: FixedPlan, z: np.ndarray) -> np.ndarray:
 
 
 def _table_error(table, step_bits: int, bits: int) -> float:
-    """Max |table tanh - tanh| over all arguments: interpolation between the rounded entries (dense
-    sampling of every interval, 2% margin), the saturated tail, and the interpolation's rounding."""
+    """Max |table tanh - tanh| over all arguments: the proven error of interpolating between the
+    rounded entries and of the saturated tail (:func:`nodecast.compiler.bounds.activations.
+    table_errors`, the bound the float tables state too), plus the interpolation's rounding."""
+    from nodecast.compiler.bounds.activations import table_errors
+
     values = np.asarray(table, dtype=np.float64) * 2.0 ** -(bits - 1)
-    frac = np.linspace(0.0, 1.0, 33)
-    knots = np.arange(len(table) - 1)[:, None] + frac[None, :]
-    line = values[:-1, None] * (1.0 - frac) + values[1:, None] * frac
-    interp = np.max(np.abs(line - np.tanh(knots * 2.0**-step_bits)))
-    tail = 1.0 - values[-1]
-    return float(max(interp, tail) * 1.02 + INTERPOLATION_ROUNDING * 2.0 ** -(bits - 1))
-
-
+    proven = table_errors(values, 2.0**-step_bits).worst
+    return float(proven + INTERPOLATION_ROUNDING * 2.0 ** -(bits - 1))
 
 
 def checked_table_size(precision: str, table_size: int | None) -> int:

@@ -21,9 +21,11 @@ def precision_text(precision: str) -> str:
 
 
 def z_range(net) -> str:
-    weights = net.hidden_weights / net.input_scale
+    from nodecast.compiler.passes.scaling import folded_input_layer
+
+    weights, biases = folded_input_layer(net)
     centre = 0.5 * (net.domain_low + net.domain_high)
-    mid = net.hidden_biases + weights @ (centre - net.input_offset)
+    mid = biases + weights @ centre
     radius = np.abs(weights) @ (0.5 * (net.domain_high - net.domain_low))
     low, high = mid - radius, mid + radius
     for c, levels in enumerate(net.categorical_levels):  # over every level

@@ -7,17 +7,17 @@ each of those is bounded here, per box, in real units:
 * the caller's rounding of x into Q(f_i) and the normalisation t = (x_q - centre) recip >> s
   (half an input step, the reciprocal's own rounding, half a Q(W-2) step);
 * the hidden accumulator: the quantised weights' and bias' exact effect |dA . t + dB| (its range
-  over the box), the inputs' rounding through |A|, each pre-shift's rounding, the node's shift into
-  the common format (per-node scales) and the rounding into Q5.26;
+  over the box), the inputs' rounding through |A|, each shifted product's rounding (per-layer
+  q31 pre-shifts; per-node scales' shifts into the common format) and the rounding into Q5.26;
 * the table: its proven per-interval error over the arguments the node can reach
   (:mod:`~nodecast.compiler.bounds.activations`), the interpolation's rounding, and tanh's slope
   times the argument's error;
 * the output: sum_j |weight_j| times node j's error, the quantised output weights' and bias' exact
-  effect (interval over the box), each right-shifted product's rounding (left shifts are exact), the rounding into the output format,
-  and saturation: clipping into [-top, top] only brings the result nearer a model value inside
-  that range, so it adds the excess of |y| over top only where the model itself exceeds it (the
-  plan's accumulators never overflow, which :func:`~nodecast.compiler.passes.quantise.make_plan`
-  checks).
+  effect (interval over the box), each right-shifted product's rounding (left shifts are exact),
+  the rounding into the output format, and saturation: clipping into [-top, top] only brings the
+  result nearer a model value inside that range, so it adds the excess of |y| over top only where
+  the model itself exceeds it (the plan's accumulators never overflow, which
+  :func:`~nodecast.compiler.passes.quantise.make_plan` checks).
 """
 
 from __future__ import annotations

@@ -23,7 +23,6 @@ from nodecast.compiler.fixedpoint import (
     ACC_LIMIT,
     SCALES,
     WORD_BITS,
-    Z_FRAC,
     FixedPlan,
     checked_table_size,
     frac_bits,
@@ -156,7 +155,7 @@ def _output_by_node(net: Network, bits: int) -> dict:
     fit = 60 - int(np.floor(np.log2(size))) if size > 0 else 60
     weight_frac = np.minimum(word_frac, fit - (bits - 1))
     weight_frac = np.minimum(weight_frac, int(np.min(weight_frac, initial=fit)) + OUTPUT_GROUPS - 1)
-    acc = int(np.max(weight_frac, initial=0)) + bits - 1
+    acc = (int(np.max(weight_frac)) if weight_frac.size else 0) + bits - 1
     weights = quantise(beta, weight_frac[:, None], 2 ** (bits - 1) - 1)
     acc_frac = (acc,) * net.n_outputs
     shift = np.repeat((weight_frac + bits - 1 - acc)[:, None], net.n_outputs, axis=1)
