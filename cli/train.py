@@ -55,7 +55,7 @@ from nodecast.cli.parsing import (
 @click.option("--validation-fraction", type=click.FloatRange(0, 0.9), default=0.2, show_default=True,
               help="Share of rows held out for the reported validation error (the bundle's model "
                    "is fitted on all rows).")
-@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False), help="Bundle (.ncz).")
+@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False), help="Bundle (.ncast).")
 @click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
 def train(data, target, features, domain, units, categorical, method, nodes, neighbors, slope_scale,
           interval, angle_range, weight_sum, ridge, activation, task, seed, validation_fraction,

@@ -31,12 +31,14 @@ class Option:
     default: object = None
     choices: tuple | None = None
     value_range: tuple[int, int] | None = None
+    note: str = ""  # why the choices are what they are, said when a value is refused
 
     def check(self, value, target: str) -> None:
         flag = "--" + self.name.replace("_", "-")
         if self.choices is not None and value not in self.choices:
+            note = f" ({self.note})" if self.note else ""
             raise NodecastError(f"{target} takes {flag} {', '.join(map(str, self.choices))}, "
-                                f"not {value!r}")
+                                f"not {value!r}{note}")
         if self.value_range is not None:
             low, high = self.value_range
             if isinstance(value, bool) or not isinstance(value, int) or not low <= value <= high:
@@ -51,6 +53,7 @@ class TargetSpec:
     precisions: tuple[str, ...]
     default_precision: str
     options: tuple[Option, ...]
+    precision_note: str = ""
 
     def option(self, name: str) -> Option | None:
         return next((o for o in self.options if o.name == name), None)
@@ -74,8 +77,9 @@ class TargetSpec:
                                 f"{', '.join(self.names)}")
         precision = options.get("precision") or self.default_precision
         if precision not in self.precisions:
-            raise NodecastError(f"{self.name} takes precision {', '.join(self.precisions)}, "
-                                f"not {precision!r}")
+            note = f" ({self.precision_note})" if self.precision_note else ""
+            raise NodecastError(f"{self.name} takes precision {', '.join(self.precisions)} only, "
+                                f"not {precision!r}{note}")
         resolved = {"precision": precision}
         for option in self.options:
             value = options.get(option.name)
@@ -99,7 +103,8 @@ _POLICY = Option("out_of_domain", "pass", OUT_OF_DOMAIN_POLICIES)
 
 TARGETS: dict[str, TargetSpec] = {
     "onnx": TargetSpec("onnx", FLOAT_PRECISIONS, "float32", (
-        _POLICY,
+        Option("out_of_domain", "pass", ("clamp", "pass"),
+               note="a graph cannot refuse a row; use --flag-out-of-domain to mark them"),
         Option("flag_out_of_domain", False, (False, True)),
         Option("opset"),  # checked by the back-end against the opsets it can write
     )),
@@ -112,7 +117,8 @@ TARGETS: dict[str, TargetSpec] = {
         Option("bare_metal", False, (False, True)),
         Option("instruction_count", False, (False, True)),
     )),
-    "python": TargetSpec("python", ("float64",), "float64", (_POLICY,)),
+    "python": TargetSpec("python", ("float64",), "float64", (_POLICY,),
+                         precision_note="Python floats are IEEE 754 binary64"),
 }
 
 

@@ -288,16 +288,16 @@ def test_hostile_csv_header_and_labels_survive_train_emit_verify(tmp_path):
                               cwd=tmp_path, capture_output=True, text=True, timeout=300)
 
     trained = nodecast("train", "d.csv", "--target", "kind */", "--task", "classification",
-                       "--nodes", "20", "-o", "m.ncz")
+                       "--nodes", "20", "-o", "m.ncast")
     assert trained.returncode == 0, trained.stderr
     targets = {"onnx": "m.onnx", "python": "m.py"}
     if shutil.which("gcc"):
         targets["c"] = "c_out"
     for kind, output in targets.items():
-        emitted = nodecast("emit", "m.ncz", "--to", kind, "-o", output,
+        emitted = nodecast("emit", "m.ncast", "--to", kind, "-o", output,
                            *(["--precision", "float64"] if kind != "python" else []))
         assert emitted.returncode == 0, (kind, emitted.stderr)
-        verified = nodecast("verify", "m.ncz", output, "--data", "d.csv", "--probes", "256")
+        verified = nodecast("verify", "m.ncast", output, "--data", "d.csv", "--probes", "256")
         assert verified.returncode == 0, (kind, verified.stdout, verified.stderr)
     assert not list(tmp_path.glob("planted*"))
 

@@ -49,8 +49,8 @@ def test_unboundable_fixed_point_export_is_refused(friedman_bundle):
 def test_percent_in_a_feature_name_keeps_predictor_help_working(tmp_path):
     rows = np.random.default_rng(1).random((40, 3))
     write_csv(tmp_path / "d.csv", ["a", "%(prog)s %d", "y"], rows)
-    for args in (["train", "d.csv", "--target", "y", "--nodes", "6", "-o", "m.ncz"],
-                 ["emit", "m.ncz", "--to", "python", "-o", "p.py"]):
+    for args in (["train", "d.csv", "--target", "y", "--nodes", "6", "-o", "m.ncast"],
+                 ["emit", "m.ncast", "--to", "python", "-o", "p.py"]):
         assert _nodecast(*args, cwd=tmp_path).returncode == 0
     result = subprocess.run([sys.executable, "-I", "-S", "p.py", "--help"], cwd=tmp_path,
                             capture_output=True, text=True, timeout=60)
@@ -59,7 +59,7 @@ def test_percent_in_a_feature_name_keeps_predictor_help_working(tmp_path):
 
 def test_a_target_cannot_also_be_a_feature(tmp_path):
     write_csv(tmp_path / "d.csv", ["a", "y"], np.random.default_rng(2).random((30, 2)))
-    result = _nodecast("train", "d.csv", "--target", "y", "--features", "a,y", "-o", "m.ncz",
+    result = _nodecast("train", "d.csv", "--target", "y", "--features", "a,y", "-o", "m.ncast",
                        cwd=tmp_path)
     assert result.returncode == 2 and "both a feature and a target" in result.stderr
 

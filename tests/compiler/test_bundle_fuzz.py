@@ -50,7 +50,7 @@ def batches(strategy):
 def load_or_refuse(data: bytes):
     """The loaded bundle, or None when refused; any other exception fails the test."""
     try:
-        return bundle_io.from_bytes(data, "fuzzed.ncz")
+        return bundle_io.from_bytes(data, "fuzzed.ncast")
     except BundleError as exc:
         assert "\n" not in str(exc)
         return None

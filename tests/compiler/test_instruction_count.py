@@ -101,7 +101,7 @@ def test_parse_counts_refuses_broken_or_wrapped_output():
 
 def test_emit_and_inspect_print_instruction_counts(ten_input_bundles, tmp_path):
     need("gcc", *TOOLS)
-    model = tmp_path / "m.ncz"
+    model = tmp_path / "m.ncast"
     save(ten_input_bundles[25], model)
     runner = CliRunner()
     result = runner.invoke(cli, ["emit", str(model), "--to", "c", "--precision", "q15",

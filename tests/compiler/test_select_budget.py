@@ -32,7 +32,7 @@ def readings(tmp_path_factory):
 
 
 def _select(readings, tmp_path, *options):
-    out = tmp_path / "chosen.ncz"
+    out = tmp_path / "chosen.ncast"
     args = ["select", str(readings), "--target", "heatsink_temp", "--nodes", "20,60",
             "--ridge", "1e-6", "--folds", "3", "-o", str(out), "--report",
             str(tmp_path / "cv.json"), *options]
@@ -68,7 +68,7 @@ def test_a_cycle_budget_is_met_by_the_chosen_model_on_its_own_weights(readings, 
 
 def test_an_impossible_budget_exits_2_naming_the_smallest_achievable_size(readings, tmp_path):
     need(*TOOLS)
-    out = tmp_path / "chosen.ncz"
+    out = tmp_path / "chosen.ncast"
     result = subprocess.run([sys.executable, "-m", "nodecast.cli", "select", str(readings),
                              "--target", "heatsink_temp", "--nodes", "20,60", "--folds", "3",
                              "--max-flash", "300", "-o", str(out)],
