@@ -258,3 +258,16 @@ def test_standalone_predictor_keeps_chosen_columns(capsys, small, tmp_path):
                              "--keep", "missing"], capture_output=True, text=True)
     assert result.returncode == 2 and "'missing'" in result.stderr
     assert len(result.stderr.strip().splitlines()) == 1
+
+
+def test_a_target_cannot_also_be_a_feature(tmp_path, capsys):
+    write_csv(tmp_path / "d.csv", ["a", "y"], np.random.default_rng(2).random((30, 2)))
+    result = run_cli(capsys, "train", tmp_path / "d.csv", "--target", "y", "--features", "a,y",
+                     "-o", tmp_path / "m.ncast")
+    assert result.status == 2 and "both a feature and a target" in result.err
+
+
+def test_demo_into_an_impossible_folder_is_a_one_line_error(tmp_path, capsys):
+    (tmp_path / "file").write_text("x")
+    result = run_cli(capsys, "demo", "-o", tmp_path / "file" / "sub")
+    assert result.status == 2 and result.err.count("\n") == 1 and "Traceback" not in result.err

@@ -29,6 +29,7 @@ from nodecast.compiler.backends import BACKENDS
 from nodecast.compiler.bundle import Bundle
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import Network
+from tests.helpers import run_cli, write_csv
 
 PAYLOADS = [
     'double "quote', "single 'quote", "back\\slash", "trailing backslash\\",
@@ -356,3 +357,14 @@ def test_any_names_leave_the_python_and_onnx_skeletons_unchanged(features, unit)
     assert namespace["FEATURE_UNITS"] == (unit, unit)
     models = [onnx.load_from_string(emit(b, "onnx").files["model.onnx"]) for b in (hostile, plain)]
     assert _onnx_skeleton(models[0]) == _onnx_skeleton(models[1])
+
+
+def test_percent_in_a_feature_name_keeps_predictor_help_working(tmp_path, capsys):
+    rows = np.random.default_rng(1).random((40, 3))
+    write_csv(tmp_path / "d.csv", ["a", "%(prog)s %d", "y"], rows)
+    for args in (["train", tmp_path / "d.csv", "--target", "y", "--nodes", "6", "-o", tmp_path / "m.ncast"],
+                 ["emit", tmp_path / "m.ncast", "--to", "python", "-o", tmp_path / "p.py"]):
+        assert run_cli(capsys, *args).status == 0
+    result = subprocess.run([sys.executable, "-I", "-S", "p.py", "--help"], cwd=tmp_path,
+                            capture_output=True, text=True, timeout=60)
+    assert result.returncode == 0 and "%(prog)s %d" in result.stdout

@@ -11,7 +11,9 @@ import shutil
 import numpy as np
 import pytest
 
+from nodecast.compiler import emit
 from nodecast.compiler.bundle import Bundle, save
+from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import Network
 from tests.helpers import run_cli
 
@@ -153,3 +155,11 @@ def test_predictor_reads_a_header_of_40000_extra_columns(work, capsys):
     done = subprocess.run([sys.executable, "-I", "-S", str(predictor)], input=doubled,
                           capture_output=True, text=True, timeout=600, check=False)
     assert done.returncode == 2 and "duplicated column name(s) 'c17'" in done.stderr
+
+
+def test_emulate_is_refused_for_artifacts_that_are_not_c(friedman_bundle, tmp_path):
+    from nodecast.compiler.verify import verify
+
+    emit(friedman_bundle, "onnx", tmp_path / "m.onnx")
+    with pytest.raises(NodecastError, match="emulate"):
+        verify(friedman_bundle, tmp_path / "m.onnx", emulate="cortex-m4")

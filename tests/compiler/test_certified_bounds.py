@@ -22,6 +22,7 @@ from nodecast.compiler.bounds.branch import refine
 from nodecast.compiler.bounds.certificate import round_up
 from nodecast.compiler.bounds.ranges import preactivation_ranges
 from nodecast.compiler.bounds.search import find_worst
+from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.reference import hidden_layer, predict
 from nodecast.compiler.verify.runners import runner
 from tests.helpers import run_cli
@@ -254,3 +255,12 @@ def test_inspect_prints_the_certified_bound(friedman_bundle, tmp_path, capsys):
     assert document["certified_bound"] == list(expected)
     status, out, _ = run_cli(capsys, "inspect", model, "--precision", "float32")
     assert f"{expected[0]:.3g}" in out and "certified" in out
+
+
+def test_unboundable_fixed_point_export_is_refused(friedman_bundle):
+    net = friedman_bundle.network
+    # since the IR's content limits (docs/reliability.md), such a network cannot even be built
+    with pytest.raises(NodecastError, match="cannot|fit|bounded|beyond"):
+        huge = friedman_bundle.__class__(net.replace(hidden_weights=net.hidden_weights * 1e300),
+                                         friedman_bundle.metadata)
+        emit(huge, "c", precision="q15", out_of_domain="clamp")
