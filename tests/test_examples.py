@@ -29,7 +29,7 @@ def test_onnx_handoff_consumer_matches_the_reference(tmp_path):
     with open(tmp_path / "predictions.csv", newline="") as handle:
         rows = list(csv.reader(handle))
     assert rows[0] == ["heatsink_temp"]
-    bundle = load(tmp_path / "fan.ncz")
+    bundle = load(tmp_path / "fan.ncast")
     X = read_table(tmp_path / "held_out.csv").numbers(bundle.network.feature_names)
     got = np.array([float(r[0]) for r in rows[1:]])
     want = reference.predict(bundle.network, X)[:, 0]
@@ -54,7 +54,7 @@ def test_data_driven_nodes_are_all_steep_somewhere_on_the_domain(plots_out):
     from nodecast.compiler import load
     from nodecast.compiler.inspection import node_ranges
 
-    bundle = load(plots_out / "fan.ncz")
+    bundle = load(plots_out / "fan.ncast")
     # data-driven nodes put their inflection at a training point, so each is steep somewhere
     ranges = node_ranges(bundle)
     assert ranges["saturated"] == 0
@@ -68,11 +68,11 @@ def test_ci_gate_passes_then_refuses_a_worse_model(tmp_path):
     junit = sorted(p.name for p in (tmp_path / "junit").glob("*.xml"))
     assert "score.xml" in junit and "pytest.xml" in junit
     assert any(name.startswith("verify-candidate_predictor") for name in junit)
-    worse = tmp_path / "worse.ncz"
+    worse = tmp_path / "worse.ncast"
     subprocess.run(["nodecast", "train", str(tmp_path / "readings.csv"), "--target", "heatsink_temp",
                     "--nodes", "8", "-o", str(worse)], check=True, capture_output=True)
     result = subprocess.run(["nodecast", "score", str(worse), str(tmp_path / "held_out.csv"),
-                             "--baseline", str(tmp_path / "candidate.ncz"), "--junit",
+                             "--baseline", str(tmp_path / "candidate.ncast"), "--junit",
                              str(tmp_path / "worse.xml")], capture_output=True, text=True)
     assert result.returncode == 1
     suite = ET.parse(tmp_path / "worse.xml").getroot()
@@ -84,7 +84,7 @@ def test_standalone_predictor_runs_isolated_and_matches_the_reference(tmp_path):
     from nodecast.compiler.csvio import read_table
 
     _run("standalone_predictor/run.sh", tmp_path)
-    bundle = load(tmp_path / "fan.ncz")
+    bundle = load(tmp_path / "fan.ncast")
     X = read_table(tmp_path / "held_out.csv").numbers(bundle.network.feature_names)
     got = read_table(tmp_path / "predictions.csv").numbers(["heatsink_temp"])[:, 0]
     want = reference.predict(bundle.network, X)[:, 0]
@@ -115,7 +115,7 @@ def test_python_api_example_exports_a_tuned_pipeline_that_every_artifact_compute
 
     _run("python_api/run.sh", tmp_path)
     summary = json.loads((tmp_path / "summary.json").read_text())
-    bundle = load(tmp_path / "fan.ncz")
+    bundle = load(tmp_path / "fan.ncast")
     assert summary["bundle_id"] == bundle.bundle_id
     assert bundle.metadata["pipeline"][0].endswith("StandardScaler")
     assert bundle.network.feature_names == ("ambient_temp", "fan_speed", "load_current",

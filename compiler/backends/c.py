@@ -11,7 +11,7 @@ on emulated Cortex-M cores by :mod:`nodecast.compiler.instruction_count`.
 
 from __future__ import annotations
 
-from nodecast.compiler import numerics
+from nodecast.compiler import typical_error
 from nodecast.compiler.backends import Artifact
 from nodecast.compiler.backends import c_header as text
 from nodecast.compiler.backends.c_board import board_files
@@ -66,7 +66,7 @@ def render(bundle, precision: str = "float32", prefix: str = "model", out_of_dom
         certificate = certify(net, "c", precision, plan=plan)
     else:
         context = float_context(net, precision, impl, table_size)
-        estimate = numerics.estimate(net, precision, activation_error=context["activation_error"])
+        estimate = typical_error.estimate(net, precision, activation_error=context["activation_error"])
         certificate = certify(net, "c", precision, activation_impl=impl,
                               table_size=context.get("table_size"))
     context.update(_common_context(bundle, precision, prefix, out_of_domain, impl, estimate,

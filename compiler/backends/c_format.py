@@ -41,21 +41,6 @@ _RESERVED_MACRO_PREFIXES = {"lc": "LC_", "sig": "SIG_", "fe": "FE_"}
 _NAMED_ESCAPES = {"\n": "\\n", "\t": "\\t", "\r": "\\r", '"': '\\"', "\\": "\\\\", "?": "\\?"}
 
 
-def default_prefix(source) -> str:
-    """The C prefix for a bundle read from ``source`` (a path, or None): the file name without
-    its extension when :func:`check_prefix` accepts it (so two models link into one firmware
-    without clashes), else "model"."""
-    if source is None:
-        return "model"
-    from pathlib import Path
-
-    stem = Path(source).name.split(".")[0]
-    try:
-        return check_prefix(stem)
-    except NodecastError:
-        return "model"
-
-
 def check_prefix(prefix) -> str:
     """Return ``prefix`` if it can name the files and identifiers, else raise NodecastError."""
     if not isinstance(prefix, str) or not PREFIX_PATTERN.match(prefix):

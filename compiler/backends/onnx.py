@@ -30,13 +30,13 @@ import numpy as np
 from nodecast.compiler.backends import Artifact
 from nodecast.compiler.bounds import certify
 from nodecast.compiler.errors import NodecastError
-from nodecast.compiler.numerics import estimate
 from nodecast.compiler.passes.scaling import (
     FOLD_GROWTH_LIMIT,
     folded_input_layer,
     folded_output_layer,
     should_fold_inputs,
 )
+from nodecast.compiler.typical_error import estimate
 from nodecast.compiler.version import __version__
 
 # The default operator set is the oldest one the graph needs, so that older runtimes load it
@@ -59,7 +59,6 @@ def needed_opset(flag_out_of_domain: bool, categorical: bool = False) -> int:
     if flag_out_of_domain:
         return FLAG_OPSET
     return LEVELS_OPSET if categorical else OLDEST_OPSET
-PRECISIONS = ("float32", "float64")
 INPUT_NAME = "features"
 LEVELS_NAME = "levels"
 OUTPUT_NAME = "outputs"
@@ -69,9 +68,7 @@ _ACTIVATION_OP = {"logistic": "Sigmoid", "tanh": "Tanh"}
 
 
 def render(bundle, precision: str = "float32", opset: int | None = None,
-           out_of_domain: str = "pass", flag_out_of_domain: bool = False, **_ignored) -> Artifact:
-    if precision not in PRECISIONS:
-        raise NodecastError(f"ONNX takes precision float32 or float64, not {precision!r}")
+           out_of_domain: str = "pass", flag_out_of_domain: bool = False) -> Artifact:
     needed = needed_opset(flag_out_of_domain, bundle.network.n_categorical > 0)
     opset = needed if opset is None else opset
     if opset not in SUPPORTED_OPSETS:
@@ -81,9 +78,6 @@ def render(bundle, precision: str = "float32", opset: int | None = None,
         raise NodecastError(f"opset {opset} is too old for this graph: it needs opset {needed} or "
                             "newer (--flag-out-of-domain: ReduceMin with its axes as an input; "
                             "categorical inputs: GreaterOrEqual)")
-    if out_of_domain not in ("pass", "clamp"):
-        raise NodecastError(f"ONNX takes out-of-domain policy 'pass' or 'clamp', not {out_of_domain!r}"
-                            " (a graph cannot refuse a row; use --flag-out-of-domain to mark them)")
     model, summary = build_model(bundle, precision, opset, out_of_domain, flag_out_of_domain)
     return Artifact("onnx", {"model.onnx": model.SerializeToString(deterministic=True)}, True, summary)
 

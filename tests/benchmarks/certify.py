@@ -24,13 +24,13 @@ CONFIGS = [("c", "float32", "libm"), ("c", "float32", "rational"), ("c", "float3
 
 
 def demo_bundles(folder: Path):
+    from nodecast.cli import main
     from nodecast.compiler import load
-    from nodecast.compiler.cli import main
 
     main(["demo", "--data-only", "-o", str(folder)])
     bundles = {}
     for name, extra in (("demo-default", []), ("demo-ridge0-800", ["--ridge", "0", "--nodes", "800"])):
-        path = folder / f"{name}.ncz"
+        path = folder / f"{name}.ncast"
         try:
             main(["train", str(folder / "readings.csv"), "--target", "heatsink_temp", "-o", str(path),
                   *extra])

@@ -10,10 +10,9 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from test_c_support import emit_c, need, run_c
+from tests.compiler.c_support import emit_c, need, run_c
 
 from nodecast.compiler import reference
-from nodecast.compiler.backends.c_format import default_prefix
 from nodecast.compiler.bounds import certify
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.passes.quantise import make_plan
@@ -165,7 +164,7 @@ def test_the_scratch_entry_point_computes_the_same_bits(steep_model, tmp_path, p
                                                         step):
     import subprocess
 
-    from test_c_support import STRICT
+    from tests.compiler.c_support import STRICT
 
     need("gcc")
     emit_c(steep_model[0], tmp_path, precision=precision, out_of_domain="clamp")
@@ -188,12 +187,3 @@ def test_status_codes_are_an_enum_of_the_codes_that_can_occur(steep_model, tmp_p
         assert all(code in enum for code in codes)
         assert enum.count(" = ") == len(codes)
         assert "#define MODEL_OK" not in header
-
-
-@pytest.mark.parametrize(("path", "expected"), [("fan.ncz", "fan"), ("/a/b/heat_sink_01.ncast",
-                                                                     "heat_sink_01"),
-                                                 ("Fan.ncz", "model"), ("2fan.ncz", "model"),
-                                                 ("int.ncz", "model"), ("my-fan.ncz", "model"),
-                                                 (None, "model")])
-def test_default_prefix_is_the_bundle_name_when_it_is_a_c_identifier(path, expected):
-    assert default_prefix(path) == expected

@@ -13,19 +13,13 @@ import pytest
 
 from nodecast.compiler import bundle as bundle_io
 from nodecast.compiler import files
-from nodecast.compiler.cli import main
 from nodecast.compiler.errors import NodecastError
+from tests.helpers import run_cli
 
 
 def leftovers(folder):
     return sorted(p.name for p in folder.iterdir() if p.name.endswith(".part"))
 
-
-def run_cli(args, capsys) -> tuple[int, str]:
-    with pytest.raises(SystemExit) as info:
-        main([str(arg) for arg in args])
-        raise SystemExit(0)
-    return info.value.code, capsys.readouterr().err
 
 
 class _Boom(Exception):
@@ -33,7 +27,7 @@ class _Boom(Exception):
 
 
 def test_exception_half_way_through_the_data_keeps_the_old_file(tmp_path, monkeypatch):
-    target = tmp_path / "model.ncz"
+    target = tmp_path / "model.ncast"
     target.write_bytes(b"old model")
     real_fdopen = os.fdopen
 
@@ -102,7 +96,7 @@ def test_multi_file_artifact_is_replaced_all_or_nothing(tmp_path, monkeypatch):
 
 
 def test_existing_outputs_are_refused_without_overwrite(tmp_path):
-    target = tmp_path / "m.ncz"
+    target = tmp_path / "m.ncast"
     target.write_bytes(b"keep me")
     with pytest.raises(NodecastError, match="already exists; pass --overwrite to replace it"):
         files.write_atomic(target, b"new")
@@ -119,7 +113,7 @@ def test_bad_destinations_are_clear_errors(tmp_path):
     with pytest.raises(NodecastError, match="is a folder; give a file name"):
         files.write_atomic(tmp_path, b"x", overwrite=True)
     with pytest.raises(NodecastError, match="does not exist"):
-        files.write_atomic(tmp_path / "absent" / "m.ncz", b"x")
+        files.write_atomic(tmp_path / "absent" / "m.ncast", b"x")
     (tmp_path / "plain").write_bytes(b"")
     with pytest.raises(NodecastError, match="exists and is not a folder"):
         files.write_files(tmp_path / "plain", {"a.c": b""})
@@ -135,7 +129,7 @@ def test_read_only_folder_is_a_clear_error(tmp_path):
     folder.chmod(0o500)
     try:
         with pytest.raises(NodecastError, match="cannot write .*Permission denied"):
-            files.write_atomic(folder / "m.ncz", b"x")
+            files.write_atomic(folder / "m.ncast", b"x")
     finally:
         folder.chmod(0o700)
 
@@ -143,7 +137,7 @@ def test_read_only_folder_is_a_clear_error(tmp_path):
 def test_written_files_get_ordinary_permissions(tmp_path):
     umask = os.umask(0o022)
     try:
-        path = files.write_atomic(tmp_path / "m.ncz", b"x")
+        path = files.write_atomic(tmp_path / "m.ncast", b"x")
     finally:
         os.umask(umask)
     assert path.stat().st_mode & 0o777 == 0o644  # what open(path, "w") gives under umask 022
@@ -153,9 +147,9 @@ def test_written_files_get_ordinary_permissions(tmp_path):
 
 @pytest.fixture(scope="module")
 def bundle_file(tmp_path_factory):
-    from test_bundle_integrity import tiny_bundle
+    from tests.compiler.test_bundle_integrity import tiny_bundle
 
-    path = tmp_path_factory.mktemp("bundle") / "tiny.ncz"
+    path = tmp_path_factory.mktemp("bundle") / "tiny.ncast"
     bundle_io.save(tiny_bundle(), path)
     return path
 
@@ -163,16 +157,15 @@ def bundle_file(tmp_path_factory):
 def test_cli_refuses_to_replace_outputs_without_overwrite(bundle_file, tmp_path, capsys):
     existing = tmp_path / "out.onnx"
     existing.write_bytes(b"precious")
-    code, err = run_cli(["emit", bundle_file, "--to", "onnx", "-o", existing], capsys)
+    code, _, err = run_cli(capsys, *["emit", bundle_file, "--to", "onnx", "-o", existing])
     assert code == 2 and "pass --overwrite" in err and existing.read_bytes() == b"precious"
     data = tmp_path / "rows.csv"
     data.write_text("x0,x1\n0.5,0.5\n")
-    code, err = run_cli(["predict", bundle_file, data, "-o", existing], capsys)
+    code, _, err = run_cli(capsys, *["predict", bundle_file, data, "-o", existing])
     assert code == 2 and "pass --overwrite" in err and existing.read_bytes() == b"precious"
-    code, err = run_cli(["train", data, "--target", "x1", "-o", existing], capsys)
+    code, _, err = run_cli(capsys, *["train", data, "--target", "x1", "-o", existing])
     assert code == 2 and "pass --overwrite" in err and existing.read_bytes() == b"precious"
-    code, err = run_cli(["emit", bundle_file, "--to", "onnx", "-o", existing, "--overwrite"],
-                        capsys)
+    code, _, err = run_cli(capsys, *["emit", bundle_file, "--to", "onnx", "-o", existing, "--overwrite"])
     assert code == 0 and existing.read_bytes().startswith(b"\x08")  # protobuf field 1: ir_version
 
 
@@ -185,7 +178,7 @@ def test_cli_emit_interrupted_mid_write_keeps_the_old_artifact(bundle_file, tmp_
         raise KeyboardInterrupt
 
     monkeypatch.setattr(files.os, "fsync", interrupted_sync)
-    code, _ = run_cli(["emit", bundle_file, "--to", "onnx", "-o", existing, "--overwrite"], capsys)
+    code, _, _ = run_cli(capsys, *["emit", bundle_file, "--to", "onnx", "-o", existing, "--overwrite"])
     assert code != 0 and existing.read_bytes() == b"precious" and leftovers(tmp_path) == []
 
 
@@ -196,7 +189,7 @@ CHILD = textwrap.dedent("""
         print("staged", flush=True)
         time.sleep(60)
     files.os.fsync = stall
-    from nodecast.compiler.cli import main
+    from nodecast.cli import main
     main(sys.argv[1:])
 """)
 

@@ -7,13 +7,13 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from click.testing import CliRunner
-from test_c_support import need
 
+from nodecast.cli import cli
 from nodecast.compiler import instruction_count as ic
 from nodecast.compiler import save
 from nodecast.compiler.backends import render
-from nodecast.compiler.cli import cli
 from nodecast.compiler.errors import NodecastError
+from tests.compiler.c_support import need
 
 TOOLS = ("arm-none-eabi-gcc", "qemu-system-arm")
 _FAKE_HEADER = b"""#ifndef FAKE_H
@@ -101,7 +101,7 @@ def test_parse_counts_refuses_broken_or_wrapped_output():
 
 def test_emit_and_inspect_print_instruction_counts(ten_input_bundles, tmp_path):
     need("gcc", *TOOLS)
-    model = tmp_path / "m.ncz"
+    model = tmp_path / "m.ncast"
     save(ten_input_bundles[25], model)
     runner = CliRunner()
     result = runner.invoke(cli, ["emit", str(model), "--to", "c", "--precision", "q15",

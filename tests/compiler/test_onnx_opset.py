@@ -9,9 +9,9 @@ import onnxruntime as ort
 import pytest
 from onnx import helper
 
+from nodecast.cli import main
 from nodecast.compiler import reference
 from nodecast.compiler.backends import onnx as onnx_backend
-from nodecast.compiler.cli import main
 
 VARIANTS = [("regression", "float32", "pass", False), ("regression", "float64", "clamp", False),
             ("regression", "float32", "clamp", True), ("classification", "float32", "pass", False),
@@ -74,9 +74,9 @@ def test_default_opset_model_computes_the_reference(friedman_bundle):
 def test_graph_and_input_doc_strings_give_the_input_order(capsys, friedman_bundle, tmp_path):
     from nodecast.compiler import save
 
-    save(friedman_bundle, tmp_path / "m.ncz")
+    save(friedman_bundle, tmp_path / "m.ncast")
     try:
-        main(["emit", str(tmp_path / "m.ncz"), "--to", "onnx", "-o", str(tmp_path / "m.onnx")])
+        main(["emit", str(tmp_path / "m.ncast"), "--to", "onnx", "-o", str(tmp_path / "m.onnx")])
     except SystemExit as exc:
         assert exc.code in (0, None)
     model = onnx.load(tmp_path / "m.onnx")

@@ -24,7 +24,7 @@ def test_points_equal_scipys_scrambled_sobol(d, n, seed):
 
 
 def _modules_after(args: list[str]) -> set[str]:
-    code = ("import sys\nfrom nodecast.compiler.cli import main\n"
+    code = ("import sys\nfrom nodecast.cli import main\n"
             "try:\n    main(sys.argv[1:])\n"
             "except SystemExit as exc:\n    assert exc.code in (0, None), exc.code\n"
             "print(' '.join(sorted(sys.modules)))")
@@ -37,8 +37,8 @@ def test_help_imports_no_numpy_and_emit_no_scipy_stats(tmp_path, friedman_bundle
     from nodecast.compiler import save
 
     assert "numpy" not in _modules_after(["--help"])
-    save(friedman_bundle, tmp_path / "m.ncz")
+    save(friedman_bundle, tmp_path / "m.ncast")
     for target, out in (("python", "m.py"), ("c", "c")):
-        loaded = _modules_after(["emit", str(tmp_path / "m.ncz"), "--to", target,
+        loaded = _modules_after(["emit", str(tmp_path / "m.ncast"), "--to", target,
                                  "-o", str(tmp_path / out)])
         assert "scipy.stats" not in loaded and "sklearn" not in loaded, target

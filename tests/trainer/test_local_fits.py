@@ -82,8 +82,8 @@ def test_no_data_beats_the_stated_steepness_bound(rows, features, levels, jitter
 
 
 def test_counts_are_in_the_bundle_and_shown_by_inspect(tmp_path, capsys):
+    from nodecast.cli import main
     from nodecast.compiler.bundle import load
-    from nodecast.compiler.cli import main
 
     X, y = counts_and_one_hot()
     names = ["few", "many", "kind_a", "kind_b", "kind_c", "kind_d", "checked", "gauge"]
@@ -92,7 +92,7 @@ def test_counts_are_in_the_bundle_and_shown_by_inspect(tmp_path, capsys):
     lines += [",".join([*(repr(float(v)) for v in row[:6]), "yes" if row[6] else "no",
                         repr(float(row[7])), repr(float(t))]) for row, t in zip(X, y, strict=True)]
     data.write_text("\n".join(lines) + "\n")
-    model = tmp_path / "wear.ncz"
+    model = tmp_path / "wear.ncast"
     assert main(["train", str(data), "--target", "wear", "-o", str(model)]) in (0, None)
     diagnostics = load(model).metadata["diagnostics"]
     for key in ("rank_deficient_fits", "damped_fits", "capped_slopes"):

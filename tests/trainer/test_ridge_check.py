@@ -77,7 +77,7 @@ def test_too_few_rows_fall_back_to_gcv_alone():
 
 
 def test_train_notes_heavy_tailed_inputs_in_one_line(tmp_path, capsys):
-    from nodecast.compiler.cli import main
+    from nodecast.cli import main
     from nodecast.compiler.csvio import write_table
 
     rng = np.random.default_rng(4)
@@ -86,7 +86,7 @@ def test_train_notes_heavy_tailed_inputs_in_one_line(tmp_path, capsys):
     rows = np.column_stack([flow, level, np.log(flow) + level]).tolist()
     (tmp_path / "pump.csv").write_text(write_table(["flow", "level", "y"], rows))
     assert main(["train", str(tmp_path / "pump.csv"), "--target", "y", "--nodes", "30", "-o",
-                 str(tmp_path / "m.ncz")]) in (0, None)
+                 str(tmp_path / "m.ncast")]) in (0, None)
     lines = capsys.readouterr().err.splitlines()
     notes = [line for line in lines if line.startswith("note: heavy-tailed")]
     assert len(notes) == 1 and "'flow'" in notes[0] and "'level'" not in notes[0]

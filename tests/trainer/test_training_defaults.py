@@ -7,8 +7,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from nodecast.cli import main
 from nodecast.compiler import emit, load, reference
-from nodecast.compiler.cli import main
 from nodecast.compiler.csvio import write_table
 
 
@@ -20,7 +20,7 @@ def _friedman(rows, noise, seed):
 
 
 def _demo(rows, noise, seed):
-    from nodecast.compiler import demo
+    from nodecast.cli import demo_scenario as demo
 
     return demo.make_readings(rows, seed, noise=0.3 if noise else 0.0)
 
@@ -42,8 +42,8 @@ def test_default_model_is_sensible_and_its_float32_export_keeps_its_accuracy(tmp
     table = make(2000, True, 1)
     header = [f"x{i}" for i in range(table.shape[1] - 1)] + ["y"]
     (tmp_path / "d.csv").write_text(write_table(header, table.tolist()), encoding="utf-8")
-    main(["train", str(tmp_path / "d.csv"), "--target", "y", "-o", str(tmp_path / "m.ncz")])
-    bundle = load(tmp_path / "m.ncz")
+    main(["train", str(tmp_path / "d.csv"), "--target", "y", "-o", str(tmp_path / "m.ncast")])
+    bundle = load(tmp_path / "m.ncast")
     test = make(3000, False, 2)
     X, y = test[:, :-1], test[:, -1]
     fitted = reference.predict(bundle.network, X)[:, 0]
