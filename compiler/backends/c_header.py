@@ -166,7 +166,8 @@ def layout_lines(fixed: bool, upper: str) -> list[str]:
             "interleaved partial sums, so node values are never stored. The stack holds the",
             f"normalised inputs, one tile and the partial sums ({upper}_SCRATCH_BYTES).",
             "Build with -ffp-contract=off for results that match other builds bit for bit",
-            "(fused multiply-add changes the last bits, within the stated estimate)."]
+            "(fused multiply-add changes the last bits, within the stated estimate). Never build",
+            "with -ffast-math or -ffinite-math-only: the NaN test (isnan) may then be dropped."]
 
 
 def return_text(fixed: bool, policy: str, upper: str) -> str:

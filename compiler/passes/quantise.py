@@ -18,6 +18,7 @@ from dataclasses import replace
 
 import numpy as np
 
+from nodecast.compiler.domain_points import domain_probes
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.fixedpoint import (
     ACC_LIMIT,
@@ -31,7 +32,6 @@ from nodecast.compiler.fixedpoint import (
     tanh_table,
 )
 from nodecast.compiler.ir import Network
-from nodecast.compiler.domain_points import domain_probes
 from nodecast.compiler.passes.quantise_inputs import input_formats, real_hidden, real_output
 
 MAX_PRODUCT_SHIFT = {16: 29, 32: 61}  # a q15 product (int32) or q31 product (int64) shift

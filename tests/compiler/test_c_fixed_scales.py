@@ -10,13 +10,13 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from tests.compiler.c_support import emit_c, need, run_c
 
 from nodecast.compiler import reference
 from nodecast.compiler.bounds import certify
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.passes.quantise import make_plan
 from nodecast.compiler.verify.runners import c as c_runner
+from tests.compiler.c_support import emit_c, need, run_c
 
 
 def _steep_data(rows=3000, seed=0):
@@ -97,15 +97,26 @@ def test_per_node_bound_is_tighter_and_never_beaten(steep_model, tmp_path, preci
     assert 0 < error <= bounds["node"] + reference_rounding
 
 
-def test_scales_are_declared_and_an_edited_declaration_is_refused(steep_model, tmp_path):
+@pytest.mark.parametrize(("emitted", "edited"), [("node", "layer"), ("layer", "node")])
+def test_scales_are_declared_and_an_edited_declaration_is_refused(steep_model, tmp_path, capsys,
+                                                                  emitted, edited):
+    """verify exits 2 with one line when the header's SCALES does not match the source."""
+    from nodecast.compiler import save
+    from tests.helpers import run_cli
+
     need("gcc")
     bundle = steep_model[0]
-    emit_c(bundle, tmp_path, precision="q15", out_of_domain="clamp")
-    assert c_runner.describe(tmp_path)["scales"] == "node"
-    header = tmp_path / "model.h"
-    header.write_text(header.read_text().replace('MODEL_SCALES "node"', 'MODEL_SCALES "layer"'))
-    with pytest.raises(NodecastError, match="declares scales 'layer'.*edited"):
-        c_runner.describe(tmp_path)
+    model = save(bundle, tmp_path / "steep.ncast")
+    folder = emit_c(bundle, tmp_path / "c", precision="q15", out_of_domain="clamp", scales=emitted)
+    assert c_runner.describe(folder)["scales"] == emitted
+    assert run_cli(capsys, "verify", model, folder).status in (0, 1)  # as emitted: judged
+    header = folder / "model.h"
+    header.write_text(header.read_text().replace(f'MODEL_SCALES "{emitted}"',
+                                                 f'MODEL_SCALES "{edited}"'))
+    with pytest.raises(NodecastError, match=f"declares scales '{edited}'.*edited"):
+        c_runner.describe(folder)
+    status, _, err = run_cli(capsys, "verify", model, folder)
+    assert status == 2 and "declares scales" in err and len(err.strip().splitlines()) == 1
 
 
 def test_verify_recomputes_the_bound_of_the_declared_scales(steep_model, tmp_path):
