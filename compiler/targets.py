@@ -65,16 +65,8 @@ class TargetSpec:
     def resolve(self, options: dict) -> dict:
         """``options`` checked and completed with defaults; an unknown or misspelt option raises."""
         unknown = [name for name in options if name not in self.names]
-        if unknown and unknown[0] in _OTHER_TARGETS_OPTIONS:
-            raise NodecastError(f"--{unknown[0].replace('_', '-')} "
-                                f"{_OTHER_TARGETS_OPTIONS[unknown[0]]}; the {self.name} artifact "
-                                "handles inputs outside the domain by --out-of-domain")
         if unknown:
-            name = unknown[0]
-            close = difflib.get_close_matches(name, self.names, n=1)
-            hint = f" (did you mean {close[0]!r}?)" if close else ""
-            raise NodecastError(f"the {self.name} target has no option {name!r}{hint}; it takes "
-                                f"{', '.join(self.names)}")
+            raise foreign_option_error(self.name, unknown[0])
         precision = options.get("precision") or self.default_precision
         if precision not in self.precisions:
             note = f" ({self.precision_note})" if self.precision_note else ""
@@ -100,7 +92,6 @@ class TargetSpec:
         return option.default
 
 
-_OTHER_TARGETS_OPTIONS = {"flag_out_of_domain": "adds an output to an ONNX graph"}
 _POLICY = Option("out_of_domain", "pass", OUT_OF_DOMAIN_POLICIES)
 
 TARGETS: dict[str, TargetSpec] = {
@@ -123,6 +114,23 @@ TARGETS: dict[str, TargetSpec] = {
     "python": TargetSpec("python", ("float64",), "float64", (_POLICY,),
                          precision_note="Python floats are IEEE 754 binary64"),
 }
+
+
+def foreign_option_error(target: str, name: str) -> NodecastError:
+    """The error for an option ``target`` does not take: another target's option is named as
+    such; anything else gets the closest option name, if any."""
+    flag = "--" + name.replace("_", "-")
+    if name == "flag_out_of_domain":
+        return NodecastError(f"{flag} adds an output to an ONNX graph; the {target} artifact "
+                             "handles inputs outside the domain by --out-of-domain")
+    takers = [t for t, spec in TARGETS.items() if name in spec.names]
+    if takers:
+        return NodecastError(f"{flag} applies to --to {' and '.join(takers)} only")
+    names = TARGETS[target].names
+    close = difflib.get_close_matches(name, names, n=1)
+    hint = f" (did you mean {close[0]!r}?)" if close else ""
+    return NodecastError(f"the {target} target has no option {name!r}{hint}; it takes "
+                         f"{', '.join(names)}")
 
 
 def target_spec(to: str) -> TargetSpec:

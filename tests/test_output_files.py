@@ -106,7 +106,7 @@ def test_train_checks_the_output_before_training(work, capsys, monkeypatch):
 
 
 def test_a_long_output_name_within_the_limit_is_written(work, capsys):
-    name = "n" * 250 + ".ncast"  # 254 bytes: fits; the temporary name must fit as well
+    name = "n" * 248 + ".ncast"  # 254 bytes: fits; the temporary name must fit as well
     code, _, err = run_cli(capsys, *["train", work / "readings.csv", "--target", "y", "--nodes", "5",
                          "-o", work / name])
     assert code == 0, err

@@ -116,9 +116,9 @@ def test_c_verify_builds_only_the_generated_files_and_refuses_edited_sizes(work,
     (folder / "main.c").write_text("int main(void) { return 0; }\n")  # the user's own firmware
     code, out, err = run_cli(capsys, *["verify", work / "m.ncast", folder, "--probes", "32"])
     assert code == 0, out + err
-    header = (folder / "model.h").read_text()
-    for macro in ("MODEL_N_INPUTS", "MODEL_N_OUTPUTS"):
-        (folder / "model.h").write_text(re.sub(rf"#define {macro} \d+", f"#define {macro} 99999",
+    header = (folder / "m.h").read_text()
+    for macro in ("M_N_INPUTS", "M_N_OUTPUTS"):  # the prefix is the bundle's name, m
+        (folder / "m.h").write_text(re.sub(rf"#define {macro} \d+", f"#define {macro} 99999",
                                                header))
         code, _, err = run_cli(capsys, *["verify", work / "m.ncast", folder, "--probes", "32"])
         assert one_line_refusal(code, err) and "the artifact was edited" in err

@@ -128,7 +128,7 @@ def test_emit_works_without_any_compiler(friedman_bundle, tmp_path, capsys, monk
     monkeypatch.setenv("PATH", str(tmp_path))  # no compiler on this PATH
     monkeypatch.delenv("CC", raising=False)
     err = _emit_cli(tmp_path / "m.ncast", tmp_path / "out", capsys, "--activation-impl", "rational")
-    assert (tmp_path / "out" / "model.c").is_file()
+    assert (tmp_path / "out" / "m.c").is_file()
     assert "host: skipped (gcc not found)" in err
     assert "cortex-m0: skipped (arm-none-eabi-gcc not found)" in err
 

@@ -178,8 +178,8 @@ def test_emit_and_verify_state_the_same_bound_for_a_64_entry_table(friedman_bund
     status, _, _ = run_cli(capsys, "emit", model, "--to", "c", "--activation-impl", "table",
                            "--table-size", "64", "-o", tmp_path / "c")
     assert status == 0
-    header = (tmp_path / "c" / "model.h").read_text()
-    stated = float(header.split("MODEL_ERROR_BOUND_0 ")[1].split()[0])
+    header = (tmp_path / "c" / "m.h").read_text()
+    stated = float(header.split("M_ERROR_BOUND_0 ")[1].split()[0])
     status, _, _ = run_cli(capsys, "verify", model, tmp_path / "c", "--abs-tol", "1e9",
                            "--report", tmp_path / "r.json")
     report = json.loads((tmp_path / "r.json").read_text())
