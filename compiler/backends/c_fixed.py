@@ -57,13 +57,17 @@ def fixed_context(net, plan) -> dict:
                                                                 plan.result_frac, strict=True)]),
         "table": _ints(plan.table, bits),
         "activation_error": plan.table_error,
-        "scratch_bytes": (bits // 8) * net.n_features + 8 * net.n_outputs,
-        "weight_bytes": (bits // 8) * (plan.hidden_weights.size + plan.output_weights.size
-                                       + len(plan.table)) + 8 * (net.n_nodes + net.n_outputs)
-                        + (2 * net.n_nodes if plan.scales == "node" else 0),
     }
     context.update(_activation_argument(plan))
     context.update(_product_shifts(plan))
+    groups = context.get("n_groups", 1)
+    inputs = (bits // 8) * net.n_features  # padded to the accumulators' 8-byte alignment
+    context["scratch_bytes"] = -(-inputs // 8) * 8 + 8 * net.n_outputs * groups
+    context["weight_bytes"] = ((bits // 8) * (plan.hidden_weights.size + plan.output_weights.size
+                                              + len(plan.table))
+                               + 8 * (net.n_nodes + net.n_outputs)  # int64 biases
+                               + (net.n_nodes if context["per_node"] else 0)  # hidden shifts
+                               + ((net.n_nodes + groups) if context["grouped"] else 0))
     return context
 
 

@@ -162,7 +162,7 @@ int main(void)
             ++same;
         }
     }
-    printf("%d\n", same);
+    printf("%d %d %d\n", same, (int)sizeof(model_scratch), MODEL_SCRATCH_BYTES);
     return 0;
 }
 """
@@ -183,7 +183,12 @@ def test_the_scratch_entry_point_computes_the_same_bits(steep_model, tmp_path, p
     subprocess.run(["gcc", *STRICT, "-O2", f"-DREAL={real}", f"-DSTEP={step}", "model.c",
                     "main.c", "-o", "scratch", "-lm"], cwd=tmp_path, check=True)
     out = subprocess.run(["./scratch"], cwd=tmp_path, capture_output=True, text=True, check=True)
-    assert out.stdout.split() == ["200"]
+    same, size, stated = (int(v) for v in out.stdout.split())
+    assert same == 200
+    # the stated stack arrays: the scratch type, and for float one tile of node values beside it
+    tile = 0 if precision.startswith("q") else int((tmp_path / "model.h").read_text()
+                                                   .split("#define MODEL_TILE ")[1].split()[0])
+    assert stated == size + tile * 4
 
 
 def test_status_codes_are_an_enum_of_the_codes_that_can_occur(steep_model, tmp_path):

@@ -127,7 +127,12 @@ def test_summary_holds_precision_estimate_and_sizes(friedman_bundle):
     assert summary["activation_impl"] == "table" and 0 < summary["activation_error"] < 1e-3
     net = friedman_bundle.network
     assert summary["weight_bytes"] > 2 * net.n_nodes * (net.n_features + 1)
-    assert summary["scratch_bytes"] == 2 * net.n_features + 8 * net.n_outputs
+    artifact = _c(friedman_bundle, precision="q15", out_of_domain="clamp")
+    groups = int(artifact.files["model.h"].decode().split("#define MODEL_N_GROUPS ")[1].split()[0])
+    padded = -(-2 * net.n_features // 8) * 8  # int16 inputs before int64 accumulators
+    assert summary["scratch_bytes"] == padded + 8 * net.n_outputs * groups
+    layer = _c(friedman_bundle, precision="q15", out_of_domain="clamp", scales="layer").summary
+    assert layer["scratch_bytes"] == padded + 8 * net.n_outputs
     assert "footprint" not in summary
 
 
