@@ -1,6 +1,6 @@
 """The export-error estimate of a fixed-point (q15, q31) artifact, whose formats come from
-:func:`nodecast.compiler.fixedpoint.make_plan`. :func:`nodecast.compiler.typical_error.estimate` sends
-"q15" and "q31" here.
+:func:`nodecast.compiler.passes.quantise.make_plan`. :func:`nodecast.compiler.typical_error.estimate`
+sends "q15" and "q31" here.
 """
 
 from __future__ import annotations

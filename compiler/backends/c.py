@@ -1,10 +1,13 @@
 """C back-end: a header and a source in C99 that read like a small hand-written library.
 
-``render`` validates the options, formats every number and every piece of user text in Python
-(:mod:`~nodecast.compiler.backends.c_format`), and fills the templates ``templates/c/model.h.j2``
-and ``model.c.j2``. The float32/float64 layout lives in :mod:`~nodecast.compiler.backends.c_float`,
-the q15/q31 one in :mod:`~nodecast.compiler.backends.c_fixed` (formats from
-:mod:`nodecast.compiler.fixedpoint`). The footprint (sizes and stack on the host and on Cortex-M)
+``render`` validates the options, lowers the network once (q15/q31: the quantisation pass
+:func:`nodecast.compiler.passes.quantise.make_plan`, whose plan the estimate and the certified
+bound reuse), formats every number and every piece of user text in Python
+(:mod:`~nodecast.compiler.backends.c_format`, the header's prose in
+:mod:`~nodecast.compiler.backends.c_header`) and fills the templates ``templates/c/model.h.j2``
+and ``model_float.c.j2`` or ``model_fixed.c.j2``. The float32/float64 layout lives in
+:mod:`~nodecast.compiler.backends.c_float`, the q15/q31 one in
+:mod:`~nodecast.compiler.backends.c_fixed`. The footprint (sizes and stack on the host and on Cortex-M)
 is measured by :mod:`nodecast.compiler.toolchain` when asked for, the instructions per prediction
 on emulated Cortex-M cores by :mod:`nodecast.compiler.instruction_count`.
 """
