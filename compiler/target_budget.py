@@ -2,11 +2,15 @@
 
 Both depend on the shape (inputs n, nodes M, outputs t), the precision and the core, hardly on the
 weights: the arrays' sizes are fixed by the shape, and the only data-dependent branches are the
-activation's clamps (the counts of one model vary by about 1% over its probes, 6% with libm). So
-each candidate M is measured once on a network of that shape with seeded random weights over the
-unit box: flash is the text and data of the model's object built as ``emit`` builds it for the
-footprint (helpers from libgcc and libm not included), cycles the median instruction count of
-:mod:`nodecast.compiler.instruction_count` times its assumed cycles per instruction.
+activation's clamps (the counts of one model vary by about 1% over its probes, 6% with libm). The
+one exception is fixed point with per-node scales, whose C takes its per-node paths (a shift per
+hidden product, output sums per format group) only where the nodes' formats differ; the shape's
+network therefore has rows of eight magnitudes and one steep node, so that it takes every such
+path and its count bounds a trained model's. So each candidate M is measured once on a network of
+that shape with seeded random weights over the unit box: flash is the text and data of the
+model's object built as ``emit`` builds it for the footprint (helpers from libgcc and libm not
+included), cycles the median instruction count of :mod:`nodecast.compiler.instruction_count` times
+its assumed cycles per instruction.
 """
 
 from __future__ import annotations
@@ -29,8 +33,11 @@ def shape_network(n: int, m: int, t: int, seed: int = 0):
     from nodecast.compiler.ir import Network
 
     rng = np.random.default_rng([seed, n, m, t])
-    return Network(hidden_weights=rng.normal(size=(m, n)) * 2.0, hidden_biases=rng.normal(size=m),
-                   activation="logistic", output_weights=rng.normal(size=(m, t)) * 0.1,
+    rows = 2.0 ** -(np.arange(m) % 8)[:, None]  # eight formats per layer (see the module doc)
+    hidden = rng.normal(size=(m, n)) * 2.0 * rows
+    hidden[0] *= 256.0  # a steep node: q31 takes per-node hidden formats too
+    return Network(hidden_weights=hidden, hidden_biases=rng.normal(size=m),
+                   activation="logistic", output_weights=rng.normal(size=(m, t)) * 0.1 * rows,
                    output_bias=np.zeros(t), input_offset=np.zeros(n), input_scale=np.ones(n),
                    output_offset=np.zeros(t), output_scale=np.ones(t), domain_low=np.zeros(n),
                    domain_high=np.ones(n), feature_names=[f"x{i}" for i in range(n)],

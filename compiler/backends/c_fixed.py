@@ -48,7 +48,7 @@ def fixed_context(net, plan) -> dict:
         "norm_round": _rounding(plan.norm_shift),
         "hidden_weights": _int_rows(plan.hidden_weights, bits),
         "hidden_biases": _ints(plan.hidden_biases, 64),
-        "hidden_pre_shift": 0 if plan.scales == "node" else plan.hidden_shift[0],
+        "hidden_pre_shift": plan.hidden_shift[0] if len(set(plan.hidden_shift)) == 1 else 0,
         "hidden_pre_round": int_literal(_rounding(plan.hidden_shift[0]), 64)
                             if plan.hidden_shift else "0",
         "output_weights": _int_rows(plan.output_weights, bits),
@@ -77,8 +77,10 @@ def _product_shifts(plan) -> dict:
     an output format are summed apart (group g) and each group's sum is shifted left, exactly,
     into the accumulator (the plan makes every shift of a node the same for all outputs)."""
     shifts = np.asarray(plan.output_shift, dtype=np.int64)
-    context = {"per_node": plan.scales == "node", "grouped": False}
-    if plan.scales == "node":
+    hidden = np.asarray(plan.hidden_shift, dtype=np.int64)
+    context = {"per_node": bool(np.any(hidden != hidden[0])) if hidden.size else False,
+               "grouped": False}
+    if context["per_node"]:
         context.update(hidden_shift=array_body([str(int(s)) for s in plan.hidden_shift]),
                        hidden_frac_range=_range_text(plan.hidden_frac))
     if np.all(shifts == shifts.flat[0]) and shifts.flat[0] >= 0:

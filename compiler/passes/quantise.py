@@ -24,6 +24,7 @@ from nodecast.compiler.fixedpoint import (
     ACC_LIMIT,
     SCALES,
     WORD_BITS,
+    Z_FRAC,
     FixedPlan,
     checked_table_size,
     frac_bits,
@@ -51,8 +52,11 @@ def make_plan(net: Network, precision: str, table_size: int | None = None,
     bits = WORD_BITS[precision]
     inputs = input_formats(net, precision)
     table, step_bits, table_error = tanh_table(precision, size)
-    hidden = (_hidden_by_node if scales == "node" else _hidden_by_layer)(
-        net, bits, inputs["input_frac"], inputs["input_centre"], inputs["input_half"])
+    hidden = _hidden_by_layer(net, bits, inputs["input_frac"], inputs["input_centre"],
+                              inputs["input_half"])
+    if scales == "node" and _per_node_pays(hidden, net.n_features):
+        hidden = _hidden_by_node(net, bits, inputs["input_frac"], inputs["input_centre"],
+                                 inputs["input_half"])
     output = (_output_by_node if scales == "node" else _output_by_layer)(net, bits)
     plan = FixedPlan(precision, bits, scales, **inputs, **hidden, table=table, table_size=size,
                      table_step_bits=step_bits, table_error=table_error, **output)
@@ -74,6 +78,14 @@ def _certified_result_formats(plan: FixedPlan, net: Network) -> FixedPlan:
     return replace(plan, result_frac=result, output_ceiling=tuple(float(c) for c in ceiling))
 
 
+def _per_node_pays(layer: dict, n_inputs: int) -> bool:
+    """Per-node hidden formats pay where the per-layer weights' rounding, summed over a node's n
+    inputs, is not already below the activation argument's own (half a step of Q5.26): always
+    for q15; for q31 only with steep nodes (weights of 16 and more, or n beyond 2^(f - 26))."""
+    weight_frac = layer["hidden_frac"][0] if layer["hidden_frac"] else Z_FRAC
+    return n_inputs * 2.0 ** -(weight_frac + 1) >= 2.0 ** -(Z_FRAC + 1)
+
+
 def _hidden_by_layer(net: Network, bits: int, frac, centre, half) -> dict:
     at, bt = real_hidden(net, frac, centre, half)
     norm_frac = bits - 2
@@ -93,14 +105,17 @@ def _hidden_by_layer(net: Network, bits: int, frac, centre, half) -> dict:
 def _hidden_by_node(net: Network, bits: int, frac, centre, half) -> dict:
     """Node j's weights in the format its own largest weight fills; every product is shifted
     right, rounding, into one accumulator format (the biases' too): as fine as the coarsest
-    node's products, and coarse enough that every node's sum (and bias) stays below 2^61."""
+    node's products but no finer than Q5.26, and coarse enough that every node's sum (and bias)
+    stays below 2^61."""
     at, bt = real_hidden(net, frac, centre, half)
     norm_frac = bits - 2
     weight_frac = np.array([frac_bits(float(np.max(np.abs(row), initial=0.0)), bits - 1)
                             for row in at], dtype=np.int64)
     size = float(np.max(np.abs(at).sum(axis=1) * 1.01 + np.abs(bt), initial=0.0))
     fit = 60 - int(np.floor(np.log2(size))) if size > 0 else 60
-    z_frac = int(min(int(np.min(weight_frac + norm_frac, initial=fit)), fit))
+    # no finer than the activation's Q5.26 argument: the tanh then takes it as it is (or scales it
+    # up exactly), the same code for every model, so its cycles follow the shape alone
+    z_frac = int(min(int(np.min(weight_frac + norm_frac, initial=fit)), fit, Z_FRAC))
     weight_frac = np.minimum(weight_frac, z_frac - norm_frac + MAX_PRODUCT_SHIFT[bits])
     weights = quantise(at, weight_frac[:, None], 2 ** (bits - 1) - 1)
     return {"hidden_weights": weights, "hidden_biases": quantise(bt, z_frac, ACC_LIMIT),

@@ -76,15 +76,17 @@ def describe(path: Path, emulate: str | None = None, **_options) -> dict:
 
 def _declared_scales(header: Path, macros: dict) -> str:
     """The fixed-point scales the header declares ("layer" when it predates the option), checked
-    against the source: only a per-node artifact holds the per-node shift tables."""
+    against the source: per-node tables (node shifts, output groups) only in a per-node artifact.
+    (A per-node artifact whose nodes all share one format has none; its integers are then those
+    of the per-layer plan, or the recomputed bound tells the two apart.)"""
     scales = macros.get("SCALES", '"layer"').strip('"')
     if scales not in ("node", "layer"):
         raise NodecastError(f"{header} declares unknown fixed-point scales {scales!r}")
-    per_node = f"{header.stem}_hidden_shift[" in header.with_suffix(".c").read_text(errors="replace")
-    if per_node != (scales == "node"):
-        raise NodecastError(f"{header} declares scales {scales!r}, but {header.stem}.c holds "
-                            f"{'per-node' if per_node else 'per-layer'} tables; the artifact "
-                            "was edited")
+    source = header.with_suffix(".c").read_text(errors="replace")
+    tables = [f"{header.stem}_{name}[" for name in ("hidden_shift", "output_group")]
+    if scales == "layer" and any(table in source for table in tables):
+        raise NodecastError(f"{header} declares scales 'layer', but {header.stem}.c holds "
+                            "per-node tables; the artifact was edited")
     return scales
 
 
