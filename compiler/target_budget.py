@@ -5,8 +5,10 @@ weights: the arrays' sizes are fixed by the shape, and the only data-dependent b
 activation's clamps (the counts of one model vary by about 1% over its probes, 6% with libm). The
 one exception is fixed point with per-node scales, whose C takes its per-node paths (a shift per
 hidden product, output sums per format group) only where the nodes' formats differ; the shape's
-network therefore has rows of eight magnitudes and one steep node, so that it takes every such
-path and its count bounds a trained model's. So each candidate M is measured once on a network of
+network therefore has rows of eight magnitudes (and for q31 one steep node, which q31 needs to
+take per-node formats; q15 takes them anyway, and a steep node would make its activation's
+argument coarser, which costs fewer instructions), so that it takes every such path and its count
+bounds a trained model's. So each candidate M is measured once on a network of
 that shape with seeded random weights over the unit box: flash is the text and data of the
 model's object built as ``emit`` builds it for the footprint (helpers from libgcc and libm not
 included), cycles the median instruction count of :mod:`nodecast.compiler.instruction_count` times
@@ -28,14 +30,16 @@ from nodecast.compiler.instruction_count import (
 BUDGET_ROWS = 16
 
 
-def shape_network(n: int, m: int, t: int, seed: int = 0):
-    """A regression network of the given shape with seeded random weights, domain [0, 1]^n."""
+def shape_network(n: int, m: int, t: int, seed: int = 0, steep: bool = False):
+    """A regression network of the given shape with seeded random weights, domain [0, 1]^n
+    (``steep``: one node 256 times steeper than the others)."""
     from nodecast.compiler.ir import Network
 
     rng = np.random.default_rng([seed, n, m, t])
     rows = 2.0 ** -(np.arange(m) % 8)[:, None]  # eight formats per layer (see the module doc)
     hidden = rng.normal(size=(m, n)) * 2.0 * rows
-    hidden[0] *= 256.0  # a steep node: q31 takes per-node hidden formats too
+    if steep:
+        hidden[0] *= 256.0
     return Network(hidden_weights=hidden, hidden_biases=rng.normal(size=m),
                    activation="logistic", output_weights=rng.normal(size=(m, t)) * 0.1 * rows,
                    output_bias=np.zeros(t), input_offset=np.zeros(n), input_scale=np.ones(n),
@@ -52,7 +56,7 @@ def shape_cost(n: int, m: int, t: int, precision: str, core: str) -> dict:
 
     if core not in COUNT_CORES:
         raise NodecastError(f"the target core is one of {', '.join(COUNT_CORES)}, not {core!r}")
-    net = shape_network(n, m, t)
+    net = shape_network(n, m, t, steep=precision == "q31")
     artifact = render(Bundle(net), "c", precision=precision, prefix="model")
     sizes = footprint(artifact.files, "model")[COUNT_CORES[core][0]]
     if "skipped" in sizes:

@@ -49,7 +49,7 @@ def fixed_context(net, plan) -> dict:
         "hidden_weights": _int_rows(plan.hidden_weights, bits),
         "hidden_biases": _ints(plan.hidden_biases, 64),
         "hidden_pre_shift": plan.hidden_shift[0] if len(set(plan.hidden_shift)) == 1 else 0,
-        "hidden_pre_round": int_literal(_rounding(plan.hidden_shift[0]), 64)
+        "hidden_pre_round": int_literal(_rounding(plan.hidden_shift[0]), wide)
                             if plan.hidden_shift else "0",
         "output_weights": _int_rows(plan.output_weights, bits),
         "output_biases": _ints(plan.output_biases, 64),

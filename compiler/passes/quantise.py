@@ -105,17 +105,19 @@ def _hidden_by_layer(net: Network, bits: int, frac, centre, half) -> dict:
 def _hidden_by_node(net: Network, bits: int, frac, centre, half) -> dict:
     """Node j's weights in the format its own largest weight fills; every product is shifted
     right, rounding, into one accumulator format (the biases' too): as fine as the coarsest
-    node's products but no finer than Q5.26, and coarse enough that every node's sum (and bias)
-    stays below 2^61."""
+    node's products (q15: no finer than Q5.26), and coarse enough that every node's sum (and
+    bias) stays below 2^61."""
     at, bt = real_hidden(net, frac, centre, half)
     norm_frac = bits - 2
     weight_frac = np.array([frac_bits(float(np.max(np.abs(row), initial=0.0)), bits - 1)
                             for row in at], dtype=np.int64)
     size = float(np.max(np.abs(at).sum(axis=1) * 1.01 + np.abs(bt), initial=0.0))
     fit = 60 - int(np.floor(np.log2(size))) if size > 0 else 60
-    # no finer than the activation's Q5.26 argument: the tanh then takes it as it is (or scales it
-    # up exactly), the same code for every model, so its cycles follow the shape alone
-    z_frac = int(min(int(np.min(weight_frac + norm_frac, initial=fit)), fit, Z_FRAC))
+    # q15: no finer than the activation's Q5.26 argument, so that every per-node q15 artifact runs
+    # one activation path with 32-bit limits (its n roundings at 2^-27 are far below a q15 step);
+    # q31 keeps the finer format, whose roundings would otherwise exceed the per-layer plan's
+    cap = Z_FRAC if bits == 16 else fit
+    z_frac = int(min(int(np.min(weight_frac + norm_frac, initial=fit)), fit, cap))
     weight_frac = np.minimum(weight_frac, z_frac - norm_frac + MAX_PRODUCT_SHIFT[bits])
     weights = quantise(at, weight_frac[:, None], 2 ** (bits - 1) - 1)
     return {"hidden_weights": weights, "hidden_biases": quantise(bt, z_frac, ACC_LIMIT),
