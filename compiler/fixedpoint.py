@@ -41,6 +41,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from nodecast.compiler.errors import NodecastError
+from nodecast.compiler.tanh_table import offset_tanh
 
 WORD_BITS = {"q15": 16, "q31": 32}
 FIXED_PRECISIONS = tuple(WORD_BITS)
@@ -140,13 +141,6 @@ def real_values(ints: np.ndarray, frac) -> np.ndarray:
 def pre_shift(bound: float) -> int:
     """Right shift that brings a sum bounded by ``bound`` (integer units) below 2^62."""
     return max(0, int(np.ceil(np.log2(max(bound, 1.0)))) - 62)
-
-
-def offset_tanh(size: int, step: float) -> np.ndarray:
-    """tanh(k step) + step^2 |tanh''(k step)| / 12, k = 0 .. size: the entries of every tanh table
-    (fixed point here, float in :mod:`nodecast.compiler.backends.c_float`), before rounding."""
-    th = np.tanh(np.arange(size + 1) * step)
-    return th + step**2 / 12.0 * 2.0 * th * (1.0 - th * th)
 
 
 def tanh_table(precision: str, size: int):

@@ -73,7 +73,7 @@ def activation_error(impl: str, precision: str, table_size: int | None = None) -
 def float_table(size: int, precision: str) -> np.ndarray:
     """tanh at size + 1 knots over [0, FLOAT_TABLE_REACH], offset for a zero-mean interpolation
     error and rounded to the precision."""
-    from nodecast.compiler.fixedpoint import offset_tanh
+    from nodecast.compiler.tanh_table import offset_tanh
 
     values = offset_tanh(size, FLOAT_TABLE_REACH / size)
     return values.astype(np.float32).astype(np.float64) if precision == "float32" else values
