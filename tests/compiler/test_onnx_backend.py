@@ -68,6 +68,7 @@ def test_float32_graph_within_estimate_and_5_percent_of_validation_error(friedma
     assert error < 0.05 * _holdout_rmse(friedman_bundle)
 
 
+@pytest.mark.slow
 def test_estimate_covers_ill_conditioned_float32_export(ill_conditioned_bundle):
     artifact = emit(ill_conditioned_bundle, "onnx", precision="float32")
     X = domain_probes(ill_conditioned_bundle.network, count=8192, seed=5)
