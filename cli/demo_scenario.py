@@ -118,7 +118,8 @@ def run_demo(folder: Path, echo=print, overwrite: bool = False) -> int:
     # is far looser than the C back-end's (whose order is known); see docs/verification.md
     for target, name, precision in ARTIFACTS:
         try:
-            emit(bundle, target, folder / name, overwrite=overwrite, precision=precision)
+            extra = {"prefix": "fan"} if target == "c" else {}  # as emit names it from fan.ncast
+            emit(bundle, target, folder / name, overwrite=overwrite, precision=precision, **extra)
         except Exception as exc:  # a target not built in this version is skipped, and said so
             if target in BACKENDS and "not available" in str(exc):
                 echo(f"{target}: not available in this version, skipped")

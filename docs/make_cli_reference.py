@@ -1,4 +1,5 @@
-"""Write docs/cli-reference.md from the CLI's own --help texts (a test keeps it current).
+"""Write docs/cli-reference.md from the CLI's own --help texts and the targets' option specs (a
+test keeps it current).
 Usage: python3 docs/make_cli_reference.py"""
 
 from __future__ import annotations
@@ -9,6 +10,7 @@ from pathlib import Path
 import click
 
 from nodecast.cli import cli
+from nodecast.compiler.targets import TARGETS
 
 TARGET = Path(__file__).with_name("cli-reference.md")
 
@@ -29,7 +31,28 @@ def render() -> str:
         parent = click.Context(cli, info_name="nodecast", **cli.context_settings)
         parts += ["", f"## nodecast {name}", "", "```text",
                   _help(cli.commands[name], name, parent), "```"]
-    return "\n".join(parts) + "\n"
+    return "\n".join(parts + target_options()) + "\n"
+
+
+def target_options() -> list[str]:
+    """One table per target from :data:`nodecast.compiler.targets.TARGETS`: what ``emit`` (the
+    command and ``nodecast.compiler.emit``) accepts; any other option is refused."""
+    lines = ["", "## Options per target", "",
+             "What `nodecast emit --to T` and `nodecast.compiler.emit(bundle, T, **options)` accept "
+             "(from `compiler/targets.py`); any other option is refused, never dropped. The command "
+             "line names them as flags (`out_of_domain` is `--out-of-domain`) and sets three C "
+             "options itself: `prefix` defaults to the bundle's file name when that makes a C "
+             "identifier, `instruction_count` is on unless `--no-instruction-count`, and "
+             "`footprint` (Python API only) is always measured."]
+    for name, spec in TARGETS.items():
+        lines += ["", f"### {name}", "", "| option | values | default |", "| --- | --- | --- |",
+                  f"| precision | {', '.join(spec.precisions)} | {spec.default_precision} |"]
+        for option in spec.options:
+            default = spec.default_text(option)
+            if option.name == "opset":
+                default = "the oldest the graph needs"
+            lines.append(f"| {option.name} | {spec.values_text(option)} | {default} |")
+    return lines
 
 
 if __name__ == "__main__":

@@ -83,6 +83,7 @@ def _limit_address_space():  # a wrong guess must fail fast here, never swap the
     resource.setrlimit(resource.RLIMIT_AS, (4 * 2**30, 4 * 2**30))
 
 
+@pytest.mark.slow
 def test_training_refuses_a_model_that_cannot_fit_in_memory_with_an_estimate(tmp_path):
     import subprocess
     import sys

@@ -106,6 +106,7 @@ def test_version_flag():
     assert result.returncode == 0 and __version__ in result.stdout
 
 
+@pytest.mark.slow
 def test_demo_passes_and_beats_fixed_interval_baseline(tmp_path):
     result = _nodecast("demo", "-o", str(tmp_path / "demo"))
     assert result.returncode == 0, result.stdout + result.stderr
@@ -123,6 +124,7 @@ def test_demo_passes_and_beats_fixed_interval_baseline(tmp_path):
     (["inspect", "missing.ncast"], "cannot read bundle"),
     (["emit", "missing.ncast", "--to", "onnx", "-o", "m.onnx"], "cannot read bundle"),
 ])
+@pytest.mark.slow
 def test_bad_input_is_one_line_and_exit_2(tmp_path, args, needle):
     result = _nodecast(*args, cwd=tmp_path)
     assert result.returncode == 2

@@ -10,6 +10,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+pytestmark = pytest.mark.slow  # each example runs whole, in its own process
+
 EXAMPLES = Path(__file__).resolve().parents[1] / "examples"
 
 
@@ -20,6 +22,7 @@ def _run(script: str, out: Path) -> subprocess.CompletedProcess:
     return result
 
 
+@pytest.mark.slow
 def test_onnx_handoff_consumer_matches_the_reference(tmp_path):
     from nodecast.compiler import load, reference
     from nodecast.compiler.csvio import read_table
@@ -44,6 +47,7 @@ def plots_out(tmp_path_factory) -> Path:
     return out
 
 
+@pytest.mark.slow
 def test_plots_example_draws_both_pictures(plots_out):
     for name in ("nodes.png", "predicted_vs_actual.png"):
         data = (plots_out / name).read_bytes()
@@ -61,6 +65,7 @@ def test_data_driven_nodes_are_all_steep_somewhere_on_the_domain(plots_out):
     assert all(lo <= 0.0 <= hi for lo, hi in zip(ranges["z_low"], ranges["z_high"], strict=True))
 
 
+@pytest.mark.slow
 def test_ci_gate_passes_then_refuses_a_worse_model(tmp_path):
     import xml.etree.ElementTree as ET
 
@@ -79,6 +84,7 @@ def test_ci_gate_passes_then_refuses_a_worse_model(tmp_path):
     assert int(suite.get("failures") or suite.find("testsuite").get("failures")) >= 1
 
 
+@pytest.mark.slow
 def test_standalone_predictor_runs_isolated_and_matches_the_reference(tmp_path):
     from nodecast.compiler import load, reference
     from nodecast.compiler.csvio import read_table
@@ -91,6 +97,7 @@ def test_standalone_predictor_runs_isolated_and_matches_the_reference(tmp_path):
     assert np.max(np.abs(got - want)) <= 1e-10 * np.ptp(want)  # SPEC: float64 artifacts
 
 
+@pytest.mark.slow
 def test_firmware_example_runs_on_emulated_cortex_m4_within_the_bound(tmp_path):
     import os
     import shutil
@@ -109,6 +116,7 @@ def test_firmware_example_runs_on_emulated_cortex_m4_within_the_bound(tmp_path):
     assert "cortex-m0" in result.stderr  # emit printed the footprint table
 
 
+@pytest.mark.slow
 def test_python_api_example_exports_a_tuned_pipeline_that_every_artifact_computes(tmp_path):
     from nodecast.compiler import load, reference
     from nodecast.compiler.csvio import read_table

@@ -273,6 +273,7 @@ def test_c_prefix_is_the_only_identifier_and_is_validated(prefix):
 
 # -- the whole path: CSV header -> train -> every target -> verify ---------------------------------
 
+@pytest.mark.slow
 def test_hostile_csv_header_and_labels_survive_train_emit_verify(tmp_path):
     rng = np.random.default_rng(1)
     names = [PAYLOADS[i] for i in (0, 4, 7, 8, 12)]
@@ -344,6 +345,7 @@ def test_c_escapes_keep_any_text_inert(text):
 
 @settings(max_examples=30, deadline=None, derandomize=True, database=None)
 @given(st.lists(names_text, min_size=2, max_size=2, unique=True), names_text)
+@pytest.mark.slow
 def test_any_names_leave_the_python_and_onnx_skeletons_unchanged(features, unit):
     import onnx
 
@@ -359,6 +361,7 @@ def test_any_names_leave_the_python_and_onnx_skeletons_unchanged(features, unit)
     assert _onnx_skeleton(models[0]) == _onnx_skeleton(models[1])
 
 
+@pytest.mark.slow
 def test_percent_in_a_feature_name_keeps_predictor_help_working(tmp_path, capsys):
     rows = np.random.default_rng(1).random((40, 3))
     write_csv(tmp_path / "d.csv", ["a", "%(prog)s %d", "y"], rows)

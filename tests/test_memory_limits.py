@@ -61,6 +61,7 @@ def test_inspect_of_a_million_node_model(million_nodes, capsys, two_gib):
     assert _refused(code, err, "error estimate of 1000000 nodes", "GiB of memory")
 
 
+@pytest.mark.slow
 def test_verify_with_too_many_probes_or_features_is_refused_up_front(tmp_path, capsys, two_gib,
                                                                      monkeypatch):
     from nodecast.compiler.verify import probes

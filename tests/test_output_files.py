@@ -232,6 +232,7 @@ def test_a_new_artifact_folder_appears_whole(tmp_path, monkeypatch):
 
 
 @pytest.mark.skipif(not HAS_GCC, reason="needs gcc to emit C with a footprint")
+@pytest.mark.slow
 def test_concurrent_c_emits_through_the_cli(work):
     """Two emit processes into one new folder without --overwrite: one writes it, one is refused;
     the folder holds one run's header and source."""

@@ -118,6 +118,7 @@ def test_run_interruptible_returns_results_and_raises_errors_of_the_child():
 
 
 @pytest.mark.skipif(not hasattr(os, "fork"), reason="prompt Ctrl-C needs fork")
+@pytest.mark.slow
 def test_ctrl_c_stops_a_long_fit_at_once_with_status_130(tmp_path):
     from nodecast.cli.demo_scenario import write_data
 

@@ -15,6 +15,8 @@ import zipfile
 import numpy as np
 import pytest
 
+pytestmark = pytest.mark.slow  # separate processes train and emit every target
+
 # Every command runs in each of two fresh interpreters; {out} is that run's own absolute folder.
 COMMANDS = [
     ["train", "{data}", "--target", "y", "--features", "a,b,c", "--nodes", "40", "--seed", "5",
@@ -78,6 +80,7 @@ def _outputs(folder):
     return sorted(p.relative_to(folder).as_posix() for p in folder.rglob("*") if p.is_file())
 
 
+@pytest.mark.slow
 def test_every_output_is_byte_identical_across_processes(two_runs):
     first, second = two_runs
     names = _outputs(first)

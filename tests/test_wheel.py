@@ -48,6 +48,7 @@ def dependency_folders() -> list[str]:
             if Path(entry).name in ("site-packages", "dist-packages") and Path(entry).is_dir()]
 
 
+@pytest.mark.slow
 def test_wheel_in_fresh_venv_runs_the_demo(wheel, tmp_path):
     env_dir = tmp_path / "venv"
     venv.EnvBuilder(system_site_packages=True, with_pip=False).create(env_dir)

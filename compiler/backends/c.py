@@ -69,6 +69,8 @@ def render(bundle, precision: str = "float32", prefix: str = "model", out_of_dom
         certificate = certify(net, "c", precision, plan=plan)
     else:
         context = float_context(net, precision, impl, table_size)
+        context["activation_error"] = float_activation_error(impl, precision,
+                                                             context.get("table_size"))
         estimate = typical_error.estimate(net, precision, activation_error=context["activation_error"])
         certificate = certify(net, "c", precision, activation_impl=impl,
                               table_size=context.get("table_size"))
@@ -190,9 +192,16 @@ def stated_activation_error(net, precision: str, impl: str | None, table_size: i
         from nodecast.compiler.fixedpoint import table_error
 
         return table_error(precision, table_size)
-    from nodecast.compiler.backends.c_float import activation_error
+    return float_activation_error(impl or DEFAULT_IMPLS[precision], precision, table_size)
 
-    return activation_error(impl or DEFAULT_IMPLS[precision], precision, table_size)
+
+def float_activation_error(impl: str, precision: str, table_size: int | None) -> float:
+    """Stated max abs error of the tanh ``impl`` evaluates in C (a logistic node halves it): proven
+    for rational and table, assumed for libm (:mod:`nodecast.compiler.bounds.programs`, which reads
+    the tables and coefficients of :mod:`~nodecast.compiler.backends.c_float`)."""
+    from nodecast.compiler.bounds.programs import c_float_activation
+
+    return c_float_activation(precision, impl, table_size)[1]
 
 
 def _bound_context(net, certificate) -> dict:

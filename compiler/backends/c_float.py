@@ -62,14 +62,6 @@ RATIONAL_DENOMINATOR = tuple(float.fromhex(h) for h in (
 FLOAT_TABLE_REACH = 8.0
 
 
-def activation_error(impl: str, precision: str, table_size: int | None = None) -> float:
-    """Stated max abs error of the tanh ``impl`` evaluates in C (a logistic node halves it): proven
-    for rational and table, assumed for libm (see :mod:`nodecast.compiler.bounds.activations`)."""
-    from nodecast.compiler.bounds.programs import c_float_activation
-
-    return c_float_activation(precision, impl, table_size)[1]
-
-
 def float_table(size: int, precision: str) -> np.ndarray:
     """tanh at size + 1 knots over [0, FLOAT_TABLE_REACH], offset for a zero-mean interpolation
     error and rounded to the precision."""
@@ -126,7 +118,6 @@ def float_context(net, precision: str, impl: str, table_size: int | None) -> dic
     context["weight_bytes"] = real_bytes * (sum(a.size for a in tiles) + out_bias.size
                                             + (0 if table is None else table.size)
                                             + n_tiles * tile * net.level_weights.shape[0])
-    context["activation_error"] = activation_error(impl, precision, context.get("table_size"))
     return context
 
 

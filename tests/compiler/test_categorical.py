@@ -129,6 +129,7 @@ def _artifacts(bundle, folder):
 
 
 @pytest.mark.parametrize("model", ["synthetic", "diabetes"])
+@pytest.mark.slow
 def test_every_artifact_agrees_with_the_reference_on_every_level(request, model, tmp_path):
     folder, bundle = request.getfixturevalue(model)
     net = bundle.network

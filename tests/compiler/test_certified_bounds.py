@@ -139,6 +139,7 @@ CONFIGS = [
 
 
 @pytest.mark.parametrize(("target", "options"), CONFIGS)
+@pytest.mark.slow
 def test_adversarial_search_never_beats_the_bound(friedman_bundle, tmp_path, target, options):
     """Seeded random points of the domain, then local maximisation from the worst: the measured
     error of the real artifact (its own runtime) never exceeds its certified bound."""
@@ -230,6 +231,7 @@ def test_a_changed_weight_is_a_soundness_failure(friedman_bundle, tmp_path, caps
 
 
 @pytest.mark.skipif(not HAS_GCC, reason="no C compiler")
+@pytest.mark.slow
 def test_an_ill_conditioned_q15_artifact_fails_verify_by_default(tmp_path, capsys):
     """ridge 0 and 800 nodes on the demo data: the q15 artifact cannot be proven as good as the
     model, so emit warns and verify fails it with the accuracy message (the old rule passed it)."""

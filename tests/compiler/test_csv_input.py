@@ -141,6 +141,7 @@ def test_labels_are_stripped_and_empty_labels_refused():
 
 @settings(max_examples=300, deadline=None, derandomize=True, database=None)
 @given(st.lists(st.floats(allow_nan=False, allow_infinity=False, width=64), min_size=1, max_size=5))
+@pytest.mark.slow
 def test_written_numbers_read_back_bit_exactly(values):
     # Python's repr is the shortest string that round-trips (common practice since Python 3.1)
     text = write_table(["v"], [[value] for value in values])

@@ -195,6 +195,7 @@ CHILD = textwrap.dedent("""
 
 
 @pytest.mark.parametrize("sig", [signal.SIGTERM, signal.SIGKILL])
+@pytest.mark.slow
 def test_killed_emit_never_leaves_a_half_written_artifact(bundle_file, tmp_path, sig):
     existing = tmp_path / "out.onnx"
     existing.write_bytes(b"precious")

@@ -72,6 +72,7 @@ def _median_counts(bundle, core, **options):
     return ic.count_instructions(artifact.files, info, X, core)
 
 
+@pytest.mark.slow
 def test_counts_repeat_across_runs_and_grow_linearly_with_nodes(ten_input_bundles):
     need(*TOOLS)
     options = {"precision": "q15", "out_of_domain": "clamp"}

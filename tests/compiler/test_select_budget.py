@@ -39,6 +39,7 @@ def _select(readings, tmp_path, *options):
     return CliRunner().invoke(cli, args), out
 
 
+@pytest.mark.slow
 def test_a_flash_budget_below_the_full_model_picks_one_that_fits(readings, tmp_path):
     need(*TOOLS)
     result, out = _select(readings, tmp_path, "--max-flash", "1800")
@@ -53,6 +54,7 @@ def test_a_flash_budget_below_the_full_model_picks_one_that_fits(readings, tmp_p
     assert frontier[0]["cv_rmse"] > frontier[1]["cv_rmse"]  # the budget costs accuracy
 
 
+@pytest.mark.slow
 def test_a_cycle_budget_is_met_by_the_chosen_model_on_its_own_weights(readings, tmp_path):
     need(*TOOLS)
     result, out = _select(readings, tmp_path, "--max-cycles", "6000", "--core", "cortex-m0",
@@ -66,6 +68,7 @@ def test_a_cycle_budget_is_met_by_the_chosen_model_on_its_own_weights(readings, 
     assert np.median(counts) * ASSUMED_CPI["cortex-m0"] <= 6000 * 1.02  # weights move counts ~1%
 
 
+@pytest.mark.slow
 def test_an_impossible_budget_exits_2_naming_the_smallest_achievable_size(readings, tmp_path):
     need(*TOOLS)
     out = tmp_path / "chosen.ncast"

@@ -33,6 +33,7 @@ def _modules_after(args: list[str]) -> set[str]:
     return set(result.stdout.split())
 
 
+@pytest.mark.slow
 def test_help_imports_no_numpy_and_emit_no_scipy_stats(tmp_path, friedman_bundle):
     from nodecast.compiler import save
 

@@ -37,6 +37,7 @@ def onnx_files(friedman_bundle, tmp_path_factory):
 
 
 @pytest.mark.parametrize("precision", ["float32", "float64"])
+@pytest.mark.slow
 def test_default_model_passes_in_both_engines_with_the_documented_schema(
         friedman_bundle, onnx_files, precision):
     report = verify(friedman_bundle, onnx_files[precision], count=2048)

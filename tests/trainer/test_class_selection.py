@@ -88,6 +88,7 @@ def test_chosen_model_classifies_held_out_rows(loader, floor):
     assert accuracy >= floor, (accuracy, result.chosen)
 
 
+@pytest.mark.slow
 def test_results_do_not_depend_on_jobs():
     from sklearn.datasets import load_breast_cancer
 

@@ -37,6 +37,7 @@ def _onnxruntime(artifact, X):
 
 
 @pytest.mark.parametrize("make, rmse_bound", [(_friedman, 0.6), (_demo, 1.0)])
+@pytest.mark.slow
 def test_default_model_is_sensible_and_its_float32_export_keeps_its_accuracy(tmp_path, make,
                                                                               rmse_bound):
     table = make(2000, True, 1)
