@@ -96,6 +96,10 @@ class _RandomNodeBase(BaseEstimator):
         self.hidden_weights_, self.hidden_biases_ = layer.weights, layer.biases
         self.diagnostics_ = {**layer.diagnostics, **self._data_diagnostics(X)}
         factor, ranges = self._accumulate(U, T, activation)
+        self._solve_output(factor, ranges)
+
+    def _solve_output(self, factor, ranges: PreactivationRange) -> None:
+        """The ridge and the output layer from the factor of [1, H] (however it was accumulated)."""
         self.training_z_low_, self.training_z_high_ = ranges.low, ranges.high
         if self.ridge == "auto":
             self.ridge_, self.ridge_choice_ = ridge_choice.choose(factor, self._float32_error(factor))

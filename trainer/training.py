@@ -10,6 +10,9 @@ from nodecast.compiler.bundle import Bundle
 from nodecast.compiler.errors import NodecastError
 from nodecast.trainer.estimators import RandomNodeClassifier, RandomNodeRegressor
 from nodecast.trainer.export import to_bundle
+from nodecast.trainer.hidden import block_bounds
+from nodecast.trainer.metrics import MetricSums
+from nodecast.trainer.row_hash import held_out
 
 
 @dataclass(frozen=True)
@@ -126,23 +129,23 @@ def train(table, job: TrainingJob) -> Bundle:
 
 
 def _validation(job: TrainingJob, low, high, X, y) -> dict:
-    n_valid = int(round(job.validation_fraction * X.shape[0]))
+    """Metrics of a same-settings fit on the rows not held out (:mod:`nodecast.trainer.row_hash`),
+    measured on the held-out rows."""
+    valid = held_out(0, X.shape[0], job.validation_fraction, job.seed)
+    n_valid = int(valid.sum())
     if n_valid < 1 or X.shape[0] - n_valid < 2:
         return {}
-    order = np.random.RandomState(job.seed).permutation(X.shape[0])
-    valid, fit = order[:n_valid], order[n_valid:]
     estimator = make_estimator(job, low, high)
     try:
-        estimator.fit(X[fit], y[fit])
+        estimator.fit(X[~valid], y[~valid])
     except ValueError:
         return {}
     return {"validation": _metrics(estimator, X[valid], y[valid], job.task)}
 
 
 def _metrics(estimator, X, y, task: str) -> dict:
-    if task == "classification":
-        return {"accuracy": float(np.mean(estimator.predict(X) == y)), "rows": int(X.shape[0])}
-    error = estimator.predict(X).reshape(y.shape) - y
-    return {"rmse": [float(v) for v in np.sqrt(np.mean(error**2, axis=0))],
-            "max_abs_error": [float(v) for v in np.max(np.abs(error), axis=0)],
-            "rows": int(X.shape[0])}
+    """Errors summed over the row blocks of a prediction pass (the blocks streaming uses too)."""
+    sums = MetricSums(task)
+    for start, stop in block_bounds(X.shape[0], estimator.hidden_weights_.shape[0], growing=False):
+        sums.update(estimator.predict(X[start:stop]), y[start:stop])
+    return sums.result()

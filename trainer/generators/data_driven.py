@@ -24,10 +24,13 @@ their own, each drawn node by node, and no node depends on another.
 
 from __future__ import annotations
 
-import numpy as np
-from scipy.spatial import cKDTree
+from dataclasses import dataclass
 
+import numpy as np
+
+from nodecast.trainer.anchors import draw_anchors
 from nodecast.trainer.generators.base import HiddenLayer
+from nodecast.trainer.neighbours import NearestRows
 
 _FLAT = 1e-10  # slope norms below this, in normalised target per normalised input, count as flat
 _RANK_TOLERANCE = 1e-10  # relative singular-value cutoff of the local minimum-norm fits
@@ -40,27 +43,20 @@ def default_neighbors(n_features: int) -> int:
     return max(10, 2 * (n_features + 1))
 
 
-def draw_anchors(n_rows: int, n_nodes: int, rng: np.random.RandomState) -> np.ndarray:
-    """Row indices: without replacement while n_nodes <= n_rows, then further shuffled rounds."""
-    rounds = [rng.permutation(n_rows) for _ in range(-(-n_nodes // n_rows))]
-    return np.concatenate(rounds)[:n_nodes]
-
-
-def local_slopes(U, local_targets, neighbours, anchors) -> tuple[np.ndarray, np.ndarray]:
+def local_slopes(local: np.ndarray, local_targets: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Minimum-norm least-squares slopes c of t(x) = c0 + c.(x - x*) over each anchor's neighbours.
 
-    U : ndarray of shape (N, q), normalised inputs (the varying features only).
-    local_targets : ndarray of shape (n_nodes, k), each node's target column at its neighbours.
-    neighbours : ndarray of shape (n_nodes, k), row indices; anchors : ndarray of shape (n_nodes,).
+    local : ndarray of shape (n_nodes, k, q), each node's neighbours minus its anchor x* (the
+    varying features only); local_targets : ndarray of shape (n_nodes, k), each node's target
+    column at its neighbours.
     Returns the slopes, ndarray of shape (n_nodes, q), and the rank of each local design,
     ndarray of shape (n_nodes,).
     """
-    n_nodes, q = anchors.shape[0], U.shape[1]
+    n_nodes, q = local.shape[0], local.shape[2]
     slopes, ranks = np.empty((n_nodes, q)), np.empty(n_nodes, dtype=int)
     for start in range(0, n_nodes, _CHUNK):
         stop = min(start + _CHUNK, n_nodes)
-        local = U[neighbours[start:stop]] - U[anchors[start:stop], None, :]
-        design = np.concatenate([np.ones(local.shape[:2] + (1,)), local], axis=2)
+        design = np.concatenate([np.ones(local[start:stop].shape[:2] + (1,)), local[start:stop]], axis=2)
         left, sv, right_t = np.linalg.svd(design, full_matrices=False)
         kept = sv > _RANK_TOLERANCE * sv[:, :1]
         inverse = np.divide(1.0, sv, out=np.zeros_like(sv), where=kept)
@@ -82,35 +78,59 @@ def _replace_flat(slopes: np.ndarray, rng: np.random.RandomState) -> np.ndarray:
     return flat
 
 
+@dataclass(frozen=True, eq=False)
+class NodePlan:
+    """What a data-driven draw decides before it looks at the rows: each node's anchor (a global
+    row index) and target column, the neighbours k, and the stream of the flat-node directions."""
+
+    anchors: np.ndarray
+    columns: np.ndarray
+    k: int
+    directions: np.random.RandomState
+
+
+def plan_nodes(n_rows, n_targets, n_nodes, rng, n_varying, n_neighbors=None) -> NodePlan:
+    """The draws of :func:`generate`, from the numbers of rows, targets and varying features."""
+    k = min(n_neighbors or default_neighbors(n_varying), n_rows)
+    anchor_rng, column_rng, direction_rng = (np.random.RandomState(seed)
+                                             for seed in rng.randint(2**31 - 1, size=3))
+    anchors = draw_anchors(n_rows, n_nodes, anchor_rng)
+    return NodePlan(anchors, column_rng.randint(n_targets, size=n_nodes), k, direction_rng)
+
+
 def generate(U, T, n_nodes, rng, activation, *, n_neighbors=None, slope_scale=1.0,
              **_unused) -> HiddenLayer:
     """Data-driven layer for normalised inputs U of shape (N, n) and targets T of shape (N, t)."""
-    N, n = U.shape
     varying = np.flatnonzero(np.ptp(U, axis=0) > 0)
-    q = varying.size
-    k = min(n_neighbors or default_neighbors(q), N)
-    anchor_rng, column_rng, direction_rng = (np.random.RandomState(seed)
-                                             for seed in rng.randint(2**31 - 1, size=3))
-    anchors = draw_anchors(N, n_nodes, anchor_rng)
-    columns = column_rng.randint(T.shape[1], size=n_nodes)
+    plan = plan_nodes(U.shape[0], T.shape[1], n_nodes, rng, varying.size, n_neighbors)
+    anchor_rows = U[plan.anchors]
+    nearest = NearestRows(anchor_rows[:, varying], plan.k, plan.columns)
+    if varying.size:
+        nearest.update(np.ascontiguousarray(U[:, varying]), T, 0)
+    return layer_from_neighbourhoods(plan, anchor_rows, varying, nearest, activation, slope_scale)
+
+
+def layer_from_neighbourhoods(plan: NodePlan, anchor_rows, varying, nearest: NearestRows,
+                              activation, slope_scale) -> HiddenLayer:
+    """The layer from the anchors' rows (n_nodes, n) and their k nearest rows (over the varying
+    features, wherever they were searched: in memory, chunk by chunk, or on a cluster)."""
+    n_nodes, n = anchor_rows.shape
+    q, k = varying.size, plan.k
     slopes = np.zeros((n_nodes, n))
     flat = np.ones(n_nodes, dtype=bool)
     ranks = np.zeros(n_nodes, dtype=int)
     if q:
-        V = np.ascontiguousarray(U[:, varying])
-        tree = cKDTree(V, leafsize=16, compact_nodes=False, balanced_tree=False)
-        _, neighbours = tree.query(V[anchors], k=k, workers=-1)
-        neighbours = np.asarray(neighbours).reshape(n_nodes, k)
-        fitted, ranks = local_slopes(V, T[neighbours, columns[:, None]], neighbours, anchors)
-        flat = _replace_flat(fitted, direction_rng)
+        local = nearest.rows - anchor_rows[:, None, varying]
+        fitted, ranks = local_slopes(local, nearest.targets)
+        flat = _replace_flat(fitted, plan.directions)
         slopes[:, varying] = fitted
     weights = slope_scale * slopes / activation.slope_at_inflection
-    biases = activation.inflection - np.einsum("ij,ij->i", weights, U[anchors])
+    biases = activation.inflection - np.einsum("ij,ij->i", weights, anchor_rows)
     diagnostics = {
         "neighbors": int(k),
         "flat_neighbourhoods": int(flat.sum()),
         "rank_deficient_fits": int(np.sum(ranks < min(k, q + 1))),
         "underdetermined_fits": int(n_nodes if k < q + 1 else 0),
-        "repeated_anchors": int(n_nodes - np.unique(anchors).size),
+        "repeated_anchors": int(n_nodes - np.unique(plan.anchors).size),
     }
     return HiddenLayer(weights, biases, diagnostics)
