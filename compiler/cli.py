@@ -125,13 +125,19 @@ def cli():
 @click.option("--validation-fraction", type=click.FloatRange(0, 0.9), default=0.2, show_default=True,
               help="Share of rows held out for the reported validation error (the bundle's model "
                    "is fitted on all rows).")
+@click.option("--chunk-rows", type=click.IntRange(min=1),
+              help="Read DATA this many rows at a time, in memory that does not grow with the rows "
+                   "(default: CSV files up to 32 MiB are read whole, larger ones and Parquet in "
+                   "chunks of 50,000 rows; the model is the same).")
+@click.option("--cluster", metavar="ADDRESS|local[:N]",
+              help="Run the passes on a Dask cluster: a scheduler address, or local[:N] for a local "
+                   "cluster of N workers (docs/scale.md).")
 @click.option("-o", "--output", required=True, type=click.Path(dir_okay=False), help="Bundle (.ncz).")
 @click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
 def train(data, target, features, domain, units, method, nodes, neighbors, slope_scale, interval,
-          ridge, activation, task, seed, validation_fraction, output, overwrite):
-    """Train a network on DATA.csv and save it as a bundle."""
+          ridge, activation, task, seed, validation_fraction, chunk_rows, cluster, output, overwrite):
+    """Train a network on DATA (CSV, or Parquet by its .parquet suffix) and save it as a bundle."""
     from nodecast.compiler.bundle import save
-    from nodecast.compiler.csvio import read_table
     from nodecast.compiler.files import refuse_existing
     from nodecast.trainer.training import TrainingJob
     from nodecast.trainer.training import train as run_training
@@ -144,9 +150,27 @@ def train(data, target, features, domain, units, method, nodes, neighbors, slope
         validation_fraction=validation_fraction,
         params=dict(n_nodes=nodes, method=method, n_neighbors=neighbors, slope_scale=slope_scale,
                     interval=interval, ridge=parse_ridge(ridge), activation=activation))
-    bundle = run_training(read_table(data), job)
+    bundle = _train_from(data, job, chunk_rows, cluster, run_training)
     save(bundle, output, overwrite=overwrite)
     click.echo(f"wrote {output} (bundle {bundle.bundle_id[:12]}); {_metrics_line(bundle)}", err=True)
+
+
+def _train_from(data, job, chunk_rows, cluster, run_training):
+    """The bundle of ``train``: in memory, streamed from disk, or on a Dask cluster."""
+    from nodecast.trainer.progress import Progress
+    from nodecast.trainer.sources import MemorySource, open_source
+
+    progress = Progress(sys.stderr if sys.stderr.isatty() else None)
+    if cluster:
+        from nodecast.trainer.distributed import train_on_cluster
+
+        return train_on_cluster(data, job, cluster, chunk_rows, progress)
+    source = open_source(data, chunk_rows)
+    if isinstance(source, MemorySource):
+        return run_training(source.table, job)
+    from nodecast.trainer.streaming import train_streaming
+
+    return train_streaming(source, job, progress)
 
 
 def _metrics_line(bundle) -> str:

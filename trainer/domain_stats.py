@@ -40,6 +40,14 @@ class DomainStats:
             self.inside += within.sum(axis=0)
             self.outside += int(np.sum(~within.all(axis=1)))
 
+    def merge(self, other: DomainStats) -> None:
+        """Take in the stats of other rows (a partition measured elsewhere)."""
+        self.rows += other.rows
+        np.minimum(self.low, other.low, out=self.low)
+        np.maximum(self.high, other.high, out=self.high)
+        self.inside += other.inside
+        self.outside += other.outside
+
     def box(self) -> tuple[np.ndarray, np.ndarray, int]:
         """(low, high, rows outside), or NodecastError as the in-memory ``train`` words it."""
         low, high = self.low.copy(), self.high.copy()

@@ -29,6 +29,16 @@ def _normaliser(low: np.ndarray, high: np.ndarray) -> tuple[np.ndarray, np.ndarr
     return low.copy(), np.where(span > 0, span, 1.0)
 
 
+def _is_dask(value) -> bool:
+    return type(value).__module__.startswith("dask.")
+
+
+def _fit_dask(estimator, X, y, classify: bool):
+    from nodecast.trainer.dask_fit import fit_dask
+
+    return fit_dask(estimator, X, y, classify)
+
+
 def _is_count(value, minimum: int = 1) -> bool:
     return isinstance(value, (int, np.integer)) and not isinstance(value, bool) and value >= minimum
 
@@ -202,7 +212,10 @@ class RandomNodeRegressor(RegressorMixin, _RandomNodeBase):
     __doc__ = "Regression network with random hidden nodes (data-driven by default).\n" + _PARAMETERS
 
     def fit(self, X, y):
-        """Fit to X of shape (n_samples, n_features) and y of shape (n_samples,) or (n_samples, t)."""
+        """Fit to X of shape (n_samples, n_features) and y of shape (n_samples,) or (n_samples, t);
+        dask arrays or dataframes are fitted partition by partition (docs/scale.md)."""
+        if _is_dask(X):
+            return _fit_dask(self, X, y, classify=False)
         X, y = validate_data(self, X, y, multi_output=True, y_numeric=True, dtype=np.float64)
         self._y_was_1d_ = y.ndim == 1
         self._fit_targets(X, y.reshape(X.shape[0], -1).astype(np.float64))
@@ -235,7 +248,10 @@ class RandomNodeClassifier(ClassifierMixin, _RandomNodeBase):
 """
 
     def fit(self, X, y):
-        """Fit to X of shape (n_samples, n_features) and labels y of shape (n_samples,)."""
+        """Fit to X of shape (n_samples, n_features) and labels y of shape (n_samples,); dask
+        arrays or dataframes are fitted partition by partition (docs/scale.md)."""
+        if _is_dask(X):
+            return _fit_dask(self, X, y, classify=True)
         X, y = validate_data(self, X, y, dtype=np.float64)
         check_classification_targets(y)
         self.classes_, codes = np.unique(y, return_inverse=True)

@@ -61,14 +61,16 @@ class StreamedFit:
         self.plan = self.nearest = self.varying = None
         self.outside = 0
 
-    def start(self, n_rows: int, y_low=None, y_high=None, classes=None) -> None:
-        """Set up from the fit's row count and target ranges (regression) or labels."""
+    def start(self, n_rows: int, y_low=None, y_high=None, classes=None, box=None) -> None:
+        """Set up from the fit's row count and target ranges (regression) or labels; ``box``
+        (low, high) is the data's range, used where the estimator declares no domain."""
         est, n = self.estimator, self.n_features
         est._check_params()
         if n_rows < 2:
             raise ValueError(f"need at least 2 samples to fit, got n_samples = {n_rows}")
         if self.task == "classification":
-            est.classes_ = np.unique(np.asarray(sorted(classes), dtype=object))
+            labels = np.asarray(sorted(classes))
+            est.classes_ = np.unique(labels.astype(object) if labels.dtype.kind in "US" else labels)
             if est.classes_.size < 2:
                 raise ValueError(f"need samples of at least 2 classes, got 1 class ({est.classes_[0]!r})")
             t = est.classes_.size
@@ -79,7 +81,10 @@ class StreamedFit:
             est.output_offset_, est.output_scale_ = _normaliser(np.asarray(y_low), np.asarray(y_high))
         self.n_rows, self.n_targets = n_rows, t
         est.n_features_in_ = n
-        est.domain_low_, est.domain_high_ = est._input_box(np.empty((0, n)))
+        if est.domain is None:
+            est.domain_low_, est.domain_high_ = (np.asarray(side, dtype=np.float64) for side in box)
+        else:
+            est.domain_low_, est.domain_high_ = est._input_box(np.empty((0, n)))
         est.input_offset_, est.input_scale_ = _normaliser(est.domain_low_, est.domain_high_)
         self.activation = get_activation(est.activation)
         rng = check_random_state(est.random_state)

@@ -42,6 +42,15 @@ class RowStats:
             self.y_low = low if self.y_low is None else np.minimum(self.y_low, low)
             self.y_high = high if self.y_high is None else np.maximum(self.y_high, high)
 
+    def merge(self, other: RowStats) -> None:
+        """Take in the stats of other rows (a partition measured elsewhere)."""
+        self.rows += other.rows
+        self.labels |= other.labels
+        if other.y_low is not None:
+            self.y_low = other.y_low if self.y_low is None else np.minimum(self.y_low, other.y_low)
+            self.y_high = other.y_high if self.y_high is None else np.maximum(self.y_high,
+                                                                              other.y_high)
+
 
 class StreamedTraining:
     """One ``train`` run over a :class:`~nodecast.trainer.sources.TableSource`."""

@@ -1,0 +1,87 @@
+"""``train`` on a Dask cluster: the checks and the two fits of
+:func:`nodecast.trainer.training.train`, each pass run on the partitions (:mod:`.distributed`)."""
+
+from __future__ import annotations
+
+from nodecast.compiler.errors import NodecastError
+from nodecast.trainer import partition_passes as passes
+from nodecast.trainer.distributed import ClusterRows, figures_on_cluster, fit_on_cluster
+from nodecast.trainer.domain_stats import DomainStats
+from nodecast.trainer.export import to_bundle
+from nodecast.trainer.streamed_fit import StreamedFit
+from nodecast.trainer.streaming import RowStats, StreamedTraining
+from nodecast.trainer.training import TrainingJob, make_estimator
+
+
+class ClusterTraining(StreamedTraining):
+    """The streamed ``train`` whose passes run on cluster partitions instead of local chunks."""
+
+    def __init__(self, header, rows: ClusterRows, job: TrainingJob) -> None:
+        class _Header:
+            source = "the table"
+
+            def __init__(self, names):
+                self.header = tuple(names)
+
+            def check_columns(self, names):
+                missing = [name for name in names if name not in self.header]
+                if missing:
+                    raise NodecastError(f"missing column(s) {', '.join(map(repr, missing))}")
+
+        super().__init__(_Header(header), job)
+        self.rows = rows
+
+    def run(self):
+        self._count()
+        job, f = self.job, (self.job.validation_fraction, self.job.seed)
+        model = self._cluster_fit(self.all, "all")
+        metrics = {"training": figures_on_cluster(model, job.task, self.rows, "all", *f)}
+        if self.all.rows - self.kept.rows >= 1 and self.kept.rows >= 2:
+            try:
+                check = self._cluster_fit(self.kept, "kept")
+            except ValueError:
+                check = None
+            if check is not None:
+                metrics["validation"] = figures_on_cluster(check, job.task, self.rows, "held", *f)
+        units = dict(job.units)
+        target_names = tuple(map(str, model.classes_)) if self.classify else job.targets
+        return to_bundle(
+            model, feature_names=self.features, target_names=target_names,
+            feature_units=[units.get(name, "") for name in self.features],
+            target_units=[units.get(name, "") for name in target_names],
+            metadata={"seed": job.seed, "metrics": metrics, "rows": self.all.rows,
+                      "rows_outside_domain": self.outside, "targets": list(job.targets),
+                      "validation_fraction": job.validation_fraction})
+
+    def _cluster_fit(self, stats: RowStats, which: str):
+        fit = StreamedFit(make_estimator(self.job, self.low, self.high), self.job.task,
+                          len(self.features))
+        try:
+            fit.start(stats.rows, stats.y_low, stats.y_high, stats.labels)
+            return fit_on_cluster(fit, self.rows, which, self.kept_counts,
+                                  self.job.validation_fraction, self.job.seed)
+        except ValueError as exc:
+            if which == "kept":
+                raise
+            raise NodecastError(f"cannot train: {' '.join(str(exc).split())}") from None
+
+    def _count(self) -> None:
+        from dask import delayed
+
+        job = self.job
+        tasks = [delayed(passes.stats)(p, s, self.features, job.targets, job.domain, self.classify,
+                                       job.validation_fraction, job.seed)
+                 for p, s in zip(self.rows.parts, self.rows.starts(), strict=True)]
+        domain, self.all, self.kept = DomainStats(self.features, job.domain), RowStats(), RowStats()
+        first_values, self.kept_counts = None, []
+        for part_domain, every, kept, first in self.rows.compute(tasks):
+            domain.merge(part_domain)
+            self.all.merge(every)
+            self.kept.merge(kept)
+            self.kept_counts.append(kept.rows)
+            first_values = first if first_values is None else first_values
+        self.n_rows = self.all.rows
+        if self.n_rows < 2:
+            raise NodecastError(f"need at least 2 data rows to train, got {self.n_rows}")
+        self._check_targets(first_values)
+        self.low, self.high, self.outside = domain.box()

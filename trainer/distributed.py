@@ -1,0 +1,139 @@
+"""Training on a Dask cluster: the passes of a streamed fit run on partitions, merged on the client.
+
+Domain and targets by reductions (min, max, counts), anchors by global row index, each partition's
+k nearest candidates of every anchor merged into the global k, each partition's R factor of its
+design block combined by a tree of small Householder QRs (TSQR), held-out rows by a hash of the
+global row index (:mod:`nodecast.trainer.row_hash`). The hidden layer is the single-process layer bit
+for bit; the output layer differs only by the rounding of a different order of QR steps.
+
+A worker that dies makes the run fail with one line (Dask retries a task on another worker first,
+``distributed.scheduler.allowed-failures`` times); nothing is written then.
+"""
+
+from __future__ import annotations
+
+from contextlib import contextmanager
+
+import numpy as np
+
+from nodecast.compiler.errors import NodecastError
+from nodecast.trainer import partition_passes as passes
+from nodecast.trainer.metrics import MetricSums
+from nodecast.trainer.streamed_fit import StreamedFit
+
+
+class ClusterRows:
+    """Row partitions of a table on a cluster: Dask delayed objects, each (X, Y or labels)."""
+
+    def __init__(self, parts, lengths=None) -> None:
+        self.parts, self.lengths = list(parts), lengths
+
+    def compute(self, tasks):
+        import dask
+
+        return dask.compute(*tasks)
+
+    def counts(self) -> list[int]:
+        if self.lengths is None:
+            from dask import delayed
+
+            self.lengths = list(self.compute([delayed(passes.count)(p) for p in self.parts]))
+        return self.lengths
+
+    def starts(self, lengths=None) -> list[int]:
+        lengths = self.counts() if lengths is None else lengths
+        return [int(v) for v in np.concatenate([[0], np.cumsum(lengths)[:-1]])]
+
+
+def fit_on_cluster(fit: StreamedFit, rows: ClusterRows, which: str, kept_counts, fraction, seed):
+    """Passes 1 to 3 of ``fit`` over the rows ``which`` of the partitions; returns the estimator."""
+    from dask import delayed
+
+    global_starts = rows.starts()
+    counts = rows.counts() if which == "all" else kept_counts
+    starts = rows.starts(counts)
+    select = [(which, g, fraction, seed) for g in global_starts]
+    results = rows.compute([delayed(passes.anchors)(p, s, fit, w)
+                            for p, s, w in zip(rows.parts, starts, select, strict=True)])
+    for (outside, low, high, anchor_rows), s, r in zip(results, starts, counts, strict=True):
+        fit.outside += outside
+        if fit.plan is not None:
+            np.minimum(fit.u_low, low, out=fit.u_low)
+            np.maximum(fit.u_high, high, out=fit.u_high)
+            here = (fit.plan.anchors >= s) & (fit.plan.anchors < s + r)
+            fit.anchor_rows[here] = anchor_rows[here]
+    if fit.finish_anchors():
+        found = rows.compute([delayed(passes.neighbours)(p, s, fit, w)
+                              for p, s, w in zip(rows.parts, starts, select, strict=True)])
+        for nearest in found:
+            fit.nearest.merge(nearest)
+        fit.finish_neighbours()
+    level = [delayed(passes.factor)(p, fit, w) for p, w in zip(rows.parts, select, strict=True)]
+    while len(level) > 1:
+        pairs = [delayed(passes.combine)(a, b) for a, b in zip(level[::2], level[1::2], strict=False)]
+        level = pairs + ([level[-1]] if len(level) % 2 else [])
+    factor, ranges = rows.compute(level)[0]
+    fit.estimator._solve_output(factor, ranges)
+    return fit.estimator
+
+
+def figures_on_cluster(model, task: str, rows: ClusterRows, which: str, fraction, seed) -> dict:
+    from dask import delayed
+
+    select = [(which, g, fraction, seed) for g in rows.starts()]
+    sums = MetricSums(task)
+    for part in rows.compute([delayed(passes.figures)(p, model, task, w)
+                              for p, w in zip(rows.parts, select, strict=True)]):
+        sums.merge(part)
+    return sums.result()
+
+
+@contextmanager
+def connect(address: str):
+    """A Dask client for ``--cluster``: a scheduler address, or local[:N] (N workers, default 2)."""
+    try:
+        from dask.distributed import Client, LocalCluster
+    except ImportError:
+        raise NodecastError("--cluster needs dask[distributed] (pip install 'dask[distributed]')") from None
+    if address == "local" or address.startswith("local:"):
+        text = address.partition(":")[2] or "2"
+        if not text.isdigit() or int(text) < 1:
+            raise NodecastError(f"--cluster local:N takes a positive number of workers, got {address!r}")
+        with LocalCluster(n_workers=int(text), threads_per_worker=1, dashboard_address=None) as cluster:
+            with Client(cluster) as client:
+                yield client
+        return
+    try:
+        client = Client(address, timeout="10s")
+    except (OSError, ValueError, TimeoutError) as exc:
+        raise NodecastError(f"cannot reach the Dask scheduler at {address!r}: {exc}") from None
+    with client:
+        yield client
+
+
+@contextmanager
+def worker_failures():
+    """Turn a lost worker or a failed task into one line."""
+    try:
+        yield
+    except NodecastError:
+        raise
+    except Exception as exc:
+        name = type(exc).__name__
+        if name == "KilledWorker":
+            raise NodecastError("a Dask worker died while running a training task (after the "
+                                "scheduler's retries); no bundle was written") from None
+        if name in ("CommClosedError", "FutureCancelledError", "CancelledError"):
+            raise NodecastError(f"lost the Dask cluster during training ({name}); no bundle was "
+                                "written") from None
+        raise
+
+
+def train_on_cluster(data, job, address: str, chunk_rows=None, progress=None):
+    """``nodecast train --cluster``: the bundle of ``train`` on the file ``data``, computed on Dask."""
+    from nodecast.trainer.cluster_training import ClusterTraining
+    from nodecast.trainer.frames import file_partitions
+
+    with connect(address), worker_failures():
+        header, rows = file_partitions(data, job, chunk_rows)
+        return ClusterTraining(header, rows, job).run()
