@@ -7,9 +7,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from nodecast.trainer import partition_passes as passes
 from nodecast.trainer.distributed import ClusterRows, fit_on_cluster, worker_failures
-from nodecast.trainer.domain_stats import DomainStats
 from nodecast.trainer.streamed_fit import StreamedFit
 
 

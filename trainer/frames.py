@@ -45,6 +45,14 @@ def array_rows(X, y) -> ClusterRows:
     return ClusterRows(parts, lengths)
 
 
+def _exact_floats() -> dict:
+    """pandas' option for correctly rounded decimal parsing (the values Python's float() gives, as
+    the single-process reader): the default from pandas 3, "round_trip" before."""
+    import pandas
+
+    return {} if int(pandas.__version__.split(".")[0]) >= 3 else {"float_precision": "round_trip"}
+
+
 def file_partitions(path, job, chunk_rows=None) -> tuple[tuple[str, ...], ClusterRows]:
     """The header of the training file and its partitions, read by the workers (the file must be
     at the same path for every worker: a shared file system or object store)."""
@@ -67,6 +75,6 @@ def file_partitions(path, job, chunk_rows=None) -> tuple[tuple[str, ...], Cluste
         if classify:
             types[job.targets[0]] = object
         frame = dd.read_csv(path, usecols=columns, dtype=types, blocksize=BLOCK_BYTES,
-                            float_precision="round_trip", na_filter=False,
-                            skipinitialspace=True, encoding="utf-8-sig")
+                            na_filter=False, skipinitialspace=True, encoding="utf-8-sig",
+                            **_exact_floats())
     return header, frame_rows(frame, features, job.targets, classify)

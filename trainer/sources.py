@@ -126,7 +126,7 @@ class ParquetSource(TableSource):
             raise NodecastError("reading Parquet needs pyarrow (pip install pyarrow)") from None
         self.source, self.chunk_rows = str(path), chunk_rows
         try:
-            self.file = pq.ParquetFile(path)
+            self.file = pq.ParquetFile(path, pre_buffer=False)  # pre-buffering reads whole files
         except (OSError, ValueError) as exc:  # pyarrow's ArrowInvalid is a ValueError
             raise NodecastError(f"cannot read {self.source} as Parquet: {exc}") from None
         self.header = tuple(self.file.schema_arrow.names)

@@ -27,8 +27,7 @@ from nodecast.compiler.activations import get_activation
 from nodecast.trainer import solvers
 from nodecast.trainer.estimators import _normaliser
 from nodecast.trainer.generators import GENERATORS
-from nodecast.trainer.generators.data_driven import (default_neighbors, layer_from_neighbourhoods,
-                                                     plan_nodes)
+from nodecast.trainer.generators.data_driven import default_neighbors, layer_from_neighbourhoods, plan_nodes
 from nodecast.trainer.hidden import PreactivationRange, block_bounds, design_blocks
 from nodecast.trainer.neighbours import NearestRows
 
