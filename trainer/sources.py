@@ -3,13 +3,15 @@ Parquet (through pyarrow), or a table already in memory.
 
 A source yields :class:`Chunk` objects in file order; every pass of a streamed fit reads the source
 again, so memory holds one chunk at a time whatever the number of rows. Errors name the file, the
-line (CSV) or data row (Parquet) and the column, as for tables read whole.
+line (CSV) or data row (Parquet) and the column, as for tables read whole. A large CSV file is parsed
+once: its parsed columns are kept in a temporary folder for the later passes (:class:`SpilledSource`).
 """
 
 from __future__ import annotations
 
 import csv
 import os
+import tempfile
 from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
@@ -164,6 +166,57 @@ class ParquetSource(TableSource):
         return np.asarray([value.strip() for value in text], dtype=object)
 
 
+class SpilledSource(TableSource):
+    """A source parsed once: the first pass also writes each chunk's parsed columns to a temporary
+    folder (float64 .npy files, about 8 bytes per number), later passes read them back, exactly.
+    The folder is removed when the source is closed or collected."""
+
+    def __init__(self, inner: TableSource) -> None:
+        self.inner, self.header, self.source = inner, inner.header, inner.source
+        self.folder = None
+        self.key = None
+        self.count = 0
+
+    def check_columns(self, names) -> None:
+        self.inner.check_columns(names)
+
+    def chunks(self, names, label=None):
+        key = (tuple(names), label)
+        if self.folder is not None and key == self.key:
+            yield from self._read_back(label is not None)
+            return
+        self.close()
+        self.folder, self.key, self.count = tempfile.TemporaryDirectory(prefix="nodecast-"), key, 0
+        complete = False
+        try:
+            for chunk in self.inner.chunks(names, label):
+                np.save(self._path(self.count, "x"), chunk.numbers)
+                if chunk.labels is not None:
+                    np.save(self._path(self.count, "y"), chunk.labels.astype(str))
+                self.count += 1
+                yield chunk
+            complete = True
+        finally:
+            if not complete:
+                self.close()
+
+    def _read_back(self, with_labels: bool):
+        first = 0
+        for index in range(self.count):
+            numbers = np.load(self._path(index, "x"))
+            labels = np.load(self._path(index, "y")).astype(object) if with_labels else None
+            yield Chunk(first, numbers, labels)
+            first += numbers.shape[0]
+
+    def _path(self, index: int, kind: str) -> str:
+        return os.path.join(self.folder.name, f"{index:08d}{kind}.npy")
+
+    def close(self) -> None:
+        if self.folder is not None:
+            self.folder.cleanup()
+            self.folder = self.key = None
+
+
 def open_source(path, chunk_rows: int | None = None) -> TableSource:
     """The training table at ``path``: Parquet by suffix, else CSV; a CSV file up to
     ``IN_MEMORY_BYTES`` is read whole unless ``chunk_rows`` is given (the model is the same)."""
@@ -176,4 +229,4 @@ def open_source(path, chunk_rows: int | None = None) -> TableSource:
         raise NodecastError(f"cannot read {path}: {exc.strerror or exc}") from None
     if chunk_rows is None and small:
         return MemorySource(read_table(path), size)
-    return CsvSource(path, size)
+    return SpilledSource(CsvSource(path, size))

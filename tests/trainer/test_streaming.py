@@ -160,3 +160,26 @@ def test_progress_shows_rows_rate_and_time_left_only_on_a_stream():
     silent.start("factor", 10)
     silent.advance(10)
     silent.done()  # writes nowhere, raises nothing
+
+
+def test_a_spilled_csv_is_parsed_once_and_gives_the_same_bundle(bench_csv):
+    from nodecast.trainer.sources import SpilledSource
+
+    class Counting(CsvSource):
+        passes = 0
+
+        def chunks(self, names, label=None):
+            Counting.passes += 1
+            yield from super().chunks(names, label)
+
+    job = TrainingJob(targets=("grade",), features=("flow", "stage", "drift"),
+                      task="classification", params={"n_nodes": 30}, seed=3)
+    source = SpilledSource(Counting(bench_csv, 100))
+    spilled = train_streaming(source, job)
+    folder = source.folder.name
+    assert Counting.passes == 1
+    assert to_bytes(spilled) == to_bytes(train(read_table(bench_csv), job))
+    source.close()
+    import os
+
+    assert not os.path.exists(folder)
