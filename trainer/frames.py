@@ -69,7 +69,7 @@ def file_partitions(path, job, chunk_rows=None) -> tuple[tuple[str, ...], Cluste
     if missing:
         raise NodecastError(f"{path}: missing column(s) {', '.join(map(repr, missing))}")
     if str(path).lower().endswith(PARQUET_SUFFIXES):
-        frame = dd.read_parquet(path, columns=columns)
+        frame = dd.read_parquet(path, columns=columns, split_row_groups=True)  # a partition per group
     else:
         types = {name: np.float64 for name in columns}
         if classify:

@@ -6,7 +6,8 @@ written as Parquet (row groups of PARTITION rows). Measured in one run:
 
 * ``streaming``: one fit (all rows, given ridge) by the streamed passes in a subprocess: wall and CPU
   seconds, peak resident memory, rows per second per core;
-* ``in_memory``: the estimator's fit on the same rows in memory (subprocess), same figures;
+* ``in_memory``: the estimator's fit on the same rows in memory and its training figures
+  (subprocess), same measurements;
 * ``cluster``: the same fit on a LocalCluster of WORKERS single-threaded workers reading the file
   (cluster start-up excluded), and the largest relative output-weight difference to streaming;
 * ``per_partition``: CPU seconds of each pass's partition task on one partition, and of one TSQR
@@ -63,6 +64,8 @@ else:
     X, y = table.drop(columns="y").to_numpy(), table["y"].to_numpy()
     del table
     model = RandomNodeRegressor(n_nodes=nodes, ridge=1e-6, random_state=0).fit(X, y)
+    from nodecast.trainer.training import _metrics
+    _metrics(model, X, y[:, None], "regression")  # the training figures streaming computes too
     class B: pass
     bundle = B(); bundle.network = B(); bundle.network.output_weights = model.coef_
 wall, cpu = time.perf_counter() - start, time.process_time() - cpu
