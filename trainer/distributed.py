@@ -49,11 +49,12 @@ def fit_on_cluster(fit: StreamedFit, rows: ClusterRows, which: str, kept_counts,
     """Passes 1 to 3 of ``fit`` over the rows ``which`` of the partitions; returns the estimator."""
     from dask import delayed
 
+    shared = delayed(fit, pure=True)  # one copy per worker, not one per task
     global_starts = rows.starts()
     counts = rows.counts() if which == "all" else kept_counts
     starts = rows.starts(counts)
     select = [(which, g, fraction, seed) for g in global_starts]
-    results = rows.compute([delayed(passes.anchors)(p, s, fit, w)
+    results = rows.compute([delayed(passes.anchors)(p, s, shared, w)
                             for p, s, w in zip(rows.parts, starts, select, strict=True)])
     for (outside, low, high, anchor_rows), s, r in zip(results, starts, counts, strict=True):
         fit.outside += outside
@@ -63,12 +64,14 @@ def fit_on_cluster(fit: StreamedFit, rows: ClusterRows, which: str, kept_counts,
             here = (fit.plan.anchors >= s) & (fit.plan.anchors < s + r)
             fit.anchor_rows[here] = anchor_rows[here]
     if fit.finish_anchors():
-        found = rows.compute([delayed(passes.neighbours)(p, s, fit, w)
+        shared = delayed(fit, pure=True)
+        found = rows.compute([delayed(passes.neighbours)(p, s, shared, w)
                               for p, s, w in zip(rows.parts, starts, select, strict=True)])
         for nearest in found:
             fit.nearest.merge(nearest)
         fit.finish_neighbours()
-    level = [delayed(passes.factor)(p, fit, w) for p, w in zip(rows.parts, select, strict=True)]
+    shared = delayed(fit, pure=True)
+    level = [delayed(passes.factor)(p, shared, w) for p, w in zip(rows.parts, select, strict=True)]
     while len(level) > 1:
         pairs = [delayed(passes.combine)(a, b) for a, b in zip(level[::2], level[1::2], strict=False)]
         level = pairs + ([level[-1]] if len(level) % 2 else [])
@@ -81,8 +84,8 @@ def figures_on_cluster(model, task: str, rows: ClusterRows, which: str, fraction
     from dask import delayed
 
     select = [(which, g, fraction, seed) for g in rows.starts()]
-    sums = MetricSums(task)
-    for part in rows.compute([delayed(passes.figures)(p, model, task, w)
+    sums, shared = MetricSums(task), delayed(model, pure=True)
+    for part in rows.compute([delayed(passes.figures)(p, shared, task, w)
                               for p, w in zip(rows.parts, select, strict=True)]):
         sums.merge(part)
     return sums.result()
