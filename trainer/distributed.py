@@ -12,6 +12,7 @@ A worker that dies makes the run fail with one line (Dask retries a task on anot
 
 from __future__ import annotations
 
+import logging
 from contextlib import contextmanager
 
 import numpy as np
@@ -102,7 +103,8 @@ def connect(address: str):
         text = address.partition(":")[2] or "2"
         if not text.isdigit() or int(text) < 1:
             raise NodecastError(f"--cluster local:N takes a positive number of workers, got {address!r}")
-        with LocalCluster(n_workers=int(text), threads_per_worker=1, dashboard_address=None) as cluster:
+        with LocalCluster(n_workers=int(text), threads_per_worker=1, dashboard_address=None,
+                          silence_logs=logging.ERROR) as cluster:  # keep stderr to our one line
             with Client(cluster) as client:
                 yield client
         return
