@@ -140,5 +140,9 @@ def train_on_cluster(data, job, address: str, chunk_rows=None, progress=None):
     from nodecast.trainer.frames import file_partitions
 
     with connect(address), worker_failures():
-        header, rows = file_partitions(data, job, chunk_rows)
-        return ClusterTraining(header, rows, job).run()
+        try:
+            header, rows = file_partitions(data, job, chunk_rows)
+            return ClusterTraining(header, rows, job).run()
+        except (ValueError, TypeError) as exc:  # a cell the workers' reader refused
+            text = str(exc).rpartition("Original Message:")[2]
+            raise NodecastError(f"{data}: {' '.join(text.split())} (read on the cluster)") from None

@@ -1,0 +1,71 @@
+"""The cluster code path run by Dask's synchronous scheduler (no worker processes, so it is fast):
+partition passes give the single-process model, and bad cells read by the workers' reader give one
+line and exit status 2. The real LocalCluster runs are in test_cluster.py (slow)."""
+
+from __future__ import annotations
+
+from contextlib import contextmanager
+
+import numpy as np
+import pytest
+
+dask = pytest.importorskip("dask")
+pytest.importorskip("pandas")
+
+from nodecast.compiler.cli import main  # noqa: E402
+from nodecast.compiler.csvio import read_table  # noqa: E402
+from nodecast.trainer import distributed, frames  # noqa: E402
+from nodecast.trainer.training import TrainingJob, train  # noqa: E402
+
+
+@pytest.fixture
+def synchronous(monkeypatch):
+    @contextmanager
+    def connect(address):
+        with dask.config.set(scheduler="sync"):
+            yield None
+
+    monkeypatch.setattr(distributed, "connect", connect)
+    monkeypatch.setattr(frames, "BLOCK_BYTES", 8_000)  # about 5 partitions of a small file
+
+
+def _log(path, rows=900, bad=None):
+    """An invented pump log: speed, head and a power reading."""
+    rng = np.random.default_rng(5)
+    X = rng.uniform(0, 1, (rows, 2))
+    power = X[:, 0] ** 3 + 0.5 * X[:, 1]
+    lines = ["speed,head,power"] + [f"{a!r},{b!r},{p!r}" for (a, b), p in
+                                    zip(X.tolist(), power.tolist(), strict=True)]
+    if bad is not None:
+        lines[bad] = "0.5,n/a,0.25"
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return path
+
+
+def test_partition_passes_give_the_single_process_model(tmp_path, synchronous):
+    path = _log(tmp_path / "pump.csv")
+    job = TrainingJob(targets=("power",), params={"n_nodes": 40}, seed=7)
+    single = train(read_table(path), job)
+    clustered = distributed.train_on_cluster(path, job, "sync")
+    a, b = single.network, clustered.network
+    assert np.array_equal(a.hidden_weights, b.hidden_weights)
+    assert np.array_equal(a.hidden_biases, b.hidden_biases)
+    assert np.max(np.abs(a.output_weights - b.output_weights)) <= 1e-10 * np.max(np.abs(a.output_weights))
+    assert clustered.metadata["metrics"]["validation"]["rows"] == single.metadata["metrics"]["validation"]["rows"]
+    assert clustered.metadata["diagnostics"] == single.metadata["diagnostics"]
+
+
+def test_a_bad_cell_read_on_the_cluster_is_one_line(tmp_path, synchronous, capsys):
+    path = _log(tmp_path / "pump.csv", bad=700)
+    out = tmp_path / "pump.ncz"
+    with pytest.raises(SystemExit) as stop:
+        main(["train", str(path), "--target", "power", "--cluster", "sync", "-o", str(out)])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert stop.value.code == 2 and not out.exists()
+    assert len(err) == 1 and "n/a" in err[0] and "pump.csv" in err[0]
+
+
+def test_the_small_file_is_split_into_several_partitions(tmp_path, synchronous):
+    job = TrainingJob(targets=("power",))
+    _, rows = frames.file_partitions(_log(tmp_path / "pump.csv"), job)
+    assert len(rows.parts) >= 4 and sum(rows.counts()) == 900
