@@ -74,7 +74,7 @@ class ClusterTraining(StreamedTraining):
                  for p, s in zip(self.rows.parts, self.rows.starts(), strict=True)]
         domain, self.all, self.kept = DomainStats(self.features, job.domain), RowStats(), RowStats()
         first_values, self.kept_counts = None, []
-        for part_domain, every, kept, first in self.rows.compute(tasks):
+        for part_domain, every, kept, first in self.rows.compute(tasks, "reading"):
             domain.merge(part_domain)
             self.all.merge(every)
             self.kept.merge(kept)

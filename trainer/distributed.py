@@ -26,13 +26,61 @@ from nodecast.trainer.streamed_fit import StreamedFit
 class ClusterRows:
     """Row partitions of a table on a cluster: Dask delayed objects, each (X, Y or labels)."""
 
-    def __init__(self, parts, lengths=None) -> None:
-        self.parts, self.lengths = list(parts), lengths
+    def __init__(self, parts, lengths=None, progress=None) -> None:
+        self.parts, self.lengths, self.progress = list(parts), lengths, progress
 
-    def compute(self, tasks):
+    def compute(self, tasks, what: str | None = None):
+        """Results of ``tasks`` in order; with ``what`` (one task per partition), the pass's
+        progress is shown where there is a terminal and a distributed client."""
         import dask
 
-        return dask.compute(*tasks)
+        client = self._client() if what and self.lengths is not None else None
+        if client is None:
+            return dask.compute(*tasks)
+        from dask.distributed import as_completed
+
+        futures = client.compute(list(tasks))
+        index = {future.key: i for i, future in enumerate(futures)}
+        self.progress.start(what, sum(self.lengths))
+        for future in as_completed(futures):
+            self.progress.advance(self.lengths[index[future.key]])
+        self.progress.done()
+        return client.gather(futures)
+
+    def reduce(self, tasks, combine, what: str):
+        """``combine`` folded over the results of ``tasks`` (one per partition) by a binary tree
+        whose nodes run on the workers: one result."""
+        from dask import delayed
+
+        client = self._client() if self.lengths is not None else None
+        if client is None:
+            level = list(tasks)
+            while len(level) > 1:
+                pairs = [delayed(combine)(a, b) for a, b in zip(level[::2], level[1::2], strict=False)]
+                level = pairs + ([level[-1]] if len(level) % 2 else [])
+            return self.compute(level)[0]
+        from dask.distributed import as_completed
+
+        level = client.compute(list(tasks))
+        index = {future.key: i for i, future in enumerate(level)}
+        self.progress.start(what, sum(self.lengths))
+        for future in as_completed(level):
+            self.progress.advance(self.lengths[index[future.key]])
+        self.progress.done()
+        while len(level) > 1:
+            pairs = [client.submit(combine, a, b) for a, b in zip(level[::2], level[1::2], strict=False)]
+            level = pairs + ([level[-1]] if len(level) % 2 else [])
+        return level[0].result()
+
+    def _client(self):
+        if self.progress is None or self.progress.stream is None:
+            return None
+        try:
+            from dask.distributed import get_client
+
+            return get_client()
+        except (ImportError, ValueError):
+            return None
 
     def counts(self) -> list[int]:
         if self.lengths is None:
@@ -56,7 +104,7 @@ def fit_on_cluster(fit: StreamedFit, rows: ClusterRows, which: str, kept_counts,
     starts = rows.starts(counts)
     select = [(which, g, fraction, seed) for g in global_starts]
     results = rows.compute([delayed(passes.anchors)(p, s, shared, w)
-                            for p, s, w in zip(rows.parts, starts, select, strict=True)])
+                            for p, s, w in zip(rows.parts, starts, select, strict=True)], "anchors")
     for (outside, low, high, anchor_rows), s, r in zip(results, starts, counts, strict=True):
         fit.outside += outside
         if fit.plan is not None:
@@ -67,16 +115,14 @@ def fit_on_cluster(fit: StreamedFit, rows: ClusterRows, which: str, kept_counts,
     if fit.finish_anchors():
         shared = delayed(fit, pure=True)
         found = rows.compute([delayed(passes.neighbours)(p, s, shared, w)
-                              for p, s, w in zip(rows.parts, starts, select, strict=True)])
+                              for p, s, w in zip(rows.parts, starts, select, strict=True)],
+                             "neighbours")
         for nearest in found:
             fit.nearest.merge(nearest)
         fit.finish_neighbours()
     shared = delayed(fit, pure=True)
-    level = [delayed(passes.factor)(p, shared, w) for p, w in zip(rows.parts, select, strict=True)]
-    while len(level) > 1:
-        pairs = [delayed(passes.combine)(a, b) for a, b in zip(level[::2], level[1::2], strict=False)]
-        level = pairs + ([level[-1]] if len(level) % 2 else [])
-    factor, ranges = rows.compute(level)[0]
+    factors = [delayed(passes.factor)(p, shared, w) for p, w in zip(rows.parts, select, strict=True)]
+    factor, ranges = rows.reduce(factors, passes.combine, "factor")
     fit.estimator._solve_output(factor, ranges)
     return fit.estimator
 
@@ -87,7 +133,7 @@ def figures_on_cluster(model, task: str, rows: ClusterRows, which: str, fraction
     select = [(which, g, fraction, seed) for g in rows.starts()]
     sums, shared = MetricSums(task), delayed(model, pure=True)
     for part in rows.compute([delayed(passes.figures)(p, shared, task, w)
-                              for p, w in zip(rows.parts, select, strict=True)]):
+                              for p, w in zip(rows.parts, select, strict=True)], "figures"):
         sums.merge(part)
     return sums.result()
 
@@ -142,6 +188,7 @@ def train_on_cluster(data, job, address: str, chunk_rows=None, progress=None):
     with connect(address), worker_failures():
         try:
             header, rows = file_partitions(data, job, chunk_rows)
+            rows.progress = progress
             return ClusterTraining(header, rows, job).run()
         except (ValueError, TypeError) as exc:  # a cell the workers' reader refused
             text = str(exc).rpartition("Original Message:")[2]

@@ -73,6 +73,24 @@ def test_cluster_train_is_the_single_process_model(cluster, tmp_path, monkeypatc
         assert clustered.metadata["metrics"] == single.metadata["metrics"]  # counts: exact
 
 
+def test_progress_of_cluster_passes_and_the_same_model(cluster, tmp_path, monkeypatch):
+    import io
+    import itertools
+
+    from nodecast.trainer.progress import Progress
+
+    path = _bench(tmp_path / "bench.csv")
+    monkeypatch.setattr(frames, "BLOCK_BYTES", 40_000)
+    job = TrainingJob(targets=("rise",), features=("flow", "load", "drift"), params={"n_nodes": 40})
+    stream, ticks = io.StringIO(), itertools.count()
+    shown = train_on_cluster(path, job, cluster.scheduler.address,
+                             progress=Progress(stream, clock=lambda: float(next(ticks))))
+    _same_model(train(read_table(path), job), shown)
+    text = stream.getvalue()
+    for what in ("reading", "anchors", "neighbours", "factor", "figures"):
+        assert f"{what}: 2,400 rows of 2,400" in text
+
+
 def test_estimators_take_dask_arrays_and_dataframes(cluster):
     rng = np.random.default_rng(1)
     X = rng.uniform(size=(3000, 4))
