@@ -27,7 +27,8 @@ def emit(bundle: Bundle, to: str, path=None, overwrite: bool = False, max_bytes:
 
     artifact = render(bundle, to, **options)
     estimate = artifact.summary.get("estimate", {}).get("max_abs_error", 0.0)
-    if not math.isfinite(estimate):
+    bound = max(artifact.summary.get("certificate", {}).get("certified_bound", [0.0]))
+    if not (math.isfinite(estimate) and math.isfinite(bound)):
         raise NodecastError(f"the {to} {artifact.summary.get('precision', '')} artifact's error "
                             "cannot be bounded (the model's values overflow that precision); "
                             "choose a wider precision or a better-regularised model")

@@ -275,14 +275,37 @@ def emit(model, target, precision, out_of_domain, flag_out_of_domain, opset, pre
     max_bytes = None if max_size is None else parse_size(max_size)
     artifact = emit_artifact(load_bundle(model), target, output, overwrite=overwrite,
                              max_bytes=max_bytes, **options)
-    estimate = artifact.summary.get("estimate", {})
-    click.echo(f"wrote {output} ({target}, {artifact.summary.get('precision', '?')}); estimated max "
-               f"abs error {estimate.get('max_abs_error', float('nan')):.3e}", err=True)
+    click.echo(emitted_line(output, target, artifact.summary), err=True)
+    warning = budget_warning(load_bundle(model), artifact.summary)
+    if warning:
+        click.echo(f"warning: {warning}", err=True)
     if "footprint" in artifact.summary:
         from nodecast.compiler.toolchain import format_footprint
 
         click.echo(format_footprint(artifact.summary["footprint"], artifact.summary["weight_bytes"]),
                    err=True)
+
+
+def emitted_line(output, target: str, summary: dict) -> str:
+    bound = max(summary["certificate"]["certified_bound"])
+    typical = summary.get("estimate", {}).get("max_abs_error", float("nan"))
+    return (f"wrote {output} ({target}, {summary.get('precision', '?')}); certified max abs error "
+            f"{bound:.3g} (typical {typical:.3g})")
+
+
+def budget_warning(bundle, summary: dict) -> str | None:
+    """One line when the certified bound exceeds the default accuracy budget, else None."""
+    from nodecast.compiler.bounds.budget import accuracy_budget
+
+    budget = accuracy_budget(bundle)
+    bound = summary["certificate"]["certified_bound"]
+    over = budget.exceeded_by(bound)
+    if not over:
+        return None
+    o = over[0]
+    return (f"the certified bound {bound[o]:.3g} of output {o} exceeds the accuracy budget "
+            f"{budget.per_output[o]:.3g} ({budget.rule}); verify will fail this artifact unless "
+            "given --abs-tol")
 
 
 @cli.command(epilog=_epilog("verify"))

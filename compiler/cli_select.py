@@ -152,7 +152,7 @@ def _summary(result, bundle, output) -> str:
                      + ", ".join(f"{v:.4g}" for v in final["rmse_mean"]))
     if result.estimate is not None:
         rejected = sum(not p.meets_budget for p in result.points)
-        parts.append(f"estimated {result.estimate.precision} export error "
+        parts.append(f"certified {result.estimate.precision} export error "
                      f"{result.estimate.max_abs:.3g}"
                      + (f" (tolerance {result.settings.tolerance:g}; {rejected} of "
                         f"{len(result.points)} grid points rejected)"

@@ -19,8 +19,9 @@ The arithmetic, for word size W (16 or 32), n inputs, M nodes and t outputs:
    output word, Q(result_frac[o]).
 
 Every scale comes from ranges that hold on the declared domain (|t| <= 1, the weights' magnitudes,
-the outputs' range over deterministic probes), and every accumulator bound is checked here, so the
-generated code cannot overflow; values past a bound saturate.
+the outputs' range over deterministic probes, widened to a certified max |y| over the whole domain
+(:func:`nodecast.compiler.bounds.fixed.certified_ceiling`) so that no output saturates there), and
+every accumulator bound is checked here, so the generated code cannot overflow.
 """
 
 from __future__ import annotations
@@ -208,8 +209,24 @@ def make_plan(net: Network, precision: str, table_size: int | None = None) -> Fi
                      bits - 2, **_hidden_layer(net, bits, frac, centre, half), table=table,
                      table_size=size, table_step_bits=step_bits, table_error=table_error,
                      **_output_layer(net, bits))
+    plan = _certified_result_formats(plan, net)
     _check_bounds(plan)
     return plan
+
+
+def _certified_result_formats(plan: FixedPlan, net: Network) -> FixedPlan:
+    """Output formats wide enough for a certified max |y| over the domain (so no output can
+    saturate there), when that ceiling exceeds what the probes suggested."""
+    from dataclasses import replace
+
+    from nodecast.compiler.bounds.fixed import certified_ceiling
+
+    ceiling = certified_ceiling(plan, net)
+    result = tuple(min(f, _frac_bits(float(c), plan.word_bits - 1), acc)
+                   for f, c, acc in zip(plan.result_frac, ceiling, plan.output_acc_frac, strict=True))
+    result = tuple(f - 1 if (2 ** (plan.word_bits - 1) - 1) * 2.0**-f < c else f
+                   for f, c in zip(result, ceiling, strict=True))
+    return plan if result == plan.result_frac else replace(plan, result_frac=result)
 
 
 def _hidden_layer(net: Network, bits: int, frac, centre, half) -> dict:

@@ -76,7 +76,24 @@ def describe_bundle(bundle, precision: str | None = None) -> dict:
     }
     if precision:
         description["estimate"] = numerics.estimate(net, precision).as_dict()
+        description.update(_certified(bundle, precision))
     return description
+
+
+def _certified(bundle, precision: str) -> dict:
+    """The certified bound of every target's default artifact at ``precision`` (the C one under
+    ``certified_bound``) and the accuracy budget it is judged against."""
+    from nodecast.compiler.bounds import certify
+    from nodecast.compiler.bounds.budget import accuracy_budget
+    from nodecast.compiler.bounds.certificate import TARGET_PRECISIONS
+
+    net = bundle.network
+    by_target = {target: certify(net, target, precision).as_dict()
+                 for target, precisions in TARGET_PRECISIONS.items()
+                 if precision in precisions and target != "reference"}
+    budget = accuracy_budget(bundle)
+    return {"certified_bound": by_target["c"]["certified_bound"],
+            "certified_bound_by_target": by_target, "accuracy_budget": budget.as_dict()}
 
 
 def _span(ranges: dict) -> dict:
@@ -108,9 +125,15 @@ def format_description(d: dict) -> str:
     if diagnostics:
         lines.append("fit diagnostics: " + ", ".join(f"{k} {v}" for k, v in sorted(diagnostics.items())))
     if "estimate" in d:
-        e = d["estimate"]
-        lines.append(f"estimated {e['precision']} export error: max abs {e['max_abs_error']:.3e} "
-                     f"(worst-case bound {max(e['worst_case_bound']):.3e})")
+        e, budget = d["estimate"], d["accuracy_budget"]
+        for target, record in d["certified_bound_by_target"].items():
+            bounds = ", ".join(f"{v:.3g}" for v in record["certified_bound"])
+            lines.append(f"certified {e['precision']} error of the {target} artifact: {bounds} "
+                         f"(assumes {record['assumes']})")
+        lines.append(f"accuracy budget: {', '.join(f'{v:.3g}' for v in budget['per_output'])} "
+                     f"({budget['rule']})")
+        lines.append(f"typical {e['precision']} error (an estimate, not a bound): "
+                     f"{e['max_abs_error']:.3g}")
     return "\n".join(lines)
 
 

@@ -4,7 +4,7 @@ A unit draws the hidden layer of max(M) nodes once from the fold's training rows
 into one QR factor in a single pass, and scores every (ridge, M) pair on the fold's validation rows:
 the first M nodes are the M-node model, and every M comes from one factorisation per ridge value
 (:mod:`nodecast.trainer.prefix_solve`). With a target precision it also estimates each fold model's
-export error (:func:`nodecast.compiler.numerics.estimate`) on the probes of the declared domain.
+export error (the certified bound, coarsely refined) over the declared domain.
 """
 
 from __future__ import annotations
@@ -13,7 +13,6 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from nodecast.compiler import numerics
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import Network
 from nodecast.trainer import solvers
@@ -91,10 +90,14 @@ def _evaluate(X, Y, split, declared, settings: UnitSettings, probes) -> UnitScor
 
 
 def _estimate(net: Network, precision: str, probes) -> float:
-    """The estimate's max over outputs; infinity for a model the precision cannot represent
-    (a fixed-point plan whose accumulators could overflow), which no tolerance accepts."""
+    """The certified bound's max over outputs (coarse refinement, see
+    :func:`nodecast.compiler.bounds.certificate.screening_bound`); infinity for a model the
+    precision cannot represent (a fixed-point plan whose accumulators could overflow), which no
+    tolerance accepts."""
+    from nodecast.compiler.bounds.certificate import screening_bound
+
     try:
-        return numerics.estimate(net, precision, X=probes).max_abs
+        return screening_bound(net, precision)
     except NodecastError:
         return float("inf")
 

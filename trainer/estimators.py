@@ -118,8 +118,9 @@ class _RandomNodeBase(BaseEstimator):
         self.coef_, self.intercept_ = solvers.solve(factor, self.ridge_)
 
     def _float32_error(self, factor):
-        """callable(ridge) -> estimated float32 export error (normalised units) of that solution."""
-        from nodecast.compiler import numerics
+        """callable(ridge) -> certified float32 export error of the default C artifact (normalised
+        units) of that solution, from a coarse refinement (certified, a little looser)."""
+        from nodecast.compiler.bounds.certificate import screening_bound
         from nodecast.compiler.ir import Network
 
         n, t = self.hidden_weights_.shape[1], factor.qty.shape[1]
@@ -133,7 +134,7 @@ class _RandomNodeBase(BaseEstimator):
                 output_offset=np.zeros(t), output_scale=np.ones(t), domain_low=self.domain_low_,
                 domain_high=self.domain_high_, feature_names=[f"x{i}" for i in range(n)],
                 target_names=[f"y{i}" for i in range(t)])
-            return numerics.estimate(net, "float32").max_abs
+            return screening_bound(net, "float32")
 
         return error
 

@@ -16,7 +16,6 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from nodecast.compiler import numerics
 from nodecast.trainer import solvers
 from nodecast.trainer.cv_units import fold_network
 from nodecast.trainer.folds import draw_layer, hidden_outputs, split_data
@@ -103,7 +102,9 @@ class _FoldGrowth:
     def estimate(self, columns, beta, bias, precision, probes) -> float:
         layer = _subset(self.layer, self.columns + columns)
         net = fold_network(layer, len(layer.biases), beta, bias, self.data, self.activation)
-        return numerics.estimate(net, precision, X=probes).max_abs
+        from nodecast.compiler.bounds.certificate import screening_bound
+
+        return screening_bound(net, precision)
 
     def commit(self, columns, proposal) -> None:
         self.Q, self.R, self.qty = proposal[:3]

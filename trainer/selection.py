@@ -20,6 +20,7 @@ from typing import Any
 import numpy as np
 
 from nodecast.compiler import numerics
+from nodecast.compiler.bounds import Certificate
 from nodecast.compiler.errors import NodecastError
 from nodecast.trainer.cv_units import UnitSettings, evaluate_unit
 from nodecast.trainer.folds import fold_indices, input_box
@@ -55,7 +56,7 @@ class SelectionResult:
     settings: SearchSettings
     grid: Grid
     model: Any = None
-    estimate: numerics.ErrorEstimate | None = None
+    estimate: Certificate | None = None
     refits: int = 1
     growth: Any = None
     diagnostics: dict = field(default_factory=dict)
@@ -91,7 +92,7 @@ def select(X, y, nodes=(50, 100, 250), neighbors=(None,), slope_scales=(1.0,), r
         take the range of the rows being fitted (each fold's training rows; all rows for the
         final model).
     precision, tolerance : reject points whose estimated export error in ``precision`` ("float32",
-        and whatever :func:`nodecast.compiler.numerics.estimate` supports) exceeds ``tolerance``
+        and whatever :func:`nodecast.compiler.bounds.certify` supports for C) exceeds ``tolerance``
         (target units); a precision alone only reports the final model's estimate.
     n_jobs : int or None, parallel units (joblib); None: every core once the units' work
         (N_train * max(M)^2 summed) exceeds ``PARALLEL_WORK``, else 1. The result is the same for
@@ -282,9 +283,11 @@ def _final_estimate(network, precision):
     if precision is None:
         return None
     try:
-        return numerics.estimate(network, precision)
+        from nodecast.compiler.bounds import certify
+
+        return certify(network, "c", precision)
     except ValueError as exc:
-        raise NodecastError(f"cannot estimate the export error: {exc}") from None
+        raise NodecastError(f"cannot bound the export error: {exc}") from None
 
 
 def _no_point_message(settings, estimate: float, point: GridPoint, refitted: bool = False) -> str:

@@ -17,7 +17,14 @@ from nodecast.compiler.backends import Artifact
 from nodecast.compiler.backends.c_board import board_files
 from nodecast.compiler.backends.c_fixed import fixed_context
 from nodecast.compiler.backends.c_float import float_context
-from nodecast.compiler.backends.c_format import c_comment, c_string, check_prefix, double_literal
+from nodecast.compiler.backends.c_format import (
+    _with_point,
+    c_comment,
+    c_string,
+    check_prefix,
+    double_literal,
+)
+from nodecast.compiler.bounds import certify
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.fixedpoint import FIXED_PRECISIONS
 from nodecast.compiler.ir import OUT_OF_DOMAIN_POLICIES
@@ -64,11 +71,16 @@ def render(bundle, precision: str = "float32", prefix: str = "model", out_of_dom
         estimate = fixed_estimate(net, precision, table_size=context["plan"].table_size)
     else:
         estimate = numerics.estimate(net, precision, activation_error=context["activation_error"])
+    certificate = certify(net, "c", precision, activation_impl=impl,
+                          table_size=context.get("table_size") if not fixed
+                          else context["plan"].table_size)
     context.update(_common_context(bundle, precision, prefix, out_of_domain, impl, estimate,
                                    context))
+    context.update(_bound_context(net, certificate))
     files = {f"{prefix}.h": _render_template("model.h.j2", context),
              f"{prefix}.c": _render_template("model.c.j2", context)}
     summary = {"precision": precision, "estimate": estimate.as_dict(), "prefix": prefix,
+               "certificate": certificate.as_dict(),
                "activation_impl": impl, "activation_error": context["activation_error"],
                "out_of_domain": out_of_domain, "weight_bytes": context["weight_bytes"],
                "scratch_bytes": context["scratch_bytes"]}
@@ -121,6 +133,25 @@ def _common_context(bundle, precision, prefix, policy, impl, estimate, context) 
         "return_text": _return_text(fixed, policy, upper),
         "class_names": [c_string(label) for label in net.class_labels],
     }
+
+
+def stated_activation_error(net, precision: str, impl: str | None, table_size: int | None) -> float:
+    """The ACTIVATION_ERROR an artifact with these options states (what verify expects)."""
+    if precision in FIXED_PRECISIONS:
+        from nodecast.compiler.fixedpoint import make_plan
+
+        return make_plan(net, precision, table_size).table_error
+    from nodecast.compiler.backends.c_float import activation_error
+
+    return activation_error(impl or "libm", precision, table_size)
+
+
+def _bound_context(net, certificate) -> dict:
+    lines = [f"y[{o}] {c_comment(name)}: {value:.3g} [{c_comment(unit)}]"
+             for o, (name, unit, value) in enumerate(zip(net.target_names, net.target_units,
+                                                         certificate.per_output, strict=True))]
+    return {"bound_lines": lines, "bound_assumes": certificate.assumption,
+            "bound_literals": [_with_point(repr(float(v))) for v in certificate.per_output]}
 
 
 def _count(number: int, noun: str) -> str:

@@ -9,7 +9,8 @@ Activation implementations (every node evaluates tanh; a logistic node is 1/2 + 
 
 * ``libm``: the C library's tanh/tanhf.
 * ``rational``: x P(x^2) / Q(x^2) with P, Q of degree 4 in x^2, fitted by us (Lawson-weighted least
-  squares towards the minimax fit on [0, 9]) and clipped at |x| = 9. No libm, no branches.
+  squares towards the minimax fit on [0, 9]) and clipped at |x| = 9. No libm, no branches. Its
+  error is proven in :mod:`nodecast.compiler.bounds.activations` (exhaustively in float32).
 * ``table``: a table over [0, 8] with linear interpolation and odd symmetry, entries offset so the
   interpolation error is zero-mean (see :mod:`nodecast.compiler.fixedpoint`). No libm.
 """
@@ -25,7 +26,6 @@ from nodecast.compiler.backends.c_format import (
     float_literal,
 )
 from nodecast.compiler.errors import NodecastError
-from nodecast.compiler.numerics import UNIT_ROUNDOFF
 from nodecast.compiler.passes.scaling import (
     folded_input_layer,
     folded_output_layer,
@@ -42,23 +42,15 @@ RATIONAL_NUMERATOR = tuple(float.fromhex(h) for h in (
 RATIONAL_DENOMINATOR = tuple(float.fromhex(h) for h in (
     "0x1p+0", "0x1.de46423730824p-2", "0x1.a76503333f2b9p-6", "0x1.57074c4f6fd98p-12",
     "0x1.9d87c6bfe8000p-21"))
-# Max |x P(x^2)/Q(x^2) - tanh x| over all x in exact arithmetic, measured at design time on 2e6
-# points of [0, 10] (1.85e-8, the clipped tail included) and rounded up; evaluation adds rounding.
-RATIONAL_APPROXIMATION_ERROR = 2.0e-8
-# Roundings of the evaluation beyond the one that every term's estimate already counts; libm's
-# tanh is taken to be within the rounding of its result (glibc and newlib state about 1 ulp).
-_EVALUATION_ROUNDINGS = {"libm": 0.0, "rational": 8.0, "table": 4.0}
 FLOAT_TABLE_REACH = 8.0
 
 
-def activation_error(impl: str, precision: str, table: np.ndarray | None = None) -> float:
-    """Stated max abs error of the activation (tanh form; a logistic node halves it) in C."""
-    rounding = _EVALUATION_ROUNDINGS[impl] * UNIT_ROUNDOFF[precision]
-    if impl == "rational":
-        return RATIONAL_APPROXIMATION_ERROR + rounding
-    if impl == "table":
-        return _float_table_error(table) + rounding
-    return rounding
+def activation_error(impl: str, precision: str, table_size: int | None = None) -> float:
+    """Stated max abs error of the tanh ``impl`` evaluates in C (a logistic node halves it): proven
+    for rational and table, assumed for libm (see :mod:`nodecast.compiler.bounds.activations`)."""
+    from nodecast.compiler.bounds.programs import c_float_activation
+
+    return c_float_activation(precision, impl, table_size)[1]
 
 
 def float_table(size: int, precision: str) -> np.ndarray:
@@ -68,15 +60,6 @@ def float_table(size: int, precision: str) -> np.ndarray:
     th = np.tanh(np.arange(size + 1) * step)
     values = th + step**2 / 12.0 * 2.0 * th * (1.0 - th * th)
     return values.astype(np.float32).astype(np.float64) if precision == "float32" else values
-
-
-def _float_table_error(table: np.ndarray) -> float:
-    size = len(table) - 1
-    frac = np.linspace(0.0, 1.0, 33)
-    knots = (np.arange(size)[:, None] + frac[None, :]) * (FLOAT_TABLE_REACH / size)
-    line = table[:-1, None] * (1.0 - frac) + table[1:, None] * frac
-    interp = np.max(np.abs(line - np.tanh(knots)))
-    return float(max(interp, 1.0 - table[-1]) * 1.02)
 
 
 def float_context(net, precision: str, impl: str, table_size: int | None) -> dict:
@@ -118,7 +101,7 @@ def float_context(net, precision: str, impl: str, table_size: int | None) -> dic
     context["scratch_bytes"] = real_bytes * (net.n_features + net.n_nodes + OUTPUT_LANES)
     context["weight_bytes"] = real_bytes * (weights.size + biases.size + out_weights.size
                                             + out_bias.size + (0 if table is None else table.size))
-    context["activation_error"] = activation_error(impl, precision, table)
+    context["activation_error"] = activation_error(impl, precision, context.get("table_size"))
     return context
 
 

@@ -21,6 +21,7 @@ import json
 import numpy as np
 
 from nodecast.compiler.backends import Artifact
+from nodecast.compiler.bounds import certify
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.numerics import estimate
 from nodecast.compiler.passes.scaling import (
@@ -143,6 +144,7 @@ def build_model(bundle, precision="float32", opset=DEFAULT_OPSET, out_of_domain=
     graph = helper.make_graph(g.nodes, "nodecast_network", inputs, outputs, initializer=g.initializers)
     summary = {"precision": precision, "opset": opset, "input_scaling": scaling,
                "out_of_domain": out_of_domain, "estimate": estimate(net, precision).as_dict(),
+               "certificate": certify(net, "onnx", precision).as_dict(),
                "nodes": len(g.nodes)}
     model = helper.make_model(graph, producer_name="nodecast", producer_version=__version__,
                               opset_imports=[helper.make_opsetid("", opset)],
@@ -171,6 +173,8 @@ def _metadata(bundle, summary) -> dict[str, str]:
         "nodecast.out_of_domain": summary["out_of_domain"],
         "nodecast.input_scaling": summary["input_scaling"],
         "nodecast.error_estimate": json.dumps(summary["estimate"]["per_output"]),
+        "nodecast.certified_bound": json.dumps(summary["certificate"]["certified_bound"]),
+        "nodecast.bound_assumes": summary["certificate"]["assumes"],
     }
 
 
@@ -192,7 +196,10 @@ def _doc(bundle, summary) -> str:
         f"Inputs outside the domain: {summary['out_of_domain']}. Input scaling "
         f"{summary['input_scaling']} (folded unless that grows pre-activation rounding over "
         f"{FOLD_GROWTH_LIMIT:g}x).",
-        f"Estimated max abs error vs the float64 model, per output: "
+        f"Certified max abs error vs the trained model over the declared domain, per output: "
+        f"{summary['certificate']['certified_bound']!r} (assumes "
+        f"{summary['certificate']['assumes']}).",
+        f"Typical error (an estimate, not a bound), per output: "
         f"{summary['estimate']['per_output']!r}.",
         "A fitted model is not a safety function: verify it on the declared input domain, guard "
         "inputs outside it, and follow the functional-safety standards, codes and licensed "

@@ -23,6 +23,7 @@ import math
 import numpy as np
 
 from nodecast.compiler.backends import Artifact
+from nodecast.compiler.bounds import certify
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import OUT_OF_DOMAIN_POLICIES
 from nodecast.compiler.numerics import estimate
@@ -54,15 +55,17 @@ def render(bundle, precision: str = "float64", out_of_domain: str = "pass", **_i
                             f"{', '.join(OUT_OF_DOMAIN_POLICIES)}, not {out_of_domain!r}")
     net = bundle.network
     error = estimate(net, precision)
-    text = render_template("python", TEMPLATE, **_context(bundle, error, out_of_domain))
+    certificate = certify(net, "python", precision)
+    text = render_template("python", TEMPLATE, **_context(bundle, error, out_of_domain, certificate))
     data = text.encode("utf-8")
     summary = {"precision": precision, "out_of_domain": out_of_domain, "estimate": error.as_dict(),
+               "certificate": certificate.as_dict(),
                "bytes": len(data), "nodes": net.n_nodes, "features": net.n_features,
                "outputs": net.n_outputs}
     return Artifact("python", {FILE_NAME: data}, True, summary)
 
 
-def _context(bundle, error, out_of_domain: str) -> dict:
+def _context(bundle, error, out_of_domain: str, certificate) -> dict:
     net = bundle.network
     logistic = net.activation == "logistic"
     halving = 0.5 if logistic else 1.0
@@ -80,7 +83,9 @@ def _context(bundle, error, out_of_domain: str) -> dict:
         "hidden": float_rows(hidden), "output_weights": float_rows(output_weights),
         "output_bias": float_tuple(output_bias),
         "error_estimate": float_tuple(error.per_output),
-        "docstring": _docstring(bundle, error, out_of_domain),
+        "certified_bound": float_tuple(certificate.per_output),
+        "bound_assumes": repr(certificate.assumption),
+        "docstring": _docstring(bundle, error, out_of_domain, certificate),
     }
     for name in ("feature_names", "feature_units", "target_names", "target_units", "class_labels"):
         context[name] = text_tuple(getattr(net, name))
@@ -154,7 +159,7 @@ def _open_escape(line: str, end: int) -> int:
     return (len(head) - len(head.rstrip("\\"))) % 2
 
 
-def _docstring(bundle, error, out_of_domain: str) -> dict:
+def _docstring(bundle, error, out_of_domain: str, certificate) -> dict:
     net = bundle.network
     features = []
     for i, (name, unit, lo, hi) in enumerate(zip(net.feature_names, net.feature_units,
@@ -162,16 +167,17 @@ def _docstring(bundle, error, out_of_domain: str) -> dict:
         features += docstring_lines(f"{i:<3} {name!r}, unit {unit!r}, domain {float(lo)!r} .. "
                                     f"{float(hi)!r}", "    ", "        ")
     outputs = []
-    rows = zip(net.target_names, net.target_units, error.per_output, strict=True)
-    for i, (name, unit, err) in enumerate(rows):
+    rows = zip(net.target_names, net.target_units, certificate.per_output, error.per_output,
+               strict=True)
+    for i, (name, unit, bound, err) in enumerate(rows):
         label = f", class label {net.class_labels[i]!r}" if net.task == "classification" else ""
-        outputs += docstring_lines(f"{i:<3} {name!r}, unit {unit!r}{label}, estimated max abs "
-                                   f"error {err:.3e}", "    ", "        ")
+        outputs += docstring_lines(f"{i:<3} {name!r}, unit {unit!r}{label}, certified max abs "
+                                   f"error {bound:.3g}, typical {err:.3g}", "    ", "        ")
     example = [float(v) for v in (net.domain_low + net.domain_high) / 2]
     return {
         "features": features, "outputs": outputs,
         "example": docstring_lines(f"predictor.predict({example!r})", "    ", "        "),
         "nodes": net.n_nodes, "activation": net.activation, "policy": out_of_domain,
         "bundle_id": bundle.bundle_id, "version": __version__,
-        "worst_case": f"{max(error.worst_case):.3e}", "probes": error.probes,
+        "assumes": docstring_escape(certificate.assumption), "probes": error.probes,
     }

@@ -42,12 +42,13 @@ from pathlib import Path
 import numpy as np
 
 from nodecast.compiler import numerics
+from nodecast.compiler.bounds.budget import accuracy_budget
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.verify.compare import compare_family, expected_outputs
 from nodecast.compiler.verify.probes import probe_families
 from nodecast.compiler.verify.report import format_table
 from nodecast.compiler.verify.runners import detect_kind, runner
-from nodecast.compiler.verify.tolerance import derive, for_points
+from nodecast.compiler.verify.tolerance import certified_tolerance, check_stated
 
 __all__ = ["Report", "check", "format_table", "verify"]
 
@@ -95,42 +96,50 @@ def _run_labels(module, path: Path, X: np.ndarray, info: dict, net) -> np.ndarra
     return labels
 
 
-def _tolerances(net, families, wanted, info, abs_tol, rel_tol):
-    """(in-domain tolerance, per-family tolerance list, output range, estimate)."""
-    precision, act_err = info["precision"], info.get("activation_error", 0.0)
-    # clamping leaves in-domain rows as they are, so every policy expects the plain reference there
-    inside = np.vstack([w for f, w in zip(families, wanted, strict=True) if f.inside_domain])
-    out_range = np.maximum(inside.max(axis=0) - inside.min(axis=0), np.finfo(float).tiny)
-    est = numerics.estimate(net, precision, activation_error=act_err)
-    ref = numerics.estimate(net, "float64")
-    tolerance = derive(est, ref, abs_tol, rel_tol, out_range)
+def _tolerances(net, path, families, info):
+    """(in-domain tolerance, per-family tolerance list): the certified bound recomputed from the
+    bundle for the artifact's declared options, over the domain, and under the "pass" policy over
+    the box that also holds each outside family."""
+    tolerance = certified_tolerance(net, info)
+    check_stated(path, info, tolerance, net)
     per_family = []
     for family in families:
         if family.inside_domain or info["out_of_domain"] != "pass":
             per_family.append(tolerance)
-        else:  # evaluated as given, outside the box the estimate covers
-            per_family.append(for_points(tolerance, numerics.estimate(
-                net, precision, X=family.X, activation_error=act_err),
-                numerics.estimate(net, "float64", X=family.X)))
-    return tolerance, per_family, out_range, est
+            continue
+        low = np.minimum(net.domain_low, np.nanmin(np.where(np.isfinite(family.X), family.X, np.nan),
+                                                   axis=0, initial=np.inf))
+        high = np.maximum(net.domain_high, np.nanmax(np.where(np.isfinite(family.X), family.X,
+                                                              np.nan), axis=0, initial=-np.inf))
+        per_family.append(certified_tolerance(net, info, low, high))
+    return tolerance, per_family
 
 
-def _notes(tolerance, est, results) -> list[str]:
+def _notes(tolerance, budget, results) -> list[str]:
     notes = []
-    low = tolerance.below_estimate()
-    if low:
-        k = low[0]
-        notes.append(f"{tolerance.rule} sets the tolerance to {tolerance.per_output[k]:.3e}, "
-                     f"below this artifact's {tolerance.precision} export-error estimate "
-                     f"{est.per_output[k]:.3e}: rounding alone may exceed it; the derived default "
-                     f"is {tolerance.safety_factor:g} x the estimate + the float64 reference's "
-                     "rounding")
-    failed = [r for r in results if not r["within_tolerance"]]
-    if failed and tolerance.source == "derived":
-        notes.append("errors beyond the derived tolerance mean the artifact does not compute this "
-                     "model (changed weights, another policy, a faulty runtime) or the estimate "
-                     "missed a rounding path; do not ship it")
+    unsound = [r for r in results if not r["within_tolerance"]]
+    if unsound:
+        r = unsound[0]
+        notes.append(f"soundness failure: {r['engine']} {r['family']} measured "
+                     f"{r['max_abs_error']:.3e} at input {list(r['worst_input'] or [])}, above the "
+                     f"certified bound {r['tolerance'][r['worst_output']]:.3e}: the artifact does "
+                     "not compute this model (changed weights or code, another policy, a faulty "
+                     "runtime, or a runtime activation outside what the bound assumes); do not ship it")
+    for o in budget.exceeded_by(tolerance.certified):
+        notes.append(f"accuracy: the certified bound {tolerance.certified[o]:.3e} of output {o} "
+                     f"exceeds the budget {budget.per_output[o]:.3e} ({budget.rule}): the artifact "
+                     "is not proven as good as the model; use a wider precision, another "
+                     "activation implementation or a better-conditioned model (larger ridge)")
     return notes
+
+
+def _measured(results, n_outputs: int) -> list[float]:
+    """Largest measured error per output over every family and engine."""
+    worst = [0.0] * n_outputs
+    for r in results:
+        for o, value in enumerate(r.get("max_abs_error_per_output") or []):
+            worst[o] = max(worst[o], float(value))
+    return worst
 
 
 def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
@@ -155,8 +164,11 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
     info = _describe(module, path, bundle, run_options)
     families = probe_families(net, data, count, seed)
     wanted = [expected_outputs(net, f.X, info["out_of_domain"]) for f in families]
-    tolerance, per_family, out_range, est = _tolerances(net, families, wanted, info, abs_tol,
-                                                        rel_tol)
+    tolerance, per_family = _tolerances(net, path, families, info)
+    inside = np.vstack([w for f, w in zip(families, wanted, strict=True) if f.inside_domain])
+    out_range = np.maximum(inside.max(axis=0) - inside.min(axis=0), np.finfo(float).tiny)
+    budget = accuracy_budget(bundle, abs_tol, rel_tol, out_range)
+    est = numerics.estimate(net, info["precision"], activation_error=info.get("activation_error", 0.0))
     X_all = np.vstack([family.X for family in families])
     engines = list(info.get("engines") or [kind])
     results = []
@@ -172,17 +184,22 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
                                     info.get("input_frac_bits"),
                                     None if labels_all is None else labels_all[rows])
             results.append({"engine": engine, **record})
-    passed = all(r["passed"] for r in results)
+    within_budget = not budget.exceeded_by(tolerance.certified)
+    passed = all(r["passed"] for r in results) and within_budget
     document = {
         "passed": passed, "bundle_id": bundle.bundle_id, "task": net.task,
         "artifact": {**_plain(info), "path": str(path), "kind": kind, "engines": engines},
         "outputs": {"names": list(net.target_names), "units": list(net.target_units)},
         "max_abs_error": max(r["max_abs_error"] for r in results),
         "max_rel_error": max(r["max_rel_error"] for r in results),
-        "tolerance": tolerance.as_dict(), "estimate": est.as_dict(),
+        "tolerance": tolerance.as_dict(), "certified_bound": list(tolerance.certified),
+        "accuracy_budget": budget.as_dict(), "within_budget": within_budget,
+        "sound": all(r["within_tolerance"] for r in results),
+        "measured_max_abs_error": _measured(results, net.n_outputs),
+        "typical_estimate": est.as_dict(),
         "probes": {"seed": seed, "sobol": count, "total": int(X_all.shape[0]),
                    "families": {f.name: int(f.X.shape[0]) for f in families}},
-        "families": results, "notes": _notes(tolerance, est, results),
+        "families": results, "notes": _notes(tolerance, budget, results),
     }
     return Report(passed, document)
 

@@ -130,13 +130,15 @@ def compare_family(net, family, got, want, policy, precision, tol, out_range,
               "compared": int(compared.sum()), "rejected": int(rejected.sum()),
               "policy": policy, "policy_honoured": violation is None, "policy_violation": violation,
               "tolerance": [float(v) for v in tol], "max_abs_error": 0.0, "max_rel_error": 0.0,
-              "worst_input": None, "worst_output": None, "within_tolerance": True}
+              "worst_input": None, "worst_output": None, "within_tolerance": True,
+              "max_abs_error_per_output": [0.0] * np.shape(want)[1]}
     if err.size:
         ratio = err / np.maximum(tol, np.finfo(float).tiny)
         row, col = np.unravel_index(np.argmax(ratio), ratio.shape)
         result.update(max_abs_error=float(err.max()), max_rel_error=float(np.max(err / out_range)),
                       worst_input=[float(v) for v in family.X[compared][row]],
-                      worst_output=int(col), within_tolerance=bool(np.all(err <= tol)))
+                      worst_output=int(col), within_tolerance=bool(np.all(err <= tol)),
+                      max_abs_error_per_output=[float(v) for v in err.max(axis=0)])
     failed_labels = 0
     if net.task == "classification" and err.size:
         result["labels"] = _label_counts(got[compared], want[compared], tol)

@@ -72,15 +72,20 @@ def format_table(report) -> str:
         if r.get("labels", {}).get("label_outputs_wrong"):
             lines.append(f"    {r['labels']['label_outputs_wrong']} label output(s) are not the "
                          "class of the artifact's own highest score")
-    tol = doc["tolerance"]
-    for name, unit, t, e in zip(doc["outputs"]["names"], doc["outputs"]["units"],
-                                tol["per_output"], tol["estimate"], strict=True):
-        lines.append(f"tolerance {name}: {t:.3e} {unit}".rstrip()
-                     + f" ({tol['rule']}; {tol['precision']} estimate {e:.3e})")
+    tol, budget = doc["tolerance"], doc["accuracy_budget"]
+    for name, unit, t, b, limit, measured in zip(
+            doc["outputs"]["names"], doc["outputs"]["units"], tol["per_output"],
+            tol["certified_bound"], budget["per_output"], doc["measured_max_abs_error"], strict=True):
+        lines.append(f"{name}: measured {measured:.3e}, certified bound {b:.3e} (tolerance "
+                     f"{t:.3e} with the reference's rounding), budget {_number(limit)} {unit}".rstrip()
+                     + f" ({budget['rule']})")
     lines += [f"note: {note}" for note in doc.get("notes", [])]
-    lines.append(f"verification {'PASSED' if doc['passed'] else 'FAILED'}: {art['kind']} "
+    verdict = "PASSED" if doc["passed"] else "FAILED"
+    reason = ("" if doc["passed"] else " (soundness)" if not doc["sound"]
+              else " (bound above the accuracy budget)" if not doc["within_budget"] else "")
+    lines.append(f"verification {verdict}{reason}: {art['kind']} "
                  f"{art['precision']}, max abs error {_number(doc['max_abs_error'])}, "
-                 f"max rel error {_number(doc['max_rel_error'])}")
+                 f"certified bound {max(tol['certified_bound']):.3e}")
     return "\n".join(lines)
 
 
@@ -108,13 +113,19 @@ def verify_junit(document: dict) -> str:
     art, suites = document["artifact"], []
     props = {"bundle_id": document["bundle_id"], "kind": art["kind"], "precision": art["precision"],
              "out_of_domain": art["out_of_domain"], "seed": document["probes"]["seed"],
-             "tolerance_rule": document["tolerance"]["rule"]}
+             "tolerance_rule": document["tolerance"]["rule"],
+             "certified_bound": json.dumps(document["certified_bound"]),
+             "accuracy_budget": json.dumps(_strict(document["accuracy_budget"]["per_output"]))}
     table = format_table(document)
     for engine in art["engines"]:
         name = f"nodecast.verify.{art['kind']}.{engine}"
         cases = [{"classname": name, "name": r["family"],
                   "failure": _family_failure(r, document["outputs"]["names"])}
                  for r in document["families"] if r["engine"] == engine]
+        if not document["within_budget"] and cases:
+            cases.append({"classname": name, "name": "accuracy-budget",
+                          "failure": "; ".join(n for n in document["notes"]
+                                               if n.startswith("accuracy"))})
         suites.append({"name": name, "cases": cases, "properties": {**props, "engine": engine},
                        "system_out": table})
     return junit_xml("nodecast verify", suites)

@@ -1,24 +1,20 @@
-"""Tolerances for verification, derived from the artifact's precision and the error estimate.
+"""The tolerance of a verification: the artifact's certified bound, recomputed from the bundle.
 
-Derived rule (the default), per output k:
+Per output k:
 
-    tolerance_k = SAFETY_FACTOR * estimate_k(artifact precision, activation error) + reference_k
+    tolerance_k = certified_k(artifact's declared options) + certified_k(float64 reference)
 
-where ``estimate_k`` is :func:`nodecast.compiler.numerics.estimate` for the artifact's precision and
-its activation implementation's stated error, and ``reference_k`` the same estimate for float64: the
-reference rounds too, and the artifact is compared with the reference, not with exact arithmetic.
-``SAFETY_FACTOR`` covers what the first-order estimate leaves out (the runtime's summation order,
-fused multiply-add, probes between the estimate's own probe points). Rounding limits come from
-IEEE 754 (float32 unit roundoff 2^-24, float64 2^-53) and, for fixed point, the Q-format step
-(Q15: 2^-15).
+The first term is :func:`nodecast.compiler.bounds.certify` for the kind, precision, activation
+implementation and table size the artifact declares, computed here from the bundle, never read from
+the artifact (an artifact whose stated bound or activation error differs is refused). The second is
+the same bound for the float64 NumPy reference the artifact is compared with, which rounds too. A
+measured error above this tolerance is a soundness failure: the artifact does not compute the model.
 
-Overrides: ``abs_tol`` (target units, every output) or ``rel_tol`` (a share of each output's range
-over the in-domain probes). An override below the estimate is allowed, and the report says so: at
-such a tolerance rounding alone may fail the artifact.
-
-Out-of-domain probes under the "pass" policy are evaluated where the estimate's probes never went;
-there the derived tolerance uses the estimate at those very probes when that is larger
-(:func:`for_points`).
+Separately, the verdict requires the certified bound to fit the accuracy budget
+(:mod:`nodecast.compiler.bounds.budget`): by default 5% of the model's validation RMSE, overridden by
+``--abs-tol`` (target units) or ``--rel-tol`` (share of each output's range over the in-domain
+probes). Under the "pass" policy, probes outside the domain are judged against the certified bound
+over the smallest box that holds them and the domain.
 """
 
 from __future__ import annotations
@@ -29,82 +25,81 @@ import numpy as np
 
 from nodecast.compiler.errors import NodecastError
 
-SAFETY_FACTOR = 2.0
+# a stated bound may differ from the recomputed one by the last digits of its text only
+_AGREEMENT = 1e-6
 
 
 @dataclass(frozen=True)
 class Tolerance:
-    """Allowed absolute error per output (target units) and how it was set.
-
-    ``source`` is "derived", "abs-tol" or "rel-tol"; ``estimate`` and ``reference_rounding`` are the
-    per-output estimates (artifact precision, float64) the derived rule starts from.
-    """
+    """Allowed absolute error per output (target units): the certified bound plus the reference's."""
 
     per_output: tuple[float, ...]
-    source: str
     precision: str
-    estimate: tuple[float, ...]
+    certified: tuple[float, ...]
     reference_rounding: tuple[float, ...]
-    safety_factor: float = SAFETY_FACTOR
-    given: float | None = None
+    assumption: str
 
-    @property
-    def rule(self) -> str:
-        if self.source == "abs-tol":
-            return f"--abs-tol {self.given!r}, in target units"
-        if self.source == "rel-tol":
-            return f"--rel-tol {self.given!r} of the output range over the in-domain probes"
-        return (f"{self.safety_factor:g} x the {self.precision} export-error estimate "
-                f"+ the float64 reference's own rounding")
+    rule = "the certified bound + the float64 reference's own certified rounding"
 
     def as_dict(self) -> dict:
-        return {"per_output": list(self.per_output), "rule": self.rule, "source": self.source,
-                "given": self.given,
-                "precision": self.precision, "safety_factor": self.safety_factor,
-                "estimate": list(self.estimate),
-                "reference_rounding": list(self.reference_rounding)}
-
-    def below_estimate(self) -> list[int]:
-        """Outputs whose tolerance is smaller than the artifact precision's own estimate."""
-        below = np.asarray(self.per_output) < np.asarray(self.estimate)
-        return [int(k) for k in np.flatnonzero(below)]
+        return {"per_output": list(self.per_output), "rule": self.rule, "source": "certified",
+                "precision": self.precision, "certified_bound": list(self.certified),
+                "reference_rounding": list(self.reference_rounding), "assumes": self.assumption}
 
 
-def derive(estimate, reference_estimate, abs_tol=None, rel_tol=None,
-           output_range=None) -> Tolerance:
-    """The tolerance for an artifact whose precision has ``estimate`` (an ErrorEstimate).
+def certified_tolerance(net, info: dict, low=None, high=None) -> Tolerance:
+    """The tolerance for the artifact described by ``info`` over the box [low, high] (default: the
+    declared domain)."""
+    from nodecast.compiler.bounds import certify
 
-    Parameters
-    ----------
-    estimate, reference_estimate : ErrorEstimate for the artifact's precision and for float64.
-    abs_tol, rel_tol : float or None, overrides (abs_tol wins when both are given).
-    output_range : ndarray of shape (n_outputs,), the reference's range over the in-domain probes.
-    """
-    est, ref = tuple(estimate.per_output), tuple(reference_estimate.per_output)
-    if abs_tol is not None:
-        values, source, given = tuple(float(abs_tol) for _ in est), "abs-tol", float(abs_tol)
-    elif rel_tol is not None:
-        values = tuple(float(rel_tol * r) for r in np.asarray(output_range))
-        source, given = "rel-tol", float(rel_tol)
-    else:
-        values, source, given = _derived(SAFETY_FACTOR, est, ref), "derived", None
-    if not all(np.isfinite(values)):
-        raise NodecastError(f"no finite tolerance for this {estimate.precision} artifact: its error "
-                            "estimate is not finite (the model's values overflow that precision); "
-                            "give --abs-tol to verify it anyway")
-    return Tolerance(values, source, estimate.precision, est, ref, given=given)
+    options = _declared_options(info)
+    certificate = certify(net, info["kind"], info["precision"], low=low, high=high, **options)
+    reference = certify(net, "reference", "float64", low=low, high=high)
+    values = np.asarray(certificate.per_output) + np.asarray(reference.per_output)
+    if not np.all(np.isfinite(values)):
+        raise NodecastError(f"this {info['precision']} artifact's error cannot be bounded (the "
+                            "model's values overflow that precision); it cannot be verified")
+    return Tolerance(tuple(float(v) for v in values), info["precision"], certificate.per_output,
+                     reference.per_output, certificate.assumption)
 
 
-def for_points(tolerance: Tolerance, estimate, reference_estimate) -> Tolerance:
-    """A derived tolerance widened to the estimate at other probes (overrides stay as given)."""
-    if tolerance.source != "derived":
-        return tolerance
-    est = tuple(np.maximum(tolerance.estimate, estimate.per_output).tolist())
-    ref = tuple(np.maximum(tolerance.reference_rounding, reference_estimate.per_output).tolist())
-    factor = tolerance.safety_factor
-    return Tolerance(_derived(factor, est, ref), "derived", tolerance.precision, est, ref, factor)
+def _declared_options(info: dict) -> dict:
+    if info["kind"] != "c":
+        return {}
+    size = info.get("table_size") or None
+    return {"activation_impl": info.get("activation_impl"), "table_size": size}
 
 
-def _derived(factor: float, estimate, reference_rounding) -> tuple[float, ...]:
-    values = factor * np.asarray(estimate) + np.asarray(reference_rounding)
-    return tuple(float(v) for v in values)
+def check_stated(path, info: dict, tolerance: Tolerance, net) -> None:
+    """Refuse an artifact whose stated bound or activation error disagrees with the recomputed one
+    (one line naming the field): an artifact's word never widens its own tolerance."""
+    stated = info.get("certified_bound")
+    if stated is None:
+        raise NodecastError(f"{path} states no certified bound (field certified_bound); emit it "
+                            "again with this version of nodecast")
+    try:
+        stated = [float(v) for v in stated]
+    except (TypeError, ValueError):
+        raise NodecastError(f"{path} states an unreadable certified_bound") from None
+    if len(stated) != len(tolerance.certified):
+        raise NodecastError(f"{path} states {len(stated)} certified_bound values for "
+                            f"{len(tolerance.certified)} outputs")
+    for o, (given, derived) in enumerate(zip(stated, tolerance.certified, strict=True)):
+        if not _agrees(given, derived):
+            raise NodecastError(f"{path} states certified_bound[{o}] = {given!r}, but this bundle "
+                                f"and the artifact's declared options give {derived!r}; the "
+                                "artifact was edited or emitted from other options")
+    if "activation_error" in info:
+        from nodecast.compiler.backends.c import stated_activation_error
+
+        derived = stated_activation_error(net, info["precision"], info.get("activation_impl"),
+                                          info.get("table_size") or None)
+        if not _agrees(float(info["activation_error"]), derived):
+            raise NodecastError(f"{path} states activation_error = {info['activation_error']!r}, "
+                                f"but its declared implementation has {derived!r}")
+
+
+def _agrees(given: float, derived: float) -> bool:
+    if not (np.isfinite(given) and np.isfinite(derived)):
+        return given == derived
+    return abs(given - derived) <= _AGREEMENT * max(abs(derived), np.finfo(float).tiny)

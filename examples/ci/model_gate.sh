@@ -14,7 +14,7 @@ nodecast demo --data-only -o "$out"          # in a real job: fetch this release
 nodecast train "$out/readings.csv" --target heatsink_temp --domain "$domain" --nodes 300 --seed 11 \
   -o "$out/candidate.ncz" --overwrite
 
-nodecast emit "$out/candidate.ncz" --to onnx -o "$out/candidate.onnx" --overwrite
+nodecast emit "$out/candidate.ncz" --to onnx --precision float64 -o "$out/candidate.onnx" --overwrite
 nodecast emit "$out/candidate.ncz" --to python -o "$out/candidate_predictor.py" --overwrite
 targets=("$out/candidate.onnx" "$out/candidate_predictor.py")
 if command -v "${CC:-gcc}" >/dev/null 2>&1; then   # C is built and run with the host compiler

@@ -10,7 +10,7 @@ fw="$out/firmware"
 mkdir -p "$fw"
 
 nodecast demo --data-only -o "$out"
-# Precision budget: only grid points whose estimated q15 export error is within 0.3 degC compete.
+# Precision budget: only grid points whose certified q15 export error is within 0.3 degC compete.
 nodecast select "$out/readings.csv" --target heatsink_temp \
   --domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,supply_voltage=22:26 \
   --units ambient_temp=degC,fan_speed=rpm,load_current=A,supply_voltage=V,heatsink_temp=degC \
@@ -19,7 +19,10 @@ nodecast select "$out/readings.csv" --target heatsink_temp \
 # The footprint table (host, Cortex-M0, Cortex-M4F) is printed here.
 nodecast emit "$out/fan.ncz" --to c --precision q15 --out-of-domain reject --prefix fan \
   --bare-metal -o "$fw" --overwrite
-nodecast verify "$out/fan.ncz" "$fw" --emulate cortex-m4 --probes 512 --report "$out/verify_m4.json"
+# The accuracy budget is the one chosen above (0.3 degC), not verify's default of 5% of the model's
+# validation RMSE, which no q15 artifact of this model can be proven to meet.
+nodecast verify "$out/fan.ncz" "$fw" --emulate cortex-m4 --probes 512 --abs-tol 0.3 \
+  --report "$out/verify_m4.json"
 
 # The firmware engineer's side: an ordinary Makefile and main.c around the generated files.
 cp "$here/Makefile" "$here/main.c" "$fw/"

@@ -54,6 +54,7 @@ def describe(path: Path, emulate: str | None = None, **_options) -> dict:
                 "out_of_domain": macros["OUT_OF_DOMAIN"].strip('"'),
                 "activation_impl": macros["ACTIVATION_IMPL"].strip('"'),
                 "activation_error": float(macros["ACTIVATION_ERROR"]),
+                "table_size": int(macros["TABLE_SIZE"]),
                 "n_inputs": int(macros["N_INPUTS"]), "n_outputs": int(macros["N_OUTPUTS"]),
                 "emulate": emulate,
                 "engines": [f"qemu-{emulate}" if emulate else f"host-{toolchain.host_compiler()}"]}
@@ -62,6 +63,9 @@ def describe(path: Path, emulate: str | None = None, **_options) -> dict:
                                        for i in range(info["n_inputs"])]
             info["output_frac_bits"] = [int(macros[f"OUTPUT_FRAC_BITS_{o}"])
                                         for o in range(info["n_outputs"])]
+        info["certified_bound"] = [float(macros[f"ERROR_BOUND_{o}"])
+                                   for o in range(info["n_outputs"])
+                                   if f"ERROR_BOUND_{o}" in macros] or None
     except (KeyError, ValueError) as exc:
         raise NodecastError(f"{header} lacks or garbles the provenance macro {exc}") from None
     if info["precision"] not in _IO_TYPES:

@@ -40,7 +40,12 @@ def describe(path: Path, **_options) -> dict:
         stated = json.loads(props.get("nodecast.error_estimate", "null"))
     except ValueError:
         raise NodecastError(f"{path} holds an unreadable nodecast.error_estimate") from None
+    try:
+        bound = json.loads(props.get("nodecast.certified_bound", "null"))
+    except ValueError:
+        raise NodecastError(f"{path} holds an unreadable nodecast.certified_bound") from None
     return {"kind": "onnx", "bundle_id": props["nodecast.bundle_id"], "precision": precision,
+            "certified_bound": bound,
             "out_of_domain": props.get("nodecast.out_of_domain", "pass"),
             "error_estimate": stated, "engines": list(ENGINES)}
 

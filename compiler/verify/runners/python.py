@@ -24,6 +24,7 @@ from nodecast.compiler.errors import NodecastError
 
 _CONSTANTS = ("BUNDLE_ID", "PRECISION", "OUT_OF_DOMAIN", "TASK", "TOOL_VERSION", "FEATURE_NAMES",
               "N_OUTPUTS")
+_OPTIONAL_CONSTANTS = ("CERTIFIED_BOUND",)
 _SECONDS_PER_ROW = 0.01  # generous: a 2000-node predictor takes about a millisecond per row
 _MIN_SECONDS = 120.0
 MIN_VERSION = (3, 8)  # the oldest Python the generated predictor supports
@@ -40,7 +41,8 @@ def read_constants(path: Path) -> dict:
     found = {}
     for node in tree.body:
         if (isinstance(node, ast.Assign) and len(node.targets) == 1
-                and isinstance(node.targets[0], ast.Name) and node.targets[0].id in _CONSTANTS):
+                and isinstance(node.targets[0], ast.Name)
+                and node.targets[0].id in _CONSTANTS + _OPTIONAL_CONSTANTS):
             try:
                 found[node.targets[0].id] = ast.literal_eval(node.value)
             except ValueError:
@@ -62,6 +64,7 @@ def describe(path: Path, interpreters=None, **_options) -> dict:
     chosen = _interpreters(interpreters)
     return {"kind": "python", "bundle_id": constants["BUNDLE_ID"],
             "precision": constants["PRECISION"], "out_of_domain": constants["OUT_OF_DOMAIN"],
+            "certified_bound": constants.get("CERTIFIED_BOUND"),
             "task": constants["TASK"], "tool_version": constants["TOOL_VERSION"],
             "engines": list(chosen), "interpreters": chosen,
             "feature_names": list(constants["FEATURE_NAMES"]), "n_outputs": constants["N_OUTPUTS"]}
