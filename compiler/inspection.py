@@ -130,7 +130,8 @@ def format_description(d: dict) -> str:
             bounds = ", ".join(f"{v:.3g}" for v in record["certified_bound"])
             lines.append(f"certified {e['precision']} error of the {target} artifact: {bounds} "
                          f"(assumes {record['assumes']})")
-        lines.append(f"accuracy budget: {', '.join(f'{v:.3g}' for v in budget['per_output'])} "
+        limits = ", ".join("none" if v is None else f"{v:.3g}" for v in budget["per_output"])
+        lines.append(f"accuracy budget: {limits} "
                      f"({budget['rule']})")
         lines.append(f"typical {e['precision']} error (an estimate, not a bound): "
                      f"{e['max_abs_error']:.3g}")

@@ -28,7 +28,9 @@ class Budget:
                 if b > limit]
 
     def as_dict(self) -> dict:
-        return {"per_output": list(self.per_output), "rule": self.rule, "source": self.source}
+        """JSON-ready: an output without a budget is null."""
+        return {"per_output": [v if np.isfinite(v) else None for v in self.per_output],
+                "rule": self.rule, "source": self.source}
 
 
 def recorded_rmse(metadata: dict, n_outputs: int) -> tuple[np.ndarray, str] | None:

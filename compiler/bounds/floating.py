@@ -122,7 +122,10 @@ def _sum_rounding(p: FloatProgram, lo, hi) -> np.ndarray:
     partial = np.abs(p.stored_biases[None, :, None] + np.cumsum(terms_mid, axis=2)) \
         + np.cumsum(c_rad[:, None, :] * np.abs(stored)[None, :, :], axis=2)
     first = (p.unit * (terms_abs + partial)).sum(axis=2)
-    return first * (1 + gamma(n + 1, p.unit))
+    # each computed partial sum also carries the roundings before it (at most gamma_(n+1) of the
+    # sum of magnitudes): n more additions of u times that, second order
+    size = np.abs(p.stored_biases) + terms_abs.sum(axis=2)
+    return first + n * p.unit * gamma(n + 1, p.unit) * size
 
 
 def _lane_rounding(p: FloatProgram, t_mid, t_rad, size) -> np.ndarray:
@@ -137,10 +140,10 @@ def _lane_rounding(p: FloatProgram, t_mid, t_rad, size) -> np.ndarray:
     additions = partial[:, :, 1:, :].sum(axis=(2, 3))  # a lane's first addition is exact
     lane_mid, lane_rad = mid.sum(axis=2), rad.sum(axis=2)
     combined = (np.abs(np.cumsum(lane_mid, axis=2)) + np.cumsum(lane_rad, axis=2))[:, :, 1:]
-    products = size
-    slack = gamma(m + lanes, p.unit) * size
-    return p.unit * (additions + combined.sum(axis=2) + products) * (1 + gamma(m + lanes, p.unit)) \
-        + p.unit * slack
+    # each computed partial sum also carries the roundings before it (at most gamma_(m+lanes) of
+    # the sum of magnitudes): m + lanes more additions of u times that, second order
+    carried = (m + lanes) * p.unit * gamma(m + lanes, p.unit) * size
+    return p.unit * (additions + combined.sum(axis=2) + size) + carried
 
 
 def box_bounds(p: FloatProgram, low: np.ndarray, high: np.ndarray) -> np.ndarray:

@@ -115,7 +115,7 @@ def _tolerances(net, path, families, info):
     return tolerance, per_family
 
 
-def _notes(tolerance, budget, results) -> list[str]:
+def _notes(tolerance, budget, results, names) -> list[str]:
     notes = []
     unsound = [r for r in results if not r["within_tolerance"]]
     if unsound:
@@ -126,7 +126,8 @@ def _notes(tolerance, budget, results) -> list[str]:
                      "not compute this model (changed weights or code, another policy, a faulty "
                      "runtime, or a runtime activation outside what the bound assumes); do not ship it")
     for o in budget.exceeded_by(tolerance.certified):
-        notes.append(f"accuracy: the certified bound {tolerance.certified[o]:.3e} of output {o} "
+        notes.append(f"accuracy: the certified bound {tolerance.certified[o]:.3e} of output "
+                     f"{names[o]!r} "
                      f"exceeds the budget {budget.per_output[o]:.3e} ({budget.rule}): the artifact "
                      "is not proven as good as the model; use a wider precision, another "
                      "activation implementation or a better-conditioned model (larger ridge)")
@@ -199,7 +200,7 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
         "typical_estimate": est.as_dict(),
         "probes": {"seed": seed, "sobol": count, "total": int(X_all.shape[0]),
                    "families": {f.name: int(f.X.shape[0]) for f in families}},
-        "families": results, "notes": _notes(tolerance, budget, results),
+        "families": results, "notes": _notes(tolerance, budget, results, net.target_names),
     }
     return Report(passed, document)
 

@@ -77,7 +77,8 @@ def format_table(report) -> str:
             doc["outputs"]["names"], doc["outputs"]["units"], tol["per_output"],
             tol["certified_bound"], budget["per_output"], doc["measured_max_abs_error"], strict=True):
         lines.append(f"{name}: measured {measured:.3e}, certified bound {b:.3e} (tolerance "
-                     f"{t:.3e} with the reference's rounding), budget {_number(limit)} {unit}".rstrip()
+                     f"{t:.3e} with the reference's rounding), budget "
+                     f"{'none' if limit is None else format(limit, '.3e')} {unit}".rstrip()
                      + f" ({budget['rule']})")
     lines += [f"note: {note}" for note in doc.get("notes", [])]
     verdict = "PASSED" if doc["passed"] else "FAILED"

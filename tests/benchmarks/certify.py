@@ -85,8 +85,10 @@ def tightness(bundle, folder: Path, quick: bool) -> dict:
         module = runner(target)
         info = module.describe(path)
         info["engine"] = "onnxruntime" if target == "onnx" else info["engines"][0]
-        worst = find_worst(lambda X: np.abs(module.run(path, X, info) - predict(net, X)),
-                           net.domain_low, net.domain_high, seed=11,
+        def error(X, module=module, path=path, info=info):
+            return np.abs(module.run(path, X, info) - predict(net, X))
+
+        worst = find_worst(error, net.domain_low, net.domain_high, seed=11,
                            random_points=5000 if quick else 100_000, starts=4 if quick else 8,
                            rounds=6 if quick else 10)
         bound = np.asarray(artifact.summary["certificate"]["certified_bound"])

@@ -141,7 +141,7 @@ def test_provenance_docstring_says_what_the_spec_asks(friedman_bundle):
     estimate = emit(friedman_bundle, "python").summary["estimate"]["per_output"][0]
     for needed in (f"nodecast {__version__}", friedman_bundle.bundle_id, "policy 'clamp'",
                    "not a safety function", "guard", "functional-safety standards",
-                   "yours to license", f"{estimate:.3e}", "'x0', unit '1'",
+                   "yours to license", f"{estimate:.3g}", "'x0', unit '1'",
                    f"{float(net.domain_low[0])!r} .. {float(net.domain_high[0])!r}"):
         assert needed in doc, needed
     order = [doc.index(f"'x{i}', unit") for i in range(5)]

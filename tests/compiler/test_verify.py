@@ -18,7 +18,9 @@ from nodecast.compiler.verify.report import to_json
 from nodecast.compiler.verify.runners import detect_kind
 
 SCHEMA_KEYS = {"passed", "bundle_id", "task", "artifact", "outputs", "max_abs_error",
-               "max_rel_error", "tolerance", "estimate", "probes", "families", "notes"}
+               "max_rel_error", "tolerance", "typical_estimate", "probes", "families", "notes",
+               "certified_bound", "accuracy_budget", "sound", "within_budget",
+               "measured_max_abs_error"}
 
 
 def run_cli(capsys, *args):
@@ -50,7 +52,9 @@ def test_default_model_passes_in_both_engines_with_the_documented_schema(
     assert doc["artifact"]["engines"] == ["onnxruntime", "onnx.reference"]
     assert {r["engine"] for r in doc["families"]} == {"onnxruntime", "onnx.reference"}
     assert doc["max_abs_error"] <= min(doc["tolerance"]["per_output"])
-    assert doc["tolerance"]["source"] == "derived" and doc["artifact"]["precision"] == precision
+    assert doc["tolerance"]["source"] == "certified" and doc["artifact"]["precision"] == precision
+    assert doc["sound"] and doc["within_budget"]
+    assert max(doc["measured_max_abs_error"]) == doc["max_abs_error"]
     assert doc["probes"]["families"]["sobol"] == 2048 and doc["probes"]["families"]["corners"] == 32
     if precision == "float64":  # SPEC "Numerics": default float64 artifacts within 1e-10 of range
         assert doc["max_rel_error"] <= 1e-10
@@ -115,13 +119,17 @@ def test_classifier_verifies_labels_and_scores(classifier_bundle, tmp_path):
 
 
 def test_tight_override_fails_and_the_report_says_why(friedman_bundle, onnx_files):
+    """An accuracy budget below the certified bound fails the verdict (the artifact is sound, but
+    not proven within the budget), and the report says why."""
     doc = verify(friedman_bundle, onnx_files["float32"], count=256, abs_tol=1e-9).as_dict()
-    assert not doc["passed"] and doc["tolerance"]["source"] == "abs-tol"
-    assert doc["tolerance"]["per_output"] == [1e-9]
-    assert any("below this artifact's float32 export-error estimate" in n for n in doc["notes"])
+    assert not doc["passed"] and doc["sound"] and not doc["within_budget"]
+    assert doc["accuracy_budget"]["source"] == "abs-tol"
+    assert doc["accuracy_budget"]["per_output"] == [1e-9]
+    assert any(n.startswith("accuracy: the certified bound") for n in doc["notes"])
     doc = verify(friedman_bundle, onnx_files["float32"], count=256, rel_tol=0.5).as_dict()
     out_range = doc["max_abs_error"] / doc["max_rel_error"]
-    assert doc["passed"] and doc["tolerance"]["per_output"][0] == pytest.approx(0.5 * out_range)
+    assert doc["passed"]
+    assert doc["accuracy_budget"]["per_output"][0] == pytest.approx(0.5 * out_range)
 
 
 def test_same_seed_same_report_bytes(friedman_bundle, onnx_files):

@@ -120,10 +120,11 @@ def test_junit_has_one_case_per_family_and_engine(friedman_bundle, tmp_path):
     names = {(s.get("name"), c.get("name")) for s in root for c in s.findall("testcase")}
     assert names == {(f"nodecast.verify.onnx.{r['engine']}", r["family"]) for r in doc["families"]}
     failing = verify(friedman_bundle, path, count=128, abs_tol=1e-12).as_dict()
-    root = _junit_tree(verify_junit(failing))
-    assert int(root.get("failures")) == len(failing["families"])
-    message = root.find("testsuite/testcase/failure").get("message")
-    assert "exceeds the tolerance" in message
+    root = _junit_tree(verify_junit(failing))  # a budget below the certified bound: one case each
+    assert int(root.get("failures")) == len(failing["artifact"]["engines"])
+    failed = [c for s in root for c in s.findall("testcase") if c.find("failure") is not None]
+    assert {c.get("name") for c in failed} == {"accuracy-budget"}
+    assert "exceeds the budget" in failed[0].find("failure").get("message")
 
 
 def test_hostile_names_keep_the_xml_and_table_well_formed(friedman_bundle, tmp_path):
@@ -146,7 +147,8 @@ def test_table_shows_every_family_and_the_tolerance_rule(friedman_bundle, tmp_pa
     for record in doc["families"]:
         assert any(line.startswith(f"{record['engine']:<15} {record['family']}")
                    for line in table.splitlines())
-    assert "2 x the float32 export-error estimate" in table
+    assert f"certified bound {doc['certified_bound'][0]:.3e}" in table
+    assert doc["accuracy_budget"]["rule"] in table
     assert table.splitlines()[-1].startswith("verification PASSED")
 
 
