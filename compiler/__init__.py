@@ -4,12 +4,23 @@ from __future__ import annotations
 
 import math
 
-from nodecast.compiler.bundle import Bundle, load, save
 from nodecast.compiler.errors import BundleError, NodecastError
-from nodecast.compiler.ir import Network
+
+_LAZY = {"Bundle": "nodecast.compiler.bundle", "load": "nodecast.compiler.bundle",
+         "save": "nodecast.compiler.bundle", "Network": "nodecast.compiler.ir"}
 
 
-def emit(bundle: Bundle, to: str, path=None, overwrite: bool = False, max_bytes: int | None = None,
+def __getattr__(name: str):
+    """Bundle, load, save and Network load numpy: import them when first asked for, so that
+    ``nodecast --help`` and the commands that do not need them start fast."""
+    if name in _LAZY:
+        import importlib
+
+        return getattr(importlib.import_module(_LAZY[name]), name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def emit(bundle, to: str, path=None, overwrite: bool = False, max_bytes: int | None = None,
          **options):
     """Render ``bundle`` for target ``to`` ("onnx", "c", "python"); write it to ``path`` if given.
 
@@ -24,7 +35,14 @@ def emit(bundle: Bundle, to: str, path=None, overwrite: bool = False, max_bytes:
         write_atomic,
         write_files,
     )
+    from nodecast.compiler.limits import check_artifact_estimate, check_memory, estimate_bytes
 
+    net = bundle.network
+    default = "float64" if to == "python" else "float32"
+    check_artifact_estimate(net, to, options.get("precision") or default,
+                            MAX_ARTIFACT_BYTES if max_bytes is None else max_bytes)
+    check_memory(estimate_bytes(net), f"the export-error estimate of {net.n_nodes} nodes",
+                 "emit on a machine with more memory, or use fewer nodes")
     artifact = render(bundle, to, **options)
     estimate = artifact.summary.get("estimate", {}).get("max_abs_error", 0.0)
     bound = max(artifact.summary.get("certificate", {}).get("certified_bound", [0.0]))
@@ -32,6 +50,11 @@ def emit(bundle: Bundle, to: str, path=None, overwrite: bool = False, max_bytes:
         raise NodecastError(f"the {to} {artifact.summary.get('precision', '')} artifact's error "
                             "cannot be bounded (the model's values overflow that precision); "
                             "choose a wider precision or a better-regularised model")
+    from dataclasses import replace
+
+    from nodecast.compiler.integrity import seal
+
+    artifact = replace(artifact, files={name: seal(name, data) for name, data in artifact.files.items()})
     check_artifact_size(to, artifact.files, MAX_ARTIFACT_BYTES if max_bytes is None else max_bytes)
     if path is not None:
         if artifact.single_file:

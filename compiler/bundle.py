@@ -35,7 +35,7 @@ from nodecast.compiler.ir import ARRAY_FIELDS, Network
 from nodecast.compiler.version import __version__
 
 FORMAT_NAME = "nodecast-bundle"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2  # 2: categorical inputs; bundles without them are still written as version 1
 MANIFEST = "manifest.json"
 MAX_BUNDLE_BYTES = 2 * 2**30
 MAX_MANIFEST_BYTES = 16 * 2**20
@@ -48,6 +48,9 @@ EXPECTED_ENTRIES = frozenset({MANIFEST} | {f"arrays/{name}.npy" for name in ARRA
 _ZIP_TIME = (1980, 1, 1, 0, 0, 0)
 _ZIP_UNIX = 3  # "made by" system in every entry, fixed so that bytes do not depend on the platform
 _TEXT_FIELDS = ("feature_names", "feature_units", "target_names", "target_units", "class_labels")
+# version 2, present exactly when the network has categorical inputs (see ir.py)
+CATEGORICAL_FIELDS = ("categorical_names", "categorical_levels")
+LEVEL_ENTRY = "arrays/level_weights.npy"
 
 
 @dataclass(frozen=True, eq=False)
@@ -90,7 +93,11 @@ def _manifest(bundle: Bundle) -> dict:
                         "sha256": hashlib.sha256(data).hexdigest(), "shape": list(array.shape)}
     network = {name: list(getattr(net, name)) for name in _TEXT_FIELDS}
     network.update(activation=net.activation, task=net.task)
-    return {"format": FORMAT_NAME, "format_version": FORMAT_VERSION, "tool_version": __version__,
+    if net.n_categorical:
+        network.update(categorical_names=list(net.categorical_names),
+                       categorical_levels=[list(group) for group in net.categorical_levels])
+    version = 2 if net.n_categorical else 1  # older tools keep reading bundles they can compute
+    return {"format": FORMAT_NAME, "format_version": version, "tool_version": __version__,
             "network": network, "arrays": arrays, "metadata": bundle.metadata}
 
 
@@ -167,6 +174,7 @@ def _check_directory_size(data: bytes, label: str) -> None:
 
 def _check_names(archive: zipfile.ZipFile, label: str) -> None:
     names = archive.namelist()
+    expected = EXPECTED_ENTRIES | ({LEVEL_ENTRY} if LEVEL_ENTRY in names else set())
     for name in names:
         parts = name.replace("\\", "/").split("/")
         if name.startswith(("/", "\\")) or ".." in parts or ":" in name or "\x00" in name:
@@ -174,7 +182,7 @@ def _check_names(archive: zipfile.ZipFile, label: str) -> None:
     duplicates = sorted({name for name in names if names.count(name) > 1})
     if duplicates:
         raise BundleError(f"{label}: duplicate entry {duplicates[0]!r}")
-    unexpected, missing = set(names) - EXPECTED_ENTRIES, EXPECTED_ENTRIES - set(names)
+    unexpected, missing = set(names) - expected, expected - set(names)
     if unexpected:
         raise BundleError(f"{label}: unexpected entries {sorted(unexpected)}")
     if MANIFEST in missing:
@@ -233,7 +241,14 @@ def _read_manifest(archive: zipfile.ZipFile, archive_bytes: int, label: str) -> 
                           f"(1..{FORMAT_VERSION}); upgrade nodecast")
     if manifest.get("bundle_id") != _bundle_id(manifest):
         raise BundleError(f"{label}: manifest does not match its bundle id (changed or damaged)")
-    problem = check_manifest(manifest, ARRAY_FIELDS, _TEXT_FIELDS, MAX_BUNDLE_BYTES)
+    categorical = "categorical_names" in manifest.get("network", {}) if isinstance(
+        manifest.get("network"), dict) else False
+    if categorical and version < 2:
+        raise BundleError(f"{label}: categorical inputs need format version 2, the manifest says "
+                          f"{version}")
+    array_fields = ARRAY_FIELDS + (("level_weights",) if categorical else ())
+    text_fields = _TEXT_FIELDS + (CATEGORICAL_FIELDS if categorical else ())
+    problem = check_manifest(manifest, array_fields, text_fields, MAX_BUNDLE_BYTES)
     if problem:
         raise BundleError(f"{label}: {problem}")
     return manifest
@@ -275,8 +290,10 @@ def _read_archive(archive: zipfile.ZipFile, archive_bytes: int, label: str) -> B
     arrays = {name: _read_array(archive, name, meta, archive_bytes, label)
               for name, meta in sorted(manifest["arrays"].items())}
     text = manifest["network"]
+    categorical = {name: tuple(map(tuple, text[name]) if name == "categorical_levels" else
+                               text[name]) for name in CATEGORICAL_FIELDS if name in text}
     try:
-        network = Network(activation=text["activation"], task=text["task"], **arrays,
+        network = Network(activation=text["activation"], task=text["task"], **arrays, **categorical,
                           **{name: tuple(text[name]) for name in _TEXT_FIELDS})
     except (ValueError, TypeError) as exc:
         raise BundleError(f"{label}: network is inconsistent: {one_line(exc)}") from None

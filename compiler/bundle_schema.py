@@ -33,7 +33,12 @@ def _check_text_record(network: Any, text_fields) -> str | None:
             return f"network field {key!r} is {type(network[key]).__name__}, not text"
     for key in text_fields:
         value = network[key]
-        if not isinstance(value, list) or not all(isinstance(item, str) for item in value):
+        if key == "categorical_levels":  # a list of lists of text, one per categorical input
+            if not isinstance(value, list) or not all(
+                    isinstance(group, list) and all(isinstance(item, str) for item in group)
+                    for group in value):
+                return f"network field {key!r} is not a list of lists of text"
+        elif not isinstance(value, list) or not all(isinstance(item, str) for item in value):
             return f"network field {key!r} is not a list of text"
     return None
 
@@ -80,6 +85,9 @@ def check_manifest(manifest: dict, array_fields, text_fields, max_bytes: int) ->
 
 def check_metadata(metadata: dict) -> str | None:
     """The first problem with the metadata records the tools read, or None."""
+    problem = json_problem(metadata, "metadata")
+    if problem:
+        return problem
     for key in _RECORDS:
         if key in metadata and not isinstance(metadata[key], dict):
             return f"metadata field {key!r} is not a record"
@@ -90,10 +98,22 @@ def check_metadata(metadata: dict) -> str | None:
     return None
 
 
+def _text_problem(text: str, where: str) -> str | None:
+    """Text that is not valid Unicode (a lone surrogate, which JSON's \\u escapes can carry) cannot
+    be printed or written as UTF-8."""
+    try:
+        text.encode("utf-8")
+    except UnicodeEncodeError:
+        return f"{where} holds text that is not valid Unicode (a lone surrogate)"
+    return None
+
+
 def json_problem(value: Any, where: str) -> str | None:
     """Why ``value`` cannot be stored as strict JSON (non-finite float, non-text key, foreign type),
     naming where it sits, or None. Tuples are accepted and stored as lists."""
-    if value is None or isinstance(value, (bool, int, str)):
+    if isinstance(value, str):
+        return _text_problem(value, where)
+    if value is None or isinstance(value, (bool, int)):
         return None
     if isinstance(value, float):
         return None if math.isfinite(value) else f"{where} is {value!r}, not a finite number"
@@ -107,7 +127,7 @@ def json_problem(value: Any, where: str) -> str | None:
         for key, item in value.items():
             if not isinstance(key, str):
                 return f"{where} has a key {key!r} that is not text"
-            problem = json_problem(item, f"{where}.{key}")
+            problem = _text_problem(key, f"a key of {where}") or json_problem(item, f"{where}.{key}")
             if problem:
                 return problem
         return None

@@ -29,11 +29,11 @@ def _limits(text: str | None) -> tuple[float, ...] | None:
     return values
 
 
-def _write(path: str | None, text: str) -> None:
+def _write(path: str | None, text: str, overwrite: bool) -> None:
     if path:
         from nodecast.compiler.files import write_atomic
 
-        write_atomic(path, text.encode("utf-8"), overwrite=True)
+        write_atomic(path, text.encode("utf-8"), overwrite=overwrite)
 
 
 @click.command("score", epilog=EXAMPLE)
@@ -53,8 +53,9 @@ def _write(path: str | None, text: str) -> None:
               help="Classifiers: the label column (default: the one the bundle was trained on).")
 @click.option("--report", type=click.Path(dir_okay=False), help="Write the JSON report here.")
 @click.option("--junit", type=click.Path(dir_okay=False), help="Write a JUnit XML report here.")
+@click.option("--overwrite", is_flag=True, help="Replace existing report files.")
 def score(model, data, max_rmse, min_accuracy, baseline, rmse_margin, accuracy_margin,
-          label_column, report, junit):
+          label_column, report, junit, overwrite):
     """Score MODEL on the labelled rows of DATA.csv; exit 1 when a gate fails.
 
     Regression: RMSE, MAE, max error and R^2 per target; classification: accuracy and a confusion
@@ -62,14 +63,17 @@ def score(model, data, max_rmse, min_accuracy, baseline, rmse_margin, accuracy_m
     """
     from nodecast.compiler.bundle import load
     from nodecast.compiler.csvio import read_table
+    from nodecast.compiler.files import check_outputs
     from nodecast.compiler.scoring import score as run_score
     from nodecast.compiler.verify.report import format_score_table, score_junit, to_json
 
+    check_outputs({"--report": report, "--junit": junit},
+                  {"MODEL": model, "DATA": data, "--baseline": baseline}, overwrite)
     result = run_score(load(model), read_table(data), max_rmse=_limits(max_rmse),
                        min_accuracy=min_accuracy, baseline=load(baseline) if baseline else None,
                        rmse_margin=rmse_margin, accuracy_margin=accuracy_margin,
                        label=label_column)
     click.echo(format_score_table(result))
-    _write(report, to_json(result.as_dict()))
-    _write(junit, score_junit(result.as_dict()))
+    _write(report, to_json(result.as_dict()), overwrite)
+    _write(junit, score_junit(result.as_dict()), overwrite)
     sys.exit(0 if result.passed else 1)

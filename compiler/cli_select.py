@@ -1,4 +1,5 @@
-"""``nodecast select``: choose M, k, s and lambda by k-fold cross-validation and save the refit.
+"""``nodecast select``: choose M, the generator and its settings (data-driven: k and s) and lambda
+by k-fold cross-validation and save the refit.
 
 Parsing and printing only; the search is :mod:`nodecast.trainer.selection`, the final fit is
 :func:`nodecast.trainer.training.train` itself, so ``nodecast train`` with the chosen options and
@@ -8,13 +9,17 @@ the same seed writes the same arrays.
 from __future__ import annotations
 
 import json
-import sys
+from dataclasses import replace
+from functools import partial
 
 import click
 
+from nodecast.compiler.cli_grid import grid_options, layer_values, parse_methods
 from nodecast.compiler.errors import NodecastError
 
-EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,250 "
+EXAMPLE = ("nodecast select readings.csv --target heatsink_temp "
+           "--domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,supply_voltage=22:26 "
+           "--nodes 50,100,250 "
            "--neighbors 10,20,30 --ridge 0,1e-6 --precision float32 --tolerance 0.05 "
            "-o fan.ncz --report cv.json --plot cv.png")
 
@@ -26,25 +31,42 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
 @click.option("--domain", help="Declared input domain, NAME=LO:HI,.. (default: the range of the "
                                "rows fitted, each fold's own training rows in the search).")
 @click.option("--units", help="Units, NAME=UNIT,.. for features and targets.")
+@click.option("--categorical", help="Categorical feature columns, comma-separated (levels read from "
+                                    "the data; see docs/training.md).")
+@click.option("--method", default="data-driven", show_default=True,
+              help="Hidden-node generator(s) to search, comma-separated: data-driven, interval, "
+                   "domain-anchored, slope-angle, weight-sum.")
 @click.option("--nodes", default="50,100,250", show_default=True, help="Hidden nodes M to try.")
-@click.option("--neighbors", default="default", show_default=True,
-              help="Neighbours k to try; 'default' is max(10, 2(n+1)).")
-@click.option("--slope-scales", default="1", show_default=True, help="Slope scales s to try.")
+@grid_options
 @click.option("--ridge", default="0,1e-6", show_default=True,
               help="Ridge values lambda to try (0: minimum-norm least squares).")
 @click.option("--folds", type=click.IntRange(min=2), default=10, show_default=True,
               help="Shuffled cross-validation folds.")
 @click.option("--activation", type=click.Choice(["logistic", "tanh"]), default="logistic",
               show_default=True)
-@click.option("--seed", type=int, default=0, show_default=True,
+@click.option("--seed", type=click.IntRange(0, 2**32 - 1), default=0, show_default=True,
               help="Seeds the folds and every hidden-layer draw (the final model's seed).")
+@click.option("--task", type=click.Choice(["regression", "classification"]), default="regression",
+              show_default=True)
+@click.option("--score", "scoring", type=click.Choice(["accuracy", "log-loss"]),
+              default="accuracy", show_default=True,
+              help="Classification: the cross-validated score that ranks the grid points.")
 @click.option("--precision", type=click.Choice(["float32", "float64", "q31", "q15"]),
               help="Target precision: report the chosen model's estimated export error in it.")
 @click.option("--tolerance", type=click.FloatRange(min=0, min_open=True),
               help="With --precision: reject grid points whose estimated export error exceeds "
                    "this (target units); exit 2 when none meets it.")
+@click.option("--max-flash", help="Budget: flash of the model's C on --core, bytes (K, M "
+                                   "suffixes); only node counts that fit are chosen.")
+@click.option("--max-cycles", type=click.IntRange(min=1),
+              help="Budget: estimated cycles per prediction on --core (emulated instruction "
+                   "count times an assumed cycles per instruction).")
+@click.option("--core", type=click.Choice(["cortex-m0", "cortex-m4f"]), default="cortex-m4f",
+              show_default=True, help="The core of --max-flash and --max-cycles; the precision "
+                                      "is --precision (default float32).")
 @click.option("--grow", is_flag=True, help="Grow the model in batches of nodes with the chosen "
-                                           "k, s and lambda, keeping a batch only if it pays.")
+                                           "generator settings and lambda, keeping a batch only "
+                                           "if it pays.")
 @click.option("--grow-batch", type=click.IntRange(min=1), default=25, show_default=True,
               help="Nodes per batch.")
 @click.option("--grow-threshold", type=click.FloatRange(0, 1), default=0.002, show_default=True,
@@ -57,7 +79,7 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
               show_default=True, help="As for train: share of rows held out for the bundle's "
                                       "validation metrics (the bundle's model uses all rows).")
 @click.option("--jobs", default="auto", show_default=True,
-              help="Parallel (fold, k, s) units, or 'auto' (every core for large searches); the "
+              help="Parallel (fold, layer) units, or 'auto' (every core for large searches); the "
                    "result is the same for any value.")
 @click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
               help="Bundle (.ncz).")
@@ -65,79 +87,167 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp --nodes 50,100,2
 @click.option("--plot", type=click.Path(dir_okay=False),
               help="Plot the CV error against M per k as PNG (needs matplotlib).")
 @click.option("--overwrite", is_flag=True, help="Replace existing output files.")
-def select(data, target, features, domain, units, nodes, neighbors, slope_scales, ridge, folds,
-           activation, seed, precision, tolerance, grow, grow_batch, grow_threshold, grow_patience,
-           grow_pool, validation_fraction, jobs, output, report, plot, overwrite):
-    """Choose nodes, neighbours, slope scale and ridge by k-fold cross-validation on DATA.csv,
-    refit the choice on all rows and save it as a bundle."""
+def select(data, target, features, domain, units, categorical, method, nodes, neighbors,
+           slope_scales, intervals, angle_ranges, weight_sums, ridge, folds, activation, seed, task,
+           scoring, precision, tolerance, max_flash, max_cycles, core, grow, grow_batch,
+           grow_threshold, grow_patience, grow_pool, validation_fraction, jobs, output, report,
+           plot, overwrite):
+    """Choose nodes, the generator and its settings, and ridge by k-fold cross-validation on
+    DATA.csv (a classifier: by accuracy or log-loss), refit the choice on all rows and save it
+    as a bundle."""
     from nodecast.compiler.bundle import save
-    from nodecast.compiler.cli import parse_domain, parse_list, parse_units
+    from nodecast.compiler.cli import check_units, parse_domain, parse_list, parse_units
     from nodecast.compiler.csvio import read_table
+    from nodecast.compiler.files import check_outputs
+    from nodecast.compiler.progress import Progress, run_interruptible
+    from nodecast.compiler.provenance import file_record, with_training_data
     from nodecast.trainer.grid import make_grid
     from nodecast.trainer.growth import GrowthSettings
+    from nodecast.trainer.method_grid import layer_grid
     from nodecast.trainer.selection import SearchSettings
     from nodecast.trainer.table_selection import run_selection
     from nodecast.trainer.training import TrainingJob
 
+    check_outputs({"-o": output, "--report": report, "--plot": plot}, {"DATA": data}, overwrite)
     if tolerance is not None and precision is None:
         raise NodecastError("--tolerance needs --precision (the precision to estimate it in)")
     job = TrainingJob(
         targets=parse_list(target, option="--target"),
         features=parse_list(features, option="--features"),
         domain=parse_domain(domain), units=parse_units(units), seed=seed,
-        validation_fraction=validation_fraction)
-    grid = make_grid(parse_list(nodes, int, "--nodes"), _neighbors(parse_list(neighbors)),
-                     parse_list(slope_scales, float, "--slope-scales"),
-                     parse_list(ridge, float, "--ridge"))
+        validation_fraction=validation_fraction,
+        categorical=parse_list(categorical, option="--categorical"))
+    layers = layer_grid(parse_methods(method), layer_values(neighbors, slope_scales, intervals,
+                                                            angle_ranges, weight_sums))
+    grid = make_grid(parse_list(nodes, int, "--nodes"), parse_list(ridge, float, "--ridge"), layers)
+    if task == "classification":
+        from nodecast.trainer.class_selection import run_class_selection
+
+        if precision or grow:
+            raise NodecastError("--precision, --tolerance and --grow are for regression; "
+                                "classifier selection takes the grid, --folds and --score")
+        result, bundle = run_class_selection(read_table(data), replace(job, task=task), grid,
+                                             folds, activation, scoring, _jobs(jobs) or 1)
+        save(bundle, output, overwrite=overwrite)
+        if report:
+            _write_report(report, result, bundle, overwrite)
+        click.echo(f"wrote {output} (bundle {bundle.bundle_id[:12]}); chose "
+                   f"{result.describe()}", err=True)
+        return
     settings = SearchSettings(folds, seed, activation, precision, tolerance, _jobs(jobs))
     growth = GrowthSettings(grow_batch, grow_threshold, grow_patience,
                             grow_pool or 2 * max(grid.nodes)) if grow else None
-    result, bundle = run_selection(read_table(data), job, grid, settings, growth, _progress())
+    table, record = read_table(data), file_record(data)
+    check_units(job.units, table, job)
+    budget = _budget(table, job, grid, precision, core, max_flash, max_cycles, grow)
+    search = partial(run_selection, allowed_nodes=None if budget is None else budget["allowed_nodes"])
+    with Progress("select") as progress:
+        result, bundle = run_interruptible(
+            search, table, job, grid, settings, growth,
+            callback=UnitClock(progress, len(table.rows), max(grid.nodes), folds, grow),
+            progress=progress)
+    bundle = with_training_data(bundle, record)
     save(bundle, output, overwrite=overwrite)
+    if budget is not None:
+        budget["frontier"] = _frontier(result, budget)
+        click.echo(_budget_lines(budget, bundle.network.n_nodes), err=True)
     if report:
-        _write_report(report, result, bundle)
+        _write_report(report, result, bundle, overwrite, budget)
     if plot:
         from nodecast.trainer.selection_plot import plot_search
 
-        plot_search(result, plot, overwrite=True)
+        net = bundle.network
+        plot_search(result, plot, overwrite=overwrite, target=net.target_names[0],
+                    unit=net.target_units[0], n_features=net.n_features)
     click.echo(_summary(result, bundle, output), err=True)
+    from nodecast.trainer.selection_plot import edge_hints
+
+    for hint in edge_hints(result):
+        click.echo(f"nodecast: hint: {hint}", err=True)
 
 
 def _jobs(text: str) -> int | None:
     if text == "auto":
         return None
-    if text.isdigit() and int(text) >= 1:
+    if text.isascii() and text.isdigit() and int(text) >= 1:
         return int(text)
     raise NodecastError(f"--jobs takes a positive integer or 'auto', got {text!r}")
 
 
-def _neighbors(items) -> list:
-    values = []
-    for item in items:
-        try:
-            values.append(None if item == "default" else int(item))
-        except ValueError:
-            raise NodecastError(f"--neighbors takes integers or 'default', got {item!r}") from None
-    return values
+class UnitClock:
+    """The search's progress callback: units done with time left, then the final refit (or the
+    growth) with an estimate from the units' measured pace (trainer.cost's work model)."""
+
+    def __init__(self, progress, rows: int, max_nodes: int, folds: int, grow: bool):
+        import time
+
+        self.progress, self.rows, self.max_nodes, self.folds = progress, rows, max_nodes, folds
+        self.grow, self.clock, self.started = grow, time.monotonic, time.monotonic()
+        progress.stage("cross-validating the grid")
+
+    def __call__(self, done: int, total: int) -> None:
+        from nodecast.trainer.cost import fit_units
+
+        spent = self.clock() - self.started
+        if done < total:
+            self.progress.stage(f"{done} of {total} (fold, k, s) units done",
+                                spent / done * total, since=self.started)
+            return
+        fold_rows = self.rows * (self.folds - 1) // self.folds
+        rate = spent / total / max(fit_units(fold_rows, self.max_nodes), 1.0)
+        if self.grow:
+            self.progress.stage("growing the chosen model in batches")
+        else:  # train's two fits (all rows, validation split) of at most the largest M
+            self.progress.stage("refitting the choice on all rows",
+                                2 * rate * fit_units(self.rows, self.max_nodes))
 
 
-def _progress():
-    if not sys.stderr.isatty():
+def _budget(table, job, grid, precision, core, max_flash, max_cycles, grow) -> dict | None:
+    """Flash and cycles of every --nodes value on ``core``, and those within the budgets."""
+    if max_flash is None and max_cycles is None:
         return None
+    from nodecast.compiler.files import parse_size
+    from nodecast.compiler.target_budget import allowed_nodes, grid_costs
+    from nodecast.trainer.training import feature_columns
 
-    def show(done: int, total: int) -> None:
-        click.echo(f"\rselect: {done}/{total} (fold, k, s) units", nl=done == total, err=True)
+    if grow:
+        raise NodecastError("--max-flash and --max-cycles apply to a grid search, not to --grow")
+    flash = None if max_flash is None else parse_size(max_flash)
+    costs = grid_costs(len(feature_columns(table.header, job)), len(job.targets), grid.nodes,
+                       precision or "float32", core)
+    return {"core": core, "precision": precision or "float32", "max_flash": flash,
+            "max_cycles": max_cycles, "costs": costs,
+            "allowed_nodes": allowed_nodes(costs, flash, max_cycles)}
 
-    return show
+
+def _frontier(result, budget) -> list[dict]:
+    """Per node count: the best cross-validated RMSE (largest over targets) beside its cost."""
+    best = {}
+    for p in result.points:
+        best[p.nodes] = min(best.get(p.nodes, float("inf")), max(p.rmse_mean))
+    return [{**cost, "cv_rmse": best[cost["nodes"]],
+             "meets_budget": cost["nodes"] in budget["allowed_nodes"]} for cost in budget["costs"]]
 
 
-def _write_report(path, result, bundle) -> None:
+def _budget_lines(budget, chosen_nodes) -> str:
+    lines = [f"budget on {budget['core']} ({budget['precision']}): nodes, flash, cycles, CV RMSE"]
+    for row in budget["frontier"]:
+        mark = " <- chosen" if row["nodes"] == chosen_nodes else (
+            "" if row["meets_budget"] else " (over budget)")
+        lines.append(f"  {row['nodes']:>6} {row['flash']:>8} B {row['cycles']:>10} "
+                     f"{row['cv_rmse']:.4g}{mark}")
+    return "\n".join(lines)
+
+
+def _write_report(path, result, bundle, overwrite: bool, budget=None) -> None:
     from nodecast.compiler.files import write_atomic
 
     document = {"bundle_id": bundle.bundle_id, "features": list(bundle.network.feature_names),
                 "targets": list(bundle.network.target_names), **result.as_dict()}
+    if budget is not None:
+        document["budget"] = budget
     text = json.dumps(document, indent=2, sort_keys=True, allow_nan=False) + "\n"
-    write_atomic(path, text.encode("utf-8"), overwrite=True)
+    write_atomic(path, text.encode("utf-8"), overwrite=overwrite)
 
 
 def _summary(result, bundle, output) -> str:

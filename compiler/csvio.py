@@ -6,7 +6,9 @@ columns are ignored. A record with nothing in any cell (an empty line, or only c
 is skipped. Errors name the line of the file where the record starts and the column: a missing
 column, an unnamed or duplicated header, a record of the wrong length, an empty cell, a cell that
 is not a plain decimal number, a number beyond float64's range. ``nan`` and ``inf`` are refused
-unless the caller allows them (``predict`` does). Output numbers are written with ``repr`` (the
+unless the caller allows them (``predict`` does). Yes/no cells read as numbers: ``yes`` and ``true``
+are 1, ``no`` and ``false`` are 0, in any letter case (spreadsheets write ``TRUE``); other text
+is refused. Output numbers are written with ``repr`` (the
 shortest text that round-trips), NaN as ``nan``.
 """
 
@@ -29,6 +31,7 @@ from nodecast.compiler.errors import NodecastError
 _DECIMAL = re.compile(r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?", re.ASCII)
 _NON_FINITE = re.compile(r"[+-]?(?:nan|inf|infinity)", re.ASCII | re.IGNORECASE)
 _SHOWN_CHARACTERS = 40
+_YES_NO = {"yes": 1.0, "true": 1.0, "no": 0.0, "false": 0.0}  # keys in lower case
 
 
 def _shown(text: str) -> str:
@@ -99,6 +102,8 @@ def _number(text: str, allow_nonfinite: bool) -> tuple[float, str | None]:
         if math.isinf(value):
             return value, f"{_shown(cell)} is beyond the range of float64 (about 1.8e308)"
         return value, None
+    if cell.isascii() and cell.lower() in _YES_NO:
+        return _YES_NO[cell.lower()], None
     if _NON_FINITE.fullmatch(cell):
         if allow_nonfinite:
             return float(cell), None

@@ -36,23 +36,54 @@ def make_readings(n_rows: int, seed: int, noise: float = 0.3) -> np.ndarray:
     return np.column_stack([X, y])
 
 
-def write_csv(path: Path, table: np.ndarray) -> None:
+DATA_FILES = ("readings.csv", "held_out.csv")
+ARTIFACTS = (("onnx", "fan.onnx", "float64"), ("c", "fan_c", "float32"),
+             ("python", "fan_predictor.py", "float64"))
+
+
+def demo_outputs(data_only: bool) -> list[str]:
+    """The names the demo writes into its folder."""
+    if data_only:
+        return list(DATA_FILES)
+    return [*DATA_FILES, "fan.ncz", *(name for _, name, _ in ARTIFACTS),
+            *(f"verify_{target}.json" for target, _, _ in ARTIFACTS)]
+
+
+def check_demo_outputs(folder: Path, data_only: bool, overwrite: bool) -> None:
+    """Before any work: refuse to replace a file of the user's unless ``overwrite``."""
+    from nodecast.compiler.files import refuse_existing
+
+    if folder.exists() and not folder.is_dir():
+        raise NodecastError(f"{folder} exists and is not a folder")
+    if not folder.is_dir():
+        return
+    for name in demo_outputs(data_only):
+        path = folder / name
+        if path.is_dir() and name == "fan_c":
+            if not overwrite and any(path.iterdir()):
+                raise NodecastError(f"{path} already exists; pass --overwrite to replace the "
+                                    "demo's files")
+        elif path.exists() or path.is_symlink():
+            refuse_existing(path, overwrite)
+
+
+def write_csv(path: Path, table: np.ndarray, overwrite: bool = False) -> None:
     from nodecast.compiler.csvio import write_table
     from nodecast.compiler.files import write_atomic
 
     text = write_table(list(FEATURES) + [TARGET], table.tolist())
-    write_atomic(path, text.encode("utf-8"), overwrite=True)  # the demo's folder is its own
+    write_atomic(path, text.encode("utf-8"), overwrite=overwrite)
 
 
-def write_data(folder: Path) -> tuple[np.ndarray, np.ndarray]:
+def write_data(folder: Path, overwrite: bool = False) -> tuple[np.ndarray, np.ndarray]:
     """Write readings.csv (2,000 noisy rows) and held_out.csv (500 noiseless rows)."""
     try:
         folder.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise NodecastError(f"cannot create the demo folder {folder}: {exc.strerror or exc}") from None
     train_rows, test_rows = make_readings(2000, seed=1), make_readings(500, seed=2, noise=0.0)
-    write_csv(folder / "readings.csv", train_rows)
-    write_csv(folder / "held_out.csv", test_rows)
+    write_csv(folder / "readings.csv", train_rows, overwrite)
+    write_csv(folder / "held_out.csv", test_rows, overwrite)
     return train_rows, test_rows
 
 
@@ -62,20 +93,22 @@ def _held_out_rmse(net, table) -> float:
     return float(np.sqrt(np.mean((predict(net, table[:, :-1])[:, 0] - table[:, -1]) ** 2)))
 
 
-def run_demo(folder: Path, echo=print) -> int:
+def run_demo(folder: Path, echo=print, overwrite: bool = False) -> int:
     from nodecast.compiler import emit, save
     from nodecast.compiler.backends import BACKENDS
     from nodecast.compiler.csvio import read_table
+    from nodecast.compiler.files import write_atomic
     from nodecast.compiler.verify import format_table, verify
     from nodecast.compiler.verify.report import to_json
     from nodecast.trainer.training import TrainingJob, train
 
-    train_rows, test_rows = write_data(folder)
+    check_demo_outputs(folder, False, overwrite)
+    train_rows, test_rows = write_data(folder, overwrite)
     job = TrainingJob(targets=(TARGET,), features=FEATURES, domain=DOMAIN, units=UNITS, seed=0,
                       params={"n_nodes": 200})
     table = read_table(folder / "readings.csv")
     bundle = train(table, job)
-    save(bundle, folder / "fan.ncz", overwrite=True)
+    save(bundle, folder / "fan.ncz", overwrite=overwrite)
     baseline = train(table, replace(job, params={"n_nodes": 200, "method": "interval"}))
     echo(f"trained fan.ncz (bundle {bundle.bundle_id[:12]}): held-out RMSE "
          f"{_held_out_rmse(bundle.network, test_rows):.4f} degC; fixed-interval U(-1, 1) "
@@ -83,17 +116,17 @@ def run_demo(folder: Path, echo=print) -> int:
     status = 0
     # ONNX in float64: a runtime's Gemm may sum in any order, so a float32 graph's certified bound
     # is far looser than the C back-end's (whose order is known); see docs/verification.md
-    for target, name, precision in (("onnx", "fan.onnx", "float64"), ("c", "fan_c", "float32"),
-                                    ("python", "fan_predictor.py", "float64")):
+    for target, name, precision in ARTIFACTS:
         try:
-            emit(bundle, target, folder / name, overwrite=True, precision=precision)
+            emit(bundle, target, folder / name, overwrite=overwrite, precision=precision)
         except Exception as exc:  # a target not built in this version is skipped, and said so
             if target in BACKENDS and "not available" in str(exc):
                 echo(f"{target}: not available in this version, skipped")
                 continue
             raise
         report = verify(bundle, folder / name, data=test_rows[:, :-1])
-        (folder / f"verify_{target}.json").write_text(to_json(report.as_dict()), encoding="utf-8")
+        write_atomic(folder / f"verify_{target}.json", to_json(report.as_dict()).encode("utf-8"),
+                     overwrite=overwrite)
         echo(f"--- {target}: {name}")
         echo(format_table(report))
         status = status or (0 if report.passed else 1)

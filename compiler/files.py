@@ -9,8 +9,12 @@ destination is intact even then. An existing destination is replaced only with `
 
 from __future__ import annotations
 
+import contextlib
+import errno
 import os
 import re
+import shutil
+import stat
 import tempfile
 from pathlib import Path
 
@@ -48,24 +52,100 @@ def check_artifact_size(kind: str, files: dict[str, bytes], limit: int) -> None:
                             f"{format_size(size)} (API: max_bytes=) if you mean it")
 
 
-def refuse_existing(path: Path, overwrite: bool) -> None:
-    """Raise unless ``path`` is free or may be replaced; a folder is never replaced by a file."""
-    if path.is_dir():
+def _kind(mode: int) -> str:
+    return ("a FIFO" if stat.S_ISFIFO(mode) else "a device" if stat.S_ISCHR(mode) or stat.S_ISBLK(mode)
+            else "a socket" if stat.S_ISSOCK(mode) else "not a regular file")
+
+
+def refuse_existing(path: Path, overwrite: bool) -> Path:
+    """Check an output file before any work; return the path to write (a symbolic link's target).
+
+    Refused: a folder, a FIFO, a device or anything else that is not a regular file (even with
+    ``overwrite``: replacing ``/dev/null`` or a pipe by a file would break the system), a symbolic
+    link to nothing, an existing file without ``overwrite``, a missing folder and a name longer
+    than the file system allows. The final write is exclusive all the same (see :func:`write_atomic`).
+    """
+    path = Path(path)
+    try:
+        status = path.lstat()
+    except FileNotFoundError:
+        _check_new_name(path)
+        return path
+    except OSError as exc:
+        if exc.errno == errno.ENAMETOOLONG:
+            _check_new_name(path)
+        raise NodecastError(f"cannot write {path}: {exc.strerror or exc}") from None
+    if stat.S_ISLNK(status.st_mode):
+        target = Path(os.path.realpath(path))
+        if not target.exists():
+            raise NodecastError(f"{path} is a symbolic link to a missing file ({target}); "
+                                "remove it or give another name")
+        return refuse_existing(target, overwrite)
+    if stat.S_ISDIR(status.st_mode):
         raise NodecastError(f"{path} is a folder; give a file name")
-    if path.exists() and not overwrite:
+    if not stat.S_ISREG(status.st_mode):
+        raise NodecastError(f"{path} is {_kind(status.st_mode)}; nodecast writes regular files only "
+                            "and never replaces anything else")
+    if not overwrite:
         raise NodecastError(f"{path} already exists; pass {OVERWRITE_OPTION} to replace it")
+    return path
+
+
+def _check_new_name(path: Path) -> None:
+    if not path.parent.is_dir():
+        raise NodecastError(f"cannot write {path}: folder {path.parent} does not exist")
+    try:
+        limit = os.pathconf(path.parent, "PC_NAME_MAX")
+    except (AttributeError, OSError, ValueError):
+        limit = 255
+    size = len(os.fsencode(path.name))
+    if size > limit:
+        raise NodecastError(f"cannot write {path.name[:40]}...: the name is {size} bytes, the file "
+                            f"system allows {limit}")
+
+
+def check_outputs(outputs: dict[str, str | None], inputs: dict[str, str | None] | None = None,
+                  overwrite: bool = False, folders: tuple[str, ...] = ()) -> None:
+    """Before any work: check every output (option -> path) as :func:`refuse_existing` does (the
+    options in ``folders`` name folders and are only checked not to clash) and refuse two outputs,
+    or an output and an input (what -> path), that are the same file."""
+    seen: dict[str, str] = {}
+    for what, path in (inputs or {}).items():
+        if path is not None:
+            seen.setdefault(_identity(path), what)
+    for option, path in outputs.items():
+        if path is None:
+            continue
+        key = _identity(path)
+        if key in seen:
+            raise NodecastError(f"{option} {path} is the same file as {seen[key]}; give another "
+                                "name (one file cannot be two things)")
+        seen[key] = option
+        if option not in folders:
+            refuse_existing(Path(path), overwrite)
+
+
+def _identity(path) -> str:
+    """A key equal for two names of one file: device and inode if it exists, else its real path."""
+    try:
+        status = os.stat(path)
+        return f"inode:{status.st_dev}:{status.st_ino}"
+    except OSError:
+        return "path:" + os.path.normcase(os.path.realpath(path))
 
 
 def _new_file_mode() -> int:
     """The permissions a plain ``open(path, "w")`` would give (temporary files start as 0600)."""
-    umask = os.umask(0)
-    os.umask(umask)
-    return 0o666 & ~umask
+    return 0o666 & ~_umask()
+
+
+def _temporary_prefix(name: str) -> str:
+    return f".{name[:40]}."  # bounded, so that a long output name still leaves room for the suffix
 
 
 def _stage(path: Path, data: bytes) -> Path:
     """Write ``data`` to a new temporary file beside ``path``; return the temporary file."""
-    fd, name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+    fd, name = tempfile.mkstemp(prefix=_temporary_prefix(path.name), suffix=".part", dir=path.parent)
     tmp = Path(name)
     try:
         with os.fdopen(fd, "wb") as handle:
@@ -93,19 +173,53 @@ def _sync_folder(folder: Path) -> None:
         os.close(fd)
 
 
-def _write_all(paths_and_data: dict[Path, bytes], overwrite: bool) -> list[Path]:
-    """Stage every file, then rename them all into place; on any failure remove what was staged."""
-    for path in paths_and_data:
-        refuse_existing(path, overwrite)
-    staged: dict[Path, Path] = {}
-    current = next(iter(paths_and_data))
+def _place(tmp: Path, path: Path, overwrite: bool) -> None:
+    """Move a staged file to ``path``: replacing only with ``overwrite``, else by exclusive creation
+    (a hard link fails if anything, even a dangling link, holds the name), so that of two runs
+    writing one name at once, one is refused instead of silently replaced."""
+    if overwrite:
+        os.replace(tmp, path)
+        return
     try:
-        for current, data in paths_and_data.items():
+        os.link(tmp, path)
+    except FileExistsError:
+        raise NodecastError(f"{path} already exists (another process just created it); pass "
+                            f"{OVERWRITE_OPTION} to replace it") from None
+    except OSError as exc:  # a file system without hard links: claim the name, then replace it
+        if exc.errno not in (errno.EPERM, errno.ENOTSUP, errno.EOPNOTSUPP, errno.EXDEV, errno.EMLINK):
+            raise
+        try:
+            os.close(os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600))
+        except FileExistsError:
+            raise NodecastError(f"{path} already exists (another process just created it); pass "
+                                f"{OVERWRITE_OPTION} to replace it") from None
+        os.replace(tmp, path)
+    else:
+        tmp.unlink()
+
+
+def _write_all(paths_and_data: dict[Path, bytes], overwrite: bool) -> list[Path]:
+    """Stage every file, then move them all into place; on any failure remove what was staged and
+    what this call created."""
+    targets = {refuse_existing(path, overwrite): data for path, data in paths_and_data.items()}
+    staged: dict[Path, Path] = {}
+    created: list[Path] = []
+    current = next(iter(targets))
+    try:
+        for current, data in targets.items():
             staged[current] = _stage(current, data)
         for current, tmp in staged.items():
-            os.replace(tmp, current)
-    except OSError as exc:
-        raise NodecastError(f"cannot write {current}: {exc.strerror or exc}") from None
+            existed = overwrite and current.exists()
+            _place(tmp, current, overwrite)
+            if not existed:
+                created.append(current)
+    except BaseException as exc:
+        if not overwrite:  # all or nothing: take back the files this call created
+            for path in created:
+                path.unlink(missing_ok=True)
+        if isinstance(exc, OSError):
+            raise NodecastError(f"cannot write {current}: {exc.strerror or exc}") from None
+        raise
     finally:
         for tmp in staged.values():
             tmp.unlink(missing_ok=True)
@@ -115,31 +229,83 @@ def _write_all(paths_and_data: dict[Path, bytes], overwrite: bool) -> list[Path]
 
 
 def write_atomic(path: str | os.PathLike, data: bytes, overwrite: bool = False) -> Path:
-    """Write ``data`` to a temporary file beside ``path``, then rename it into place."""
-    path = Path(path)
-    if not path.parent.is_dir():
-        raise NodecastError(f"cannot write {path}: folder {path.parent} does not exist")
-    return _write_all({path: data}, overwrite)[0]
+    """Write ``data`` to a temporary file beside ``path``, then move it into place (exclusively
+    unless ``overwrite``)."""
+    return _write_all({Path(path): data}, overwrite)[0]
+
+
+@contextlib.contextmanager
+def _folder_lock(folder: Path):
+    """Hold an exclusive advisory lock on ``folder`` (POSIX ``flock``): concurrent nodecast runs
+    that write into one folder take turns, so their files never mix."""
+    try:
+        import fcntl
+    except ImportError:  # no flock (Windows): the staged writes still never leave half a file
+        yield
+        return
+    fd = os.open(folder, os.O_RDONLY)
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX)
+        yield
+    finally:
+        os.close(fd)  # releases the lock
 
 
 def write_files(folder: str | os.PathLike, files: dict[str, bytes],
                 overwrite: bool = False) -> list[Path]:
-    """Write several files into ``folder`` (created if missing).
+    """Write several files into ``folder`` as a whole or not at all.
 
-    All files are written to temporary files first and renamed into place only when every one of
-    them is complete, so an interruption while writing leaves the old set untouched.
+    A new folder is written as a hidden ``.NAME.XXXX.part`` folder beside it and renamed into place
+    in one step. Into an existing folder (kept, with whatever else it holds), every file is staged
+    first and moved into place only when all are complete, under a lock on the folder, so two runs
+    writing there at once never leave one run's header beside the other's source.
     """
     folder = Path(folder)
-    if folder.exists() and not folder.is_dir():
-        raise NodecastError(f"{folder} exists and is not a folder")
     for name in files:
         if Path(name).name != name or name in ("", ".", ".."):
             raise NodecastError(f"refusing to write {name!r}: not a plain file name")
-    paths = {folder / name: data for name, data in sorted(files.items())}
-    for path in paths:
-        refuse_existing(path, overwrite)
+    if folder.is_dir():
+        with _folder_lock(folder):
+            return _write_all({folder / name: data for name, data in sorted(files.items())},
+                              overwrite)
+    if folder.exists() or folder.is_symlink():
+        raise NodecastError(f"{folder} exists and is not a folder")
+    _check_new_name(folder)
+    return _write_new_folder(folder, files)
+
+
+def _write_new_folder(folder: Path, files: dict[str, bytes]) -> list[Path]:
     try:
-        folder.mkdir(parents=True, exist_ok=True)
+        stage = Path(tempfile.mkdtemp(prefix=_temporary_prefix(folder.name), suffix=".part",
+                                      dir=folder.parent))
     except OSError as exc:
         raise NodecastError(f"cannot create folder {folder}: {exc.strerror or exc}") from None
-    return _write_all(paths, overwrite)
+    try:
+        for name, data in sorted(files.items()):
+            _stage_named(stage / name, data)
+        os.chmod(stage, 0o777 & ~_umask())
+        os.rename(stage, folder)  # fails if another run created a non-empty folder meanwhile
+    except OSError as exc:
+        if exc.errno in (errno.EEXIST, errno.ENOTEMPTY):
+            raise NodecastError(f"{folder} already exists (another process just created it); "
+                                "write into it again to add or replace files") from None
+        raise NodecastError(f"cannot create folder {folder}: {exc.strerror or exc}") from None
+    finally:
+        if stage.exists():
+            shutil.rmtree(stage, ignore_errors=True)
+    _sync_folder(folder.parent)
+    return [folder / name for name in sorted(files)]
+
+
+def _stage_named(path: Path, data: bytes) -> None:
+    with open(path, "xb") as handle:
+        handle.write(data)
+        handle.flush()
+        os.fsync(handle.fileno())
+    os.chmod(path, _new_file_mode())
+
+
+def _umask() -> int:
+    umask = os.umask(0)
+    os.umask(umask)
+    return umask

@@ -83,6 +83,7 @@ class FixedPlan:
     bt: np.ndarray
     beta: np.ndarray
     ct: np.ndarray
+    output_ceiling: tuple[float, ...] = ()  # certified max |y| over the domain, per output
 
     @property
     def table_reach(self) -> float:
@@ -195,10 +196,7 @@ def make_plan(net: Network, precision: str, table_size: int | None = None) -> Fi
     """Choose every Q format of ``net`` for ``precision`` ("q15" or "q31"); see the module doc."""
     if precision not in WORD_BITS:
         raise NodecastError(f"fixed point takes precision q15 or q31, not {precision!r}")
-    size = DEFAULT_TABLE_SIZE[precision] if table_size is None else table_size
-    if not (isinstance(size, int) and TABLE_SIZE_RANGE[0] <= size <= TABLE_SIZE_RANGE[1]):
-        raise NodecastError(f"table size must be an integer {TABLE_SIZE_RANGE[0]}.."
-                            f"{TABLE_SIZE_RANGE[1]}, got {table_size!r}")
+    size = _checked_table_size(precision, table_size)
     bits = WORD_BITS[precision]
     inputs = list(zip(*(_input_format(name, float(lo), float(hi), bits, precision) for name, lo, hi
                         in zip(net.feature_names, net.domain_low, net.domain_high, strict=True)),
@@ -214,6 +212,21 @@ def make_plan(net: Network, precision: str, table_size: int | None = None) -> Fi
     return plan
 
 
+def _checked_table_size(precision: str, table_size: int | None) -> int:
+    size = DEFAULT_TABLE_SIZE[precision] if table_size is None else table_size
+    if not (isinstance(size, int) and TABLE_SIZE_RANGE[0] <= size <= TABLE_SIZE_RANGE[1]):
+        raise NodecastError(f"table size must be an integer {TABLE_SIZE_RANGE[0]}.."
+                            f"{TABLE_SIZE_RANGE[1]}, got {table_size!r}")
+    return size
+
+
+def table_error(precision: str, table_size: int | None = None) -> float:
+    """The stated max error of the tanh table a ``precision`` plan would hold (no plan built)."""
+    if precision not in WORD_BITS:
+        raise NodecastError(f"fixed point takes precision q15 or q31, not {precision!r}")
+    return _tanh_table(precision, _checked_table_size(precision, table_size))[2]
+
+
 def _certified_result_formats(plan: FixedPlan, net: Network) -> FixedPlan:
     """Output formats wide enough for a certified max |y| over the domain (so no output can
     saturate there), when that ceiling exceeds what the probes suggested."""
@@ -226,7 +239,7 @@ def _certified_result_formats(plan: FixedPlan, net: Network) -> FixedPlan:
                    for f, c, acc in zip(plan.result_frac, ceiling, plan.output_acc_frac, strict=True))
     result = tuple(f - 1 if (2 ** (plan.word_bits - 1) - 1) * 2.0**-f < c else f
                    for f, c in zip(result, ceiling, strict=True))
-    return plan if result == plan.result_frac else replace(plan, result_frac=result)
+    return replace(plan, result_frac=result, output_ceiling=tuple(float(c) for c in ceiling))
 
 
 def _hidden_layer(net: Network, bits: int, frac, centre, half) -> dict:

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.fixedpoint import (
     INTERPOLATION_ROUNDING,
     Z_FRAC,
@@ -44,6 +45,9 @@ def estimate(net: Network, precision: str, X: np.ndarray | None = None,
     ``TABLE_COVERAGE`` times its root mean square over them (capped by sum |weight| times the
     table's maximum error, which bounds it).
     """
+    if net.n_categorical:
+        raise NodecastError(f"{precision} artifacts do not take categorical inputs yet; choose "
+                            "float32 or float64")
     plan = make_plan(net, precision, table_size)
     X = domain_probes(net) if X is None else np.asarray(X, dtype=np.float64)
     X = np.clip(X, net.domain_low, net.domain_high)

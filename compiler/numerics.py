@@ -64,16 +64,27 @@ class ErrorEstimate:
 
 def domain_probes(net: Network, count: int = _PROBES, seed: int = 0) -> np.ndarray:
     """Deterministic points of the declared domain: scrambled Sobol points plus up to 1024 corners."""
-    from scipy.stats import qmc
+    from nodecast.compiler.sobol import sobol as sobol_points  # scipy's sequence, 0.6 s faster
 
     n = net.n_features
-    sobol = qmc.Sobol(d=n, scramble=True, seed=seed).random(count)
+    sobol = sobol_points(n, count, seed)
     if n <= 10:
         corners = np.array(np.meshgrid(*[[0.0, 1.0]] * n, indexing="ij")).reshape(n, -1).T
     else:
         corners = np.random.default_rng(seed).integers(0, 2, size=(1024, n)).astype(float)
     unit = np.vstack([sobol, corners])
-    return net.domain_low + unit * (net.domain_high - net.domain_low)
+    return with_levels(net, net.domain_low + unit * (net.domain_high - net.domain_low))
+
+
+def with_levels(net: Network, X: np.ndarray, shift: int = 0) -> np.ndarray:
+    """Rows ``X`` of numeric features followed by level codes that cycle through every level of
+    every categorical input (row i takes level (i + shift) mod L of each input), so that each level
+    meets points spread through the domain; ``X`` itself when there are no categorical inputs."""
+    if not getattr(net, "n_categorical", 0):
+        return X
+    rows = np.arange(X.shape[0])[:, None] + shift
+    sizes = np.array([len(group) for group in net.categorical_levels])
+    return np.hstack([X, (rows % sizes).astype(np.float64)])
 
 
 def estimate(net: Network, precision: str, X: np.ndarray | None = None,
@@ -104,6 +115,7 @@ def estimate(net: Network, precision: str, X: np.ndarray | None = None,
     output_rounding = _OUTPUT_ROUNDINGS * unit * _max_abs_output(net, X)
     per_output = per_output + output_rounding
     gamma = lambda k: k * unit / (1.0 - k * unit)  # noqa: E731
+    n += net.n_categorical
     bound = ((gamma(m + 4) * worst[0] + gamma(n + 3) * worst[1] + systematic) * net.output_scale
              + output_rounding)
     return ErrorEstimate(precision, tuple(float(v) for v in per_output),
@@ -119,13 +131,18 @@ def _max_abs_output(net: Network, X: np.ndarray) -> np.ndarray:
 def _block_terms(net: Network, X: np.ndarray, rounds_inputs: bool):
     """Per output: max over the block of the root-sum-square rounding size (in units of u), and of
     the two worst-case sums (terms, pre-activations) that gamma_k multiplies."""
+    from nodecast.compiler.reference import hidden_layer, level_contribution
+
     act = get_activation(net.activation)
-    U = (X - net.input_offset) / net.input_scale
-    Z = U @ net.hidden_weights.T + net.hidden_biases
+    numbers = X[:, : net.n_features]
+    U = (numbers - net.input_offset) / net.input_scale
+    Z = hidden_layer(net, X)
     H, slope = act.function(Z), act.derivative(Z)
     z_size = np.abs(U) @ np.abs(net.hidden_weights).T + np.abs(net.hidden_biases)
+    if net.n_categorical:  # each level vector is one more addend of the pre-activation sum
+        z_size += np.abs(level_contribution(net, X))
     if rounds_inputs:
-        z_size += np.abs(X / net.input_scale) @ np.abs(net.hidden_weights).T
+        z_size += np.abs(numbers / net.input_scale) @ np.abs(net.hidden_weights).T
     typical = np.zeros((X.shape[0], net.n_outputs))
     worst_terms = np.zeros_like(typical)
     worst_hidden = np.zeros_like(typical)

@@ -24,7 +24,37 @@ def _pyplot():
     return plt
 
 
-def plot_node_ranges(bundle, path: str | Path) -> Path:
+NODES_FILE, PREDICTED_FILE = "nodes.png", "predicted_vs_actual.png"
+
+
+def plot_bundle(bundle, folder: str | Path, table=None, overwrite: bool = False) -> list[Path]:
+    """``inspect --plot``: nodes.png, and predicted_vs_actual.png when ``table`` (a csvio Table)
+    holds a regression bundle's target columns; every file checked before any is drawn."""
+    from nodecast.compiler.files import check_outputs
+
+    net, folder = bundle.network, Path(folder)
+    wanted = [folder / NODES_FILE]
+    labelled = (table is not None and net.task == "regression"
+                and all(name in table.header for name in net.target_names))
+    if table is not None and not labelled:
+        raise NodecastError("--data for the predicted-against-actual plot needs a regression "
+                            f"bundle and the target column(s) {', '.join(map(repr, net.target_names))}"
+                            " in the file")
+    if labelled:
+        wanted.append(folder / PREDICTED_FILE)
+    if folder.exists() and not folder.is_dir():
+        raise NodecastError(f"{folder} is a file; --plot takes a folder")
+    _pyplot()  # refuse before creating the folder when matplotlib is missing
+    folder.mkdir(parents=True, exist_ok=True)  # before the check: outputs need their folder
+    check_outputs({str(path): path for path in wanted}, None, overwrite)
+    written = [plot_node_ranges(bundle, wanted[0], overwrite)]
+    if labelled:
+        X, y = table.numbers(net.feature_names), table.numbers(net.target_names)
+        written.append(plot_predicted_vs_actual(bundle, X, y, wanted[1], overwrite))
+    return written
+
+
+def plot_node_ranges(bundle, path: str | Path, overwrite: bool = True) -> Path:
     """One horizontal bar per node: the range its pre-activation z takes over the declared box.
 
     The shaded band is the activation's steep part (10% to 90% of its range); a bar that never
@@ -50,10 +80,11 @@ def plot_node_ranges(bundle, path: str | Path) -> Path:
     ax.set_ylabel("hidden node (sorted by the centre of its range)")
     ax.set_title(f"{net.n_nodes} {net.activation} nodes over the declared input domain")
     ax.legend(loc="best", fontsize=8, framealpha=0.9)
-    return _save(fig, plt, path)
+    return _save(fig, plt, path, overwrite)
 
 
-def plot_predicted_vs_actual(bundle, X: np.ndarray, y: np.ndarray, path: str | Path) -> Path:
+def plot_predicted_vs_actual(bundle, X: np.ndarray, y: np.ndarray, path: str | Path,
+                             overwrite: bool = True) -> Path:
     """Scatter of the reference prediction against the actual value, for each regression target."""
     from nodecast.compiler import reference
 
@@ -70,17 +101,27 @@ def plot_predicted_vs_actual(bundle, X: np.ndarray, y: np.ndarray, path: str | P
         ax.scatter(y[:, o], predicted[:, o], s=6, alpha=0.6)
         ends = [min(y[:, o].min(), predicted[:, o].min()), max(y[:, o].max(), predicted[:, o].max())]
         ax.plot(ends, ends, color="0.4", lw=1)
-        unit = f" [{net.target_units[o]}]" if net.target_units[o] else ""
-        ax.set_xlabel(f"actual {net.target_names[o]}{unit}")
-        ax.set_ylabel(f"predicted{unit}")
-        ax.set_title(f"RMSE {rmse:.3g} on {y.shape[0]} rows")
-    return _save(fig, plt, path)
+        ax.set_xlabel(f"actual {net.target_names[o]}{_unit(net.target_units[o])}")
+        ax.set_ylabel(f"predicted{_unit(net.target_units[o])}")
+        ax.set_title(f"{net.target_names[o]}: RMSE {rmse:.3g}"
+                     + (f" {net.target_units[o]}" if net.target_units[o] else "")
+                     + f" on {y.shape[0]} rows")
+    return _save(fig, plt, path, overwrite)
 
 
-def _save(fig, plt, path) -> Path:
-    path = Path(path)
+def _unit(unit: str) -> str:
+    return f" [{unit}]" if unit else ""
+
+
+def _save(fig, plt, path, overwrite: bool) -> Path:
+    import io
+
+    from nodecast.compiler.files import write_atomic
+
+    path, buffer = Path(path), io.BytesIO()
     fig.tight_layout()
     # no timestamp or software tag in the file, so the same bundle gives the same picture
-    fig.savefig(path, metadata={"Software": None})
+    fig.savefig(buffer, format="png", metadata={"Software": None})
     plt.close(fig)
+    write_atomic(path, buffer.getvalue(), overwrite=overwrite)
     return path

@@ -11,30 +11,65 @@ _BLOCK_ROWS = 8192
 
 
 def as_rows(net: Network, X) -> np.ndarray:
-    """Return ``X`` as a float64 array of shape (n_rows, n_features), or raise ValueError."""
+    """Return ``X`` as a float64 array of shape (n_rows, n_inputs), or raise ValueError.
+
+    A row holds the numeric features, then one level code per categorical input (see ir.py)."""
     X = np.asarray(X, dtype=np.float64)
     if X.ndim == 1:
         X = X.reshape(1, -1)
-    if X.ndim != 2 or X.shape[1] != net.n_features:
-        raise ValueError(f"expected rows of {net.n_features} features, got an array of shape {X.shape}")
+    if X.ndim != 2 or X.shape[1] != net.n_inputs:
+        levels = f" and {net.n_categorical} level codes" if net.n_categorical else ""
+        raise ValueError(f"expected rows of {net.n_features} features{levels}, got an array of "
+                         f"shape {X.shape}")
     return X
 
 
+def level_codes(net: Network, X: np.ndarray) -> np.ndarray:
+    """The level codes of rows ``X`` as integers of shape (n_rows, n_categorical); -1 for a code
+    that names no level (negative, too large, fractional or NaN)."""
+    raw = X[:, net.n_features:]
+    sizes = np.array([len(group) for group in net.categorical_levels], dtype=np.float64)
+    with np.errstate(invalid="ignore"):
+        known = (raw >= 0) & (raw < sizes) & (raw == np.floor(raw))
+    return np.where(known, np.nan_to_num(raw), -1).astype(np.int64)
+
+
 def clamp_to_domain(net: Network, X: np.ndarray) -> np.ndarray:
-    """Clip every feature into the declared domain (NaN stays NaN)."""
-    return np.clip(X, net.domain_low, net.domain_high)
+    """Clip every feature into the declared domain (NaN stays NaN); an unknown level becomes
+    level 0."""
+    out = np.array(X, dtype=np.float64)
+    out[:, : net.n_features] = np.clip(X[:, : net.n_features], net.domain_low, net.domain_high)
+    if net.n_categorical:
+        out[:, net.n_features:] = np.maximum(level_codes(net, X), 0)
+    return out
 
 
 def outside_domain(net: Network, X: np.ndarray) -> np.ndarray:
-    """Boolean mask of the rows with a feature outside the declared domain (NaN counts as outside)."""
-    inside = (X >= net.domain_low) & (X <= net.domain_high)
-    return ~np.all(inside, axis=1)
+    """Boolean mask of the rows with a feature outside the declared domain (NaN counts as outside)
+    or an unknown level."""
+    numbers = X[:, : net.n_features]
+    inside = np.all((numbers >= net.domain_low) & (numbers <= net.domain_high), axis=1)
+    if net.n_categorical:
+        inside &= np.all(level_codes(net, X) >= 0, axis=1)
+    return ~inside
+
+
+def level_contribution(net: Network, X: np.ndarray) -> np.ndarray:
+    """Sum of the level vectors of each row's levels, shape (n_rows, n_nodes); an unknown level
+    adds nothing (the all-zero one-hot)."""
+    total = np.zeros((X.shape[0], net.n_nodes))
+    codes = level_codes(net, X)
+    for c in range(net.n_categorical):
+        known = codes[:, c] >= 0
+        total[known] += net.level_weights[net.level_start(c) + codes[known, c]]
+    return total
 
 
 def hidden_layer(net: Network, X: np.ndarray) -> np.ndarray:
-    """Pre-activations Z of shape (n_rows, n_nodes) for raw inputs X."""
-    U = (X - net.input_offset) / net.input_scale
-    return U @ net.hidden_weights.T + net.hidden_biases
+    """Pre-activations Z of shape (n_rows, n_nodes) for raw input rows X."""
+    U = (X[:, : net.n_features] - net.input_offset) / net.input_scale
+    Z = U @ net.hidden_weights.T + net.hidden_biases
+    return Z + level_contribution(net, X) if net.n_categorical else Z
 
 
 def predict(net: Network, X, out_of_domain: str = "pass") -> np.ndarray:

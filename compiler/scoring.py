@@ -91,8 +91,10 @@ def label_column(bundle, override: str | None = None) -> str:
 
 
 def _features(bundle, table) -> np.ndarray:
+    from nodecast.compiler.levels import table_rows
+
     net = bundle.network
-    X = table.numbers(net.feature_names)
+    X = table_rows(table, net)
     bad = np.argwhere(~np.isfinite(X))
     if bad.size:
         row, col = bad[0]

@@ -50,12 +50,22 @@ def binutil(compiler: str, tool: str) -> str:
     return shutil.which(prefix + tool) or tool
 
 
+def artifact_environment() -> dict[str, str]:
+    """The environment generated code runs in during verify: no variables of the user's (tokens,
+    credentials, library paths), only a plain PATH and the C locale."""
+    env = {"PATH": os.defpath, "LC_ALL": "C"}
+    if os.name == "nt":  # Windows programs need these to start
+        env.update({k: os.environ[k] for k in ("SYSTEMROOT", "WINDIR") if k in os.environ})
+    return env
+
+
 def run(command: list[str], cwd: Path | None = None, stdin: bytes | None = None,
-        timeout: float = TIMEOUT) -> bytes:
-    """Run ``command`` and return its stdout; raise NodecastError with its first error lines."""
+        timeout: float = TIMEOUT, env: dict[str, str] | None = None) -> bytes:
+    """Run ``command`` and return its stdout; raise NodecastError with its first error lines.
+    ``env``: the child's whole environment (None: this process's)."""
     try:
         done = subprocess.run(command, cwd=cwd, input=stdin, capture_output=True, timeout=timeout,
-                              check=False)
+                              check=False, env=env)
     except FileNotFoundError:
         raise NodecastError(f"{command[0]} is not installed") from None
     except subprocess.TimeoutExpired:

@@ -91,7 +91,7 @@ def test_standalone_predictor_runs_isolated_and_matches_the_reference(tmp_path):
     assert np.max(np.abs(got - want)) <= 1e-10 * np.ptp(want)  # SPEC: float64 artifacts
 
 
-def test_firmware_example_runs_on_emulated_cortex_m4_within_the_estimate(tmp_path):
+def test_firmware_example_runs_on_emulated_cortex_m4_within_the_bound(tmp_path):
     import os
     import shutil
 
@@ -102,8 +102,27 @@ def test_firmware_example_runs_on_emulated_cortex_m4_within_the_estimate(tmp_pat
             raise AssertionError(f"CI must install {', '.join(missing)} (see .ci/run)")
         pytest.skip(f"needs {', '.join(missing)}")
     result = _run("firmware/run.sh", tmp_path)
-    assert "within the estimate" in result.stdout
+    assert "within the bound" in result.stdout
     assert json.loads((tmp_path / "verify_m4.json").read_text())["passed"] is True
     lines = (tmp_path / "firmware" / "results.txt").read_text().split("\n")
     assert len([line for line in lines if line.startswith("0 ")]) == 16  # every reading accepted
     assert "cortex-m0" in result.stderr  # emit printed the footprint table
+
+
+def test_python_api_example_exports_a_tuned_pipeline_that_every_artifact_computes(tmp_path):
+    from nodecast.compiler import load, reference
+    from nodecast.compiler.csvio import read_table
+
+    _run("python_api/run.sh", tmp_path)
+    summary = json.loads((tmp_path / "summary.json").read_text())
+    bundle = load(tmp_path / "fan.ncz")
+    assert summary["bundle_id"] == bundle.bundle_id
+    assert bundle.metadata["pipeline"][0].endswith("StandardScaler")
+    assert bundle.network.feature_names == ("ambient_temp", "fan_speed", "load_current",
+                                            "supply_voltage")  # the DataFrame's columns
+    for target in ("python", "onnx", "c"):
+        assert 0 <= summary[target]["max_abs_error"] <= summary[target]["tolerance"]
+    X = read_table(tmp_path / "held_out.csv").numbers(bundle.network.feature_names)
+    got = read_table(tmp_path / "predictions.csv").numbers(["heatsink_temp"])[:, 0]
+    want = reference.predict(bundle.network, X)[:, 0]
+    assert np.max(np.abs(got - want)) <= 1e-10 * np.ptp(want)  # SPEC: float64 artifacts

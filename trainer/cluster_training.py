@@ -3,14 +3,15 @@
 
 from __future__ import annotations
 
+import numpy as np
+
 from nodecast.compiler.errors import NodecastError
 from nodecast.trainer import partition_passes as passes
 from nodecast.trainer.distributed import ClusterRows, figures_on_cluster, fit_on_cluster
 from nodecast.trainer.domain_stats import DomainStats
-from nodecast.trainer.export import to_bundle
 from nodecast.trainer.streamed_fit import StreamedFit
 from nodecast.trainer.streaming import RowStats, StreamedTraining
-from nodecast.trainer.training import TrainingJob, make_estimator
+from nodecast.trainer.training import TrainingJob, heavy_tailed, make_estimator, model_bundle
 
 
 class ClusterTraining(StreamedTraining):
@@ -43,23 +44,19 @@ class ClusterTraining(StreamedTraining):
                 check = None
             if check is not None:
                 metrics["validation"] = figures_on_cluster(check, job.task, self.rows, "held", *f)
-        units = dict(job.units)
-        target_names = tuple(map(str, model.classes_)) if self.classify else job.targets
-        return to_bundle(
-            model, feature_names=self.features, target_names=target_names,
-            feature_units=[units.get(name, "") for name in self.features],
-            target_units=[units.get(name, "") for name in target_names],
-            metadata={"seed": job.seed, "metrics": metrics, "rows": self.all.rows,
-                      "rows_outside_domain": self.outside, "targets": list(job.targets),
-                      "validation_fraction": job.validation_fraction})
+        heavy = heavy_tailed(np.concatenate(self.strided_x), self.features, strided=True)
+        return model_bundle(job, model, self.features, metrics, self.all.rows, self.outside, heavy)
 
     def _cluster_fit(self, stats: RowStats, which: str):
         fit = StreamedFit(make_estimator(self.job, self.low, self.high), self.job.task,
                           len(self.features))
         try:
             fit.start(stats.rows, stats.y_low, stats.y_high, stats.labels)
-            return fit_on_cluster(fit, self.rows, which, self.kept_counts,
-                                  self.job.validation_fraction, self.job.seed)
+            model = fit_on_cluster(fit, self.rows, which, self.kept_counts,
+                                   self.job.validation_fraction, self.job.seed)
+            if which == "all":
+                self.strided_x = fit.strided_x
+            return model
         except ValueError as exc:
             if which == "kept":
                 raise

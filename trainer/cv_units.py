@@ -1,4 +1,5 @@
-"""One unit of the search: one fold, one neighbour count k, one slope scale s.
+"""One unit of the search: one fold, one hidden layer (a generator and its hyper-parameters, for
+example data-driven with neighbour count k and slope scale s).
 
 A unit draws the hidden layer of max(M) nodes once from the fold's training rows, folds those rows
 into one QR factor in a single pass, and scores every (ridge, M) pair on the fold's validation rows:
@@ -17,6 +18,7 @@ from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import Network
 from nodecast.trainer import solvers
 from nodecast.trainer.folds import SplitData, draw_layer, hidden_outputs, split_data
+from nodecast.trainer.method_grid import LayerSpec
 from nodecast.trainer.prefix_solve import prefix_solutions
 
 _BLOCK_ENTRIES = 2**23  # hidden-layer entries per block of rows (64 MiB of float64)
@@ -24,10 +26,10 @@ _BLOCK_ENTRIES = 2**23  # hidden-layer entries per block of rows (64 MiB of floa
 
 @dataclass(frozen=True)
 class UnitSettings:
-    """What one unit needs besides the data: the grid axes it covers and the shared settings."""
+    """What one unit needs besides the data: the layer it draws, the grid axes it covers and the
+    shared settings."""
 
-    n_neighbors: int
-    slope_scale: float
+    layer: LayerSpec
     nodes: tuple[int, ...]
     ridges: tuple[float, ...]
     seed: int
@@ -49,7 +51,7 @@ class UnitScores:
 
 
 def evaluate_unit(X, Y, split, declared, settings: UnitSettings, probes=None) -> UnitScores:
-    """Score one (fold, k, s) unit, with single-threaded BLAS.
+    """Score one (fold, layer) unit, with single-threaded BLAS.
 
     One BLAS thread per unit keeps the arithmetic, and so every bit of the result, the same
     however many units run at once (``n_jobs``), and spares the small triangular kernels the
@@ -69,7 +71,8 @@ def evaluate_unit(X, Y, split, declared, settings: UnitSettings, probes=None) ->
 def _evaluate(X, Y, split, declared, settings: UnitSettings, probes) -> UnitScores:
     data = split_data(X, Y, split[0], split[1], *declared)
     layer = draw_layer(data.U_train, data.T_train, max(settings.nodes), settings.seed,
-                       settings.activation, settings.n_neighbors, settings.slope_scale)
+                       settings.activation, method=settings.layer.method,
+                       **settings.layer.kwargs)
     factor = solvers.accumulate(_blocks(layer, data, settings.activation))
     H_valid = hidden_outputs(layer, data.U_valid, settings.activation)
     shape = (len(settings.ridges), len(settings.nodes))

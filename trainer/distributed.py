@@ -19,6 +19,7 @@ import numpy as np
 
 from nodecast.compiler.errors import NodecastError
 from nodecast.trainer import partition_passes as passes
+from nodecast.trainer import ridge_choice, solvers
 from nodecast.trainer.metrics import MetricSums
 from nodecast.trainer.streamed_fit import StreamedFit
 
@@ -95,23 +96,17 @@ class ClusterRows:
 
 
 def fit_on_cluster(fit: StreamedFit, rows: ClusterRows, which: str, kept_counts, fraction, seed):
-    """Passes 1 to 3 of ``fit`` over the rows ``which`` of the partitions; returns the estimator."""
+    """The passes of ``fit`` over the rows ``which`` of the partitions; returns the estimator."""
     from dask import delayed
 
-    shared = delayed(fit, pure=True)  # one copy per worker, not one per task
     global_starts = rows.starts()
     counts = rows.counts() if which == "all" else kept_counts
     starts = rows.starts(counts)
     select = [(which, g, fraction, seed) for g in global_starts]
-    results = rows.compute([delayed(passes.anchors)(p, s, shared, w)
-                            for p, s, w in zip(rows.parts, starts, select, strict=True)], "anchors")
-    for (outside, low, high, anchor_rows), s, r in zip(results, starts, counts, strict=True):
-        fit.outside += outside
-        if fit.plan is not None:
-            np.minimum(fit.u_low, low, out=fit.u_low)
-            np.maximum(fit.u_high, high, out=fit.u_high)
-            here = (fit.plan.anchors >= s) & (fit.plan.anchors < s + r)
-            fit.anchor_rows[here] = anchor_rows[here]
+    shared = delayed(fit, pure=True)  # one copy per worker, not one per task
+    parts = rows.compute([delayed(passes.anchors)(p, s, shared, w)
+                          for p, s, w in zip(rows.parts, starts, select, strict=True)], "anchors")
+    _merge_anchor_passes(fit, parts)
     if fit.finish_anchors():
         shared = delayed(fit, pure=True)
         found = rows.compute([delayed(passes.neighbours)(p, s, shared, w)
@@ -119,12 +114,38 @@ def fit_on_cluster(fit: StreamedFit, rows: ClusterRows, which: str, kept_counts,
                              "neighbours")
         for nearest in found:
             fit.nearest.merge(nearest)
-        fit.finish_neighbours()
     shared = delayed(fit, pure=True)
-    factors = [delayed(passes.factor)(p, shared, w) for p, w in zip(rows.parts, select, strict=True)]
-    factor, ranges = rows.reduce(factors, passes.combine, "factor")
-    fit.estimator._solve_output(factor, ranges)
+
+    def factor_pass(layer):
+        shared_layer = delayed(layer, pure=True)
+        tasks = [delayed(passes.factor)(p, shared, shared_layer, w)
+                 for p, w in zip(rows.parts, select, strict=True)]
+        rest, design, targets, ranges = rows.reduce(tasks, passes.combine, "factor")
+        if rest is None:
+            raise ValueError("no rows to fit")
+        if fit.checked is None:
+            return rest, ranges, None
+        check = ridge_choice.HeldOut(rest, design, targets)
+        with solvers.single_blas_thread():
+            return solvers.accumulate_designs([(design, targets)], start=rest), ranges, check
+
+    fit.fit_output(factor_pass)
     return fit.estimator
+
+
+def _merge_anchor_passes(fit: StreamedFit, parts) -> None:
+    """Take the partitions' pass-1 results (in row order) into ``fit``."""
+    for part in parts:
+        fit.outside += part.outside
+        fit.check_count += part.check_count
+        fit.strided_x += part.strided_x
+        if fit.plan is not None:
+            np.minimum(fit.u_low, part.u_low, out=fit.u_low)
+            np.maximum(fit.u_high, part.u_high, out=fit.u_high)
+            here = ~np.isnan(part.anchor_rows[:, 0])
+            fit.anchor_rows[here] = part.anchor_rows[here]
+            fit.strided_u += part.strided_u
+            fit.strided_t += part.strided_t
 
 
 def figures_on_cluster(model, task: str, rows: ClusterRows, which: str, fraction, seed) -> dict:

@@ -15,10 +15,13 @@ from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import check_is_fitted, validate_data
 
 from nodecast.compiler.activations import get_activation
-from nodecast.trainer import ridge_choice, solvers
+from nodecast.trainer import layer_choice, ridge_choice, solvers
 from nodecast.trainer.generators import GENERATORS
+from nodecast.trainer.generators.slope_angle import DEFAULT_ANGLES
+from nodecast.trainer.generators.weight_sum import DEFAULT_SUMS
 from nodecast.trainer.hidden import PreactivationRange, block_bounds, design_blocks
 from nodecast.trainer.memory import check_fits_in_memory
+from nodecast.trainer.method_grid import valid_angles, valid_sums
 
 DEFAULT_RIDGE = "auto"  # chosen per fit, see nodecast.trainer.ridge_choice and docs/training.md
 
@@ -39,6 +42,30 @@ def _fit_dask(estimator, X, y, classify: bool):
     return fit_dask(estimator, X, y, classify)
 
 
+def fold_designs(pieces, checked=None):
+    """(factor, check) from (U block, design [1, H] block, T block) triples in row order: the
+    solver's factor of all rows and, for ``checked`` rows (a
+    :class:`~nodecast.trainer.ridge_choice.CheckRows`, or None), the held-out check's data. The
+    rows outside the check set are folded first and the check rows after them, whatever the
+    ridge, so that giving the ridge "auto" chose reproduces the model bit for bit. The blocks may
+    come from memory, from chunks regrouped into the same blocks, or from one partition."""
+    if checked is None:
+        return solvers.accumulate_designs((D, T) for _, D, T in pieces), None
+    held, held_targets = [], []
+
+    def outside_check():
+        for U, D, T in pieces:
+            rows = checked.mask(U)
+            held.append(D[rows])
+            held_targets.append(T[rows])
+            yield D[~rows], T[~rows]
+
+    rest = solvers.accumulate_designs(outside_check())
+    check = ridge_choice.HeldOut(rest, np.concatenate(held), np.concatenate(held_targets))
+    factor = solvers.accumulate_designs([(check.design, check.targets)], start=rest)
+    return factor, check
+
+
 def _is_count(value, minimum: int = 1) -> bool:
     return isinstance(value, (int, np.integer)) and not isinstance(value, bool) and value >= minimum
 
@@ -48,9 +75,9 @@ def _is_positive(value) -> bool:
 
 
 class _RandomNodeBase(BaseEstimator):
-    def __init__(self, n_nodes=200, method="data-driven", n_neighbors=None, slope_scale=1.0,
+    def __init__(self, n_nodes=200, method="data-driven", n_neighbors="auto", slope_scale="auto",
                  ridge=DEFAULT_RIDGE, activation="logistic", interval=1.0, domain=None,
-                 random_state=None):
+                 random_state=None, angle_range=DEFAULT_ANGLES, weight_sum=DEFAULT_SUMS):
         self.n_nodes = n_nodes
         self.method = method
         self.n_neighbors = n_neighbors
@@ -60,6 +87,8 @@ class _RandomNodeBase(BaseEstimator):
         self.interval = interval
         self.domain = domain
         self.random_state = random_state
+        self.angle_range = angle_range
+        self.weight_sum = weight_sum
 
     def _check_params(self) -> None:
         if self.method not in GENERATORS:
@@ -67,14 +96,22 @@ class _RandomNodeBase(BaseEstimator):
         get_activation(self.activation)
         if not _is_count(self.n_nodes):
             raise ValueError(f"n_nodes must be a positive integer, got {self.n_nodes!r}")
-        if self.n_neighbors is not None and not _is_count(self.n_neighbors):
-            raise ValueError(f"n_neighbors must be a positive integer or None, got {self.n_neighbors!r}")
+        if self.n_neighbors not in (None, "auto") and not _is_count(self.n_neighbors):
+            raise ValueError(f"n_neighbors must be a positive integer, None or 'auto', got "
+                             f"{self.n_neighbors!r}")
         if not (self.ridge == "auto" or _is_positive(self.ridge)
                 or (isinstance(self.ridge, (int, float, np.number)) and self.ridge == 0)):
             raise ValueError(f"ridge must be 'auto' or a finite number >= 0, got {self.ridge!r}")
-        for name in ("slope_scale", "interval"):
-            if not _is_positive(getattr(self, name)):
-                raise ValueError(f"{name} must be a finite positive number, got {getattr(self, name)!r}")
+        if not (self.slope_scale == "auto" or _is_positive(self.slope_scale)):
+            raise ValueError(f"slope_scale must be 'auto' or a finite positive number, got "
+                             f"{self.slope_scale!r}")
+        if not _is_positive(self.interval):
+            raise ValueError(f"interval must be a finite positive number, got {self.interval!r}")
+        if not valid_angles(self.angle_range):
+            raise ValueError(f"angle_range must be (min, max) degrees with 0 <= min <= max < 90, "
+                             f"got {self.angle_range!r}")
+        if not valid_sums(self.weight_sum):
+            raise ValueError(f"weight_sum must be (r, s) with 0 < r <= s, got {self.weight_sum!r}")
 
     def _input_box(self, X: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         if self.domain is None:
@@ -100,22 +137,51 @@ class _RandomNodeBase(BaseEstimator):
         self.output_offset_, self.output_scale_ = self._target_scaling(Y)
         U = (X - self.input_offset_) / self.input_scale_
         T = (Y - self.output_offset_) / self.output_scale_
-        layer = GENERATORS[self.method](
-            U, T, int(self.n_nodes), rng, activation, n_neighbors=self.n_neighbors,
-            slope_scale=float(self.slope_scale), interval=float(self.interval))
+        layer, factor, ranges, check = self._draw_and_factor(U, T, rng, activation)
         self.hidden_weights_, self.hidden_biases_ = layer.weights, layer.biases
         self.diagnostics_ = {**layer.diagnostics, **self._data_diagnostics(X)}
-        factor, ranges = self._accumulate(U, T, activation)
-        self._solve_output(factor, ranges)
+        self._solve_output(factor, ranges, check)
 
-    def _solve_output(self, factor, ranges: PreactivationRange) -> None:
-        """The ridge and the output layer from the factor of [1, H] (however it was accumulated)."""
+    def _solve_output(self, factor, ranges: PreactivationRange, check=None) -> None:
+        """The ridge and the output layer from the factor of [1, H] (however it was accumulated)
+        and the held-out check's data (None: no check)."""
         self.training_z_low_, self.training_z_high_ = ranges.low, ranges.high
         if self.ridge == "auto":
-            self.ridge_, self.ridge_choice_ = ridge_choice.choose(factor, self._float32_error(factor))
+            self.ridge_, self.ridge_choice_ = ridge_choice.choose(
+                factor, self._float32_error(factor), check)
         else:
             self.ridge_, self.ridge_choice_ = float(self.ridge), {"rule": "given"}
         self.coef_, self.intercept_ = solvers.solve(factor, self.ridge_)
+
+    def _draw_and_factor(self, U, T, rng, activation):
+        """The hidden layer, the output layer's factor and the pre-activation ranges; data-driven
+        k and s given as "auto" are chosen by :mod:`nodecast.trainer.layer_choice`."""
+        state = rng.get_state()
+
+        def fit_layer(n_neighbors, slope_scale):
+            rng.set_state(state)  # every candidate draws as a plain fit with its settings would
+            layer = GENERATORS[self.method](
+                U, T, int(self.n_nodes), rng, activation, n_neighbors=n_neighbors,
+                slope_scale=float(slope_scale), interval=float(self.interval),
+                angle_range=tuple(self.angle_range), weight_sum=tuple(self.weight_sum))
+            # the rows are folded in the same order whatever the ridge, so that giving the ridge
+            # "auto" chose reproduces the model bit for bit
+            checked = ridge_choice.check_rows(U, rng)
+            with solvers.single_blas_thread():  # threaded products round differently: one
+                # thread, the same bundle whatever the machine (docs/reliability.md)
+                return (layer,) + self._accumulate(layer, U, T, activation, checked)
+
+        auto = self.method == "data-driven" and "auto" in (self.n_neighbors, self.slope_scale)
+        if not auto:
+            fitted = fit_layer(self.n_neighbors, 1.0 if self.slope_scale == "auto" else self.slope_scale)
+            self.layer_choice_ = {"rule": "given"}
+            self.slope_scale_ = None if self.method != "data-driven" else float(self.slope_scale)
+            return fitted
+        varying = int(np.sum(np.ptp(U, axis=0) > 0))
+        fitted, _, s, self.layer_choice_ = layer_choice.choose(
+            fit_layer, self.n_neighbors, self.slope_scale, self.ridge, varying, U.shape[0])
+        self.slope_scale_ = float(s)
+        return fitted
 
     def _float32_error(self, factor):
         """callable(ridge) -> certified float32 export error of the default C artifact (normalised
@@ -143,15 +209,16 @@ class _RandomNodeBase(BaseEstimator):
         return {"constant_features": int(np.sum(self.domain_high_ == self.domain_low_)),
                 "rows_outside_domain": int(outside.sum())}
 
-    def _accumulate(self, U: np.ndarray, T: np.ndarray, activation):
-        """The output layer's factor over row blocks, and each node's pre-activation range."""
-        bounds = block_bounds(U.shape[0], self.hidden_weights_.shape[0])
-        ranges = PreactivationRange(self.hidden_weights_.shape[0])
-        blocks = design_blocks(U, self.hidden_weights_, self.hidden_biases_, activation, bounds,
-                               ranges)
-        factor = solvers.accumulate_designs(
-            (D, T[start:stop]) for (start, stop), D in zip(bounds, blocks, strict=True))
-        return factor, ranges
+    def _accumulate(self, layer, U: np.ndarray, T: np.ndarray, activation, checked=None):
+        """The output layer's factor over row blocks, each node's pre-activation range, and (for
+        the ``checked`` rows, a :class:`~nodecast.trainer.ridge_choice.CheckRows`) the held-out
+        check of the default ridge."""
+        bounds = block_bounds(U.shape[0], layer.weights.shape[0])
+        ranges = PreactivationRange(layer.weights.shape[0])
+        blocks = design_blocks(U, layer.weights, layer.biases, activation, bounds, ranges)
+        pieces = ((U[start:stop], D, T[start:stop]) for (start, stop), D in zip(bounds, blocks, strict=True))
+        factor, check = fold_designs(pieces, checked)
+        return factor, ranges, check
 
     def _target_scaling(self, Y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         return _normaliser(Y.min(axis=0), Y.max(axis=0))
@@ -175,20 +242,27 @@ _PARAMETERS = """
     ----------
     n_nodes : int, default 200
         Hidden nodes M.
-    method : {"data-driven", "interval", "domain-anchored"}, default "data-driven"
-        Hidden-node generator (:mod:`nodecast.trainer.generators`).
-    n_neighbors : int or None, default None
-        Neighbours k of the data-driven local fits (None: max(10, 2 (n + 1)); at most the rows).
-    slope_scale : float, default 1.0
-        Factor s on the data-driven slopes (1 is the published method).
+    method : {"data-driven", "interval", "domain-anchored", "slope-angle", "weight-sum"}, \
+default "data-driven"
+        Hidden-node generator (:mod:`nodecast.trainer.generators`, docs/training.md).
+    n_neighbors : int, None or "auto", default "auto"
+        Neighbours k of the data-driven local fits (None: max(10, 2 (n + 1)), at most 128; at most the rows;
+        "auto": chosen by generalized cross-validation, :mod:`nodecast.trainer.layer_choice`).
+    slope_scale : float or "auto", default "auto"
+        Factor s on the data-driven slopes (1 is the published method; "auto" as for k).
     ridge : float or "auto", default "auto"
         Penalty lambda on the output weights in normalised coordinates, objective
         ||H beta + c - T||^2 + lambda ||beta||^2 (0: minimum-norm least squares). "auto":
-        generalized cross-validation on a grid, raised where needed until the estimated float32
-        export error is at most 2% of the estimated error (:mod:`nodecast.trainer.ridge_choice`).
+        generalized cross-validation on a grid checked on held-out rows (the larger ridge within
+        noise preferred), raised where needed until the estimated float32 export error is at
+        most 2% of the estimated error (:mod:`nodecast.trainer.ridge_choice`).
     activation : {"logistic", "tanh"}, default "logistic"
     interval : float, default 1.0
-        u of the U(-u, u) weight draws of the baseline methods.
+        u of the U(-u, u) weight draws of the interval and domain-anchored methods.
+    angle_range : (min, max), default (0, 70)
+        Slope angles in degrees of the slope-angle method, 0 <= min <= max < 90.
+    weight_sum : (r, s), default (2, 10)
+        Interval of each node's sum of weight magnitudes, weight-sum method, 0 < r <= s.
     domain : (low, high) or None, default None
         The declared input box, one value per feature each (None: the training data's range).
         Rows outside it are counted in ``diagnostics_``, not dropped.
@@ -204,6 +278,8 @@ _PARAMETERS = """
     training_z_low_, training_z_high_ : ndarray of shape (n_nodes,), each node's pre-activation
         range over the training rows.
     ridge_ : float, the lambda used; ridge_choice_ : dict, how it was chosen.
+    slope_scale_ : float or None, the data-driven s used; layer_choice_ : dict, how k and s were
+        chosen (the k used is ``diagnostics_["neighbors"]``).
     diagnostics_ : dict of counts (degenerate neighbourhoods, constant features, rows outside the
         domain), see docs/training.md.
 """

@@ -87,13 +87,13 @@ def split_data(X, Y, train, valid, declared_low, declared_high) -> SplitData:
         output_offset=output_offset, output_scale=output_scale)
 
 
-def draw_layer(U, T, n_nodes: int, seed: int, activation: str, n_neighbors: int | None,
-               slope_scale: float, method: str = "data-driven",
-               interval: float = 1.0) -> HiddenLayer:
+def draw_layer(U, T, n_nodes: int, seed: int, activation: str, n_neighbors: int | None = None,
+               slope_scale: float = 1.0, method: str = "data-driven", **generator) -> HiddenLayer:
     """The hidden layer an estimator with these settings and ``random_state=seed`` draws on the
-    normalised rows U of shape (N, n) with normalised targets T of shape (N, t)."""
+    normalised rows U of shape (N, n) with normalised targets T of shape (N, t); ``generator``
+    holds the other generators' settings (``interval``, ``angle_range``, ``weight_sum``)."""
     return GENERATORS[method](U, T, n_nodes, check_random_state(seed), get_activation(activation),
-                              n_neighbors=n_neighbors, slope_scale=slope_scale, interval=interval)
+                              n_neighbors=n_neighbors, slope_scale=slope_scale, **generator)
 
 
 def hidden_outputs(layer: HiddenLayer, U: np.ndarray, activation: str, n_nodes: int | None = None):

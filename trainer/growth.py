@@ -68,7 +68,7 @@ class _FoldGrowth:
         self.data = split_data(X, Y, split[0], split[1], *declared)
         self.activation, self.ridge = settings.activation, point.ridge
         self.layer = draw_layer(self.data.U_train, self.data.T_train, pool, settings.seed,
-                                settings.activation, point.neighbors, point.slope_scale)
+                                settings.activation, method=point.method, **point.layer.kwargs)
         n_rows = self.data.U_train.shape[0]
         self.Q = np.full((n_rows, 1), 1.0 / np.sqrt(n_rows))
         self.R = np.array([[np.sqrt(n_rows)]])
@@ -186,12 +186,12 @@ def fit_grown(X, y, domain, point, settings, result: GrowthResult):
                             "lower the threshold or change the batch size")
     # A one-node fit sets the estimator's normalisation; its layer is then replaced by the kept one.
     model = RandomNodeRegressor(
-        n_nodes=1, n_neighbors=point.neighbors, slope_scale=point.slope_scale, ridge=point.ridge,
-        activation=settings.activation, domain=domain, random_state=settings.seed).fit(X, y)
+        **{**point.params, "n_nodes": 1}, activation=settings.activation, domain=domain,
+        random_state=settings.seed).fit(X, y)
     U = (X - model.input_offset_) / model.input_scale_
     T = (y.reshape(X.shape[0], -1) - model.output_offset_) / model.output_scale_
     pool = draw_layer(U, T, result.settings.pool, settings.seed, settings.activation,
-                      point.neighbors, point.slope_scale)
+                      method=point.method, **point.layer.kwargs)
     layer = _subset(pool, columns)
     factor = solvers.accumulate(
         (hidden_outputs(layer, U[i : i + 4096], settings.activation), T[i : i + 4096])

@@ -5,6 +5,7 @@ from __future__ import annotations
 import os
 
 from nodecast.trainer.hidden import block_rows
+from nodecast.trainer.ridge_choice import CHECK_FRACTION, CHECK_ROWS
 
 _FLOAT = 8  # bytes of a float64
 
@@ -14,14 +15,17 @@ def fit_memory_bytes(n_rows: int, n_features: int, n_nodes: int, n_outputs: int)
 
     Counted: the normalised inputs and targets and the neighbour search's copy of the inputs
     (3 N n + N t), a hidden block and its design copy (2 r (M + 1), r rows per block), the stacked
-    matrix of a Householder step (r + M + 1 rows of M + 1 + t), and about six (M + 1)^2 matrices of
-    the factor, its update and the final solve.
+    matrix of a Householder step (r + M + 1 rows of M + 1 + t), about eight (M + 1)^2 matrices of
+    the factor, its update, the held-out check's factor and the final solve, the sorted copy of
+    the inputs that finds duplicated rows (N n), and three arrays of the check rows' hidden outputs
+    (c (M + 1), c = min(N / 5, 20,000) rows; see :mod:`nodecast.trainer.ridge_choice`).
     """
     p = n_nodes + 1
     rows = min(block_rows(n_nodes), max(n_rows, 1))
-    data = 3 * n_rows * n_features + n_rows * n_outputs
-    blocks = 2 * rows * p + (rows + p) * (p + n_outputs)
-    return _FLOAT * (data + blocks + 6 * p * p)
+    check = min(int(CHECK_FRACTION * n_rows), CHECK_ROWS)
+    data = 4 * n_rows * n_features + n_rows * n_outputs
+    blocks = 2 * rows * p + (rows + p) * (p + n_outputs) + 3 * check * p
+    return _FLOAT * (data + blocks + 8 * p * p)
 
 
 def available_memory_bytes() -> int | None:

@@ -13,7 +13,7 @@ import numpy as np
 
 from nodecast.trainer import solvers
 from nodecast.trainer.domain_stats import DomainStats
-from nodecast.trainer.hidden import PreactivationRange, block_bounds
+from nodecast.trainer.hidden import PreactivationRange, block_bounds, design_blocks
 from nodecast.trainer.metrics import MetricSums
 from nodecast.trainer.row_hash import held_out
 from nodecast.trainer.streamed_fit import StreamedFit
@@ -51,17 +51,18 @@ def stats(part, first: int, features, targets, declared, classify: bool, fractio
 
 
 def anchors(part, first: int, fit: StreamedFit, which):
-    """The partition's share of pass 1: (rows outside, input low, input high, anchor rows)."""
+    """The partition's share of pass 1: a copy of ``fit`` that has taken in the partition's rows
+    (rows outside, input ranges, anchor rows, strided rows, check-row count) and nothing else."""
     fit = copy.copy(fit)
-    fit.outside = 0
+    fit.outside = fit.check_count = 0
+    fit.strided_x, fit.strided_u, fit.strided_t = [], [], []
     if fit.plan is not None:
         fit.u_low, fit.u_high = np.full_like(fit.u_low, np.inf), np.full_like(fit.u_high, -np.inf)
         fit.anchor_rows = np.full_like(fit.anchor_rows, np.nan)
-    X, _ = rows_of(part, *which)
-    fit.take_anchor_chunk(first, X)
-    if fit.plan is None:
-        return fit.outside, None, None, None
-    return fit.outside, fit.u_low, fit.u_high, fit.anchor_rows
+    X, Y = rows_of(part, *which)
+    fit.take_anchor_chunk(first, X, Y)
+    fit.estimator = None  # the client keeps the estimator
+    return fit
 
 
 def neighbours(part, first: int, fit: StreamedFit, which):
@@ -73,28 +74,51 @@ def neighbours(part, first: int, fit: StreamedFit, which):
     return fit.nearest
 
 
-def factor(part, fit: StreamedFit, which):
-    """The factor of the partition's design rows, and its pre-activation ranges (None: no rows)."""
+def factor(part, fit: StreamedFit, layer, which):
+    """(factor of the partition's design rows outside the check set or None, the check rows'
+    designs, their targets, pre-activation ranges), the rows in the row blocks of an in-memory fit
+    of the partition alone."""
     X, Y = rows_of(part, *which)
-    m = fit.estimator.hidden_weights_.shape[0]
+    m = layer.weights.shape[0]
     ranges = PreactivationRange(m)
-    if X.shape[0] == 0:
-        return None, ranges
-    blocks = ((X[a:b], Y[a:b]) for a, b in block_bounds(X.shape[0], m))
-    return solvers.accumulate_designs(fit.designs(blocks, ranges)), ranges
+    held, held_targets = [], []
+    width = (m + 1, fit.n_targets)
+
+    def outside_check():
+        for a, b in block_bounds(X.shape[0], m):
+            U = fit.inputs(X[a:b])
+            D = next(design_blocks(U, layer.weights, layer.biases, fit.activation,
+                                   [(0, U.shape[0])], ranges))
+            T = fit.targets(Y[a:b])
+            rows = fit.checked.mask(U) if fit.checked is not None else np.zeros(len(U), dtype=bool)
+            held.append(D[rows])
+            held_targets.append(T[rows])
+            yield D[~rows], T[~rows]
+
+    with solvers.single_blas_thread():
+        try:
+            rest = solvers.accumulate_designs(outside_check())
+        except ValueError:  # no rows outside the check set here
+            rest = None
+    design = np.concatenate(held) if held else np.empty((0, width[0]))
+    targets = np.concatenate(held_targets) if held_targets else np.empty((0, width[1]))
+    return rest, design, targets, ranges
 
 
 def combine(left, right):
-    """Two (factor, ranges) into one: the R factors stacked and reduced by one Householder QR
-    (a node of the TSQR tree), the ranges by min and max."""
-    (fa, ra), (fb, rb) = left, right
+    """Two partitions' :func:`factor` results into one, left rows first: the R factors stacked and
+    reduced by one Householder QR (a node of the TSQR tree), the check rows concatenated, the
+    ranges by min and max."""
+    (fa, da, ta, ra), (fb, db, tb, rb) = left, right
     ranges = PreactivationRange(ra.low.size)
     ranges.low, ranges.high = np.minimum(ra.low, rb.low), np.maximum(ra.high, rb.high)
+    design, targets = np.concatenate([da, db]), np.concatenate([ta, tb])
     if fa is None or fb is None:
-        return (fa if fb is None else fb), ranges
-    R, qty = solvers._householder_update(fa.R, fa.qty, fb.R, fb.qty)
-    return solvers.QRFactor(np.ascontiguousarray(R), qty, fa.n_rows + fb.n_rows,
-                            fa.y_squares + fb.y_squares), ranges
+        return (fa if fb is None else fb), design, targets, ranges
+    with solvers.single_blas_thread():
+        R, qty = solvers._householder_update(fa.R, fa.qty, fb.R, fb.qty)
+    return (solvers.QRFactor(np.ascontiguousarray(R), qty, fa.n_rows + fb.n_rows,
+                             fa.y_squares + fb.y_squares), design, targets, ranges)
 
 
 def figures(part, model, task: str, which):

@@ -1,5 +1,6 @@
-"""Held-out rows chosen by a hash of the global row index: the same rows whether the data sits in
-memory, is read chunk by chunk, or lies in partitions on a cluster, and no O(N) permutation.
+"""Held-out rows chosen by a hash of the global row index (or of the row's values): the same rows
+whether the data sits in memory, is read chunk by chunk, or lies in partitions on a cluster, and
+no O(N) permutation.
 
 Each row index i is mixed with a key drawn from the seed by the SplitMix64 finaliser (Steele, Lea
 and Flood 2014, "Fast splittable pseudorandom number generators"; its constants as published),
@@ -36,3 +37,20 @@ def held_out(first_index: int, n_rows: int, fraction: float, seed: int) -> np.nd
         hashed = _mix((index + key) * _GOLDEN)
     threshold = np.uint64(min(int(fraction * 2.0**64), 2**64 - 1))
     return hashed < threshold
+
+
+def below(hashed: np.ndarray, fraction: float) -> np.ndarray:
+    """Which 64-bit hashes, read as fractions of 2^64, fall below ``fraction``."""
+    return hashed < np.uint64(min(int(fraction * 2.0**64), 2**64 - 1))
+
+
+def content_hash(values: np.ndarray, key: int) -> np.ndarray:
+    """A 64-bit hash of each row of ``values`` (rows, n) float64 under ``key``: the row's numbers'
+    bit patterns (-0.0 read as 0.0, so equal rows hash alike) folded in one by one through the
+    SplitMix64 finaliser. Shape (rows,) of uint64."""
+    words = np.ascontiguousarray(np.asarray(values, dtype=np.float64) + 0.0).view(np.uint64)
+    hashed = np.full(words.shape[0], np.uint64(key), dtype=np.uint64)
+    with np.errstate(over="ignore"):
+        for column in words.T:
+            hashed = _mix((hashed ^ column) * _GOLDEN)
+    return hashed

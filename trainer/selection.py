@@ -1,12 +1,12 @@
-"""Fast k-fold model selection over nodes M, neighbours k, slope scale s and ridge lambda,
-optionally under a precision budget (the estimated export error in a named precision must not
-exceed a tolerance in target units).
+"""Fast k-fold model selection over nodes M, the hidden-node generator and its own hyper-parameters
+(data-driven: neighbours k and slope scale s) and ridge lambda, optionally under a precision budget
+(the estimated export error in a named precision must not exceed a tolerance in target units).
 
-The search runs one unit per (fold, k, s) (:mod:`nodecast.trainer.cv_units`): one hidden layer of
-max(M) nodes drawn from the fold's training rows, one pass over those rows, every (lambda, M) pair
-solved from one factorisation per lambda. Units are independent and may run in parallel; the result
-does not depend on ``n_jobs``. The chosen point is refitted on all rows with the same draw rule and
-seed, so ``nodecast train`` with the chosen options reproduces the model exactly.
+The search runs one unit per (fold, hidden layer) (:mod:`nodecast.trainer.cv_units`): one hidden
+layer of max(M) nodes drawn from the fold's training rows, one pass over those rows, every
+(lambda, M) pair solved from one factorisation per lambda. Units are independent and may run in
+parallel; the result does not depend on ``n_jobs``. The chosen point is refitted on all rows with
+the same draw rule and seed, so ``nodecast train`` with the chosen options reproduces the model exactly.
 """
 
 from __future__ import annotations
@@ -25,6 +25,7 @@ from nodecast.compiler.errors import NodecastError
 from nodecast.trainer.cv_units import UnitSettings, evaluate_unit
 from nodecast.trainer.folds import fold_indices, input_box
 from nodecast.trainer.grid import Grid, GridPoint, make_grid, ranked, tabulate
+from nodecast.trainer.method_grid import layer_grid
 
 PARALLEL_WORK = 2e9  # N_train * max(M)^2 of the units above which n_jobs=None runs them in parallel
 SCREEN_PROBES = 256  # Sobol probes, and at most as many of the box's corners, per fold estimate
@@ -66,9 +67,7 @@ class SelectionResult:
         s = self.settings
         return {"folds": s.folds, "seed": s.seed, "activation": s.activation,
                 "precision": s.precision, "tolerance": s.tolerance,
-                "grid": {"nodes": list(self.grid.nodes), "neighbors": list(self.grid.neighbors),
-                         "slope_scales": list(self.grid.slope_scales),
-                         "ridges": list(self.grid.ridges)},
+                "grid": self.grid.as_dict(),
                 "points": [p.as_dict() for p in self.points], "chosen": self.chosen.as_dict(),
                 "rejected_by_budget": sum(not p.meets_budget for p in self.points),
                 "final_estimate": self.estimate.as_dict() if self.estimate else None,
@@ -76,16 +75,23 @@ class SelectionResult:
                 "growth": self.growth.as_dict() if self.growth is not None else None}
 
 
-def select(X, y, nodes=(50, 100, 250), neighbors=(None,), slope_scales=(1.0,), ridges=(0.0, 1e-6),
-           folds=10, *, seed=0, domain=None, activation="logistic", precision=None, tolerance=None,
-           n_jobs=None, progress=None, grow=None) -> SelectionResult:
-    """Choose (M, k, s, lambda) by k-fold cross-validation and refit the choice on all rows.
+def select(X, y, nodes=(50, 100, 250), neighbors=None, slope_scales=None, ridges=(0.0, 1e-6),
+           folds=10, *, methods=("data-driven",), intervals=None, angle_ranges=None,
+           weight_sums=None, seed=0, domain=None, activation="logistic", precision=None,
+           tolerance=None, n_jobs=None, progress=None, grow=None) -> SelectionResult:
+    """Choose (M, generator and its settings, lambda) by k-fold cross-validation and refit the
+    choice on all rows.
 
     Parameters
     ----------
     X : array-like of shape (n_samples, n_features); y : array-like of shape (n_samples,) or
         (n_samples, n_targets), numeric targets.
-    nodes, neighbors, slope_scales, ridges : the grid axes (``None`` in neighbors: default k).
+    nodes, ridges : the shared grid axes.
+    methods : generator names to search (:data:`nodecast.trainer.generators.GENERATORS`).
+    neighbors, slope_scales : data-driven k (``None`` in the list: the default k) and s;
+    intervals : u of interval and domain-anchored; angle_ranges : (min, max) degrees of
+    slope-angle; weight_sums : (r, s) of weight-sum. Each None: that generator's default grid
+    (:mod:`nodecast.trainer.method_grid`); values for a generator not in ``methods`` are an error.
     folds : int, number of shuffled folds (ten is customary).
     seed : int, seeds the fold split and every hidden-layer draw (the final model's random_state).
     domain : (low, high) or None, each of shape (n_features,); NaN entries are not declared and
@@ -107,7 +113,9 @@ def select(X, y, nodes=(50, 100, 250), neighbors=(None,), slope_scales=(1.0,), r
     """
     X, Y, y_was_1d = _check_data(X, y)
     declared = _declared_box(domain, X.shape[1])
-    grid = make_grid(nodes, neighbors, slope_scales, ridges)
+    grid = make_grid(nodes, ridges, layer_grid(methods, {
+        "n_neighbors": neighbors, "slope_scale": slope_scales, "interval": intervals,
+        "angle_range": angle_ranges, "weight_sum": weight_sums}))
     settings = SearchSettings(folds, seed, activation, precision, tolerance, n_jobs)
     points, diagnostics = run_search(X, Y, grid, settings, declared, progress)
     low, high = input_box(X, *declared)
@@ -135,7 +143,7 @@ def select(X, y, nodes=(50, 100, 250), neighbors=(None,), slope_scales=(1.0,), r
 
 
 def grow_best(X, Y, points, settings: SearchSettings, declared, growth):
-    """Grow a network with the (k, s, lambda) of the best grid point meeting the budget.
+    """Grow a network with the hidden layer and lambda of the best grid point meeting the budget.
 
     Returns (that GridPoint, GrowthResult).
     """
@@ -192,16 +200,16 @@ def run_search(X, Y, grid: Grid, settings: SearchSettings, declared, progress=No
     splits = fold_indices(X.shape[0], settings.folds, settings.seed)
     budget = settings.precision if settings.tolerance is not None else None
     probes = _screen_probes(X, declared) if budget else None
-    keys = list(itertools.product(grid.neighbors, grid.slope_scales, range(settings.folds)))
+    keys = list(itertools.product(grid.layers, range(settings.folds)))
     jobs = [(X, Y, splits[fold], declared,
-             UnitSettings(k, s, grid.nodes, grid.ridges, settings.seed, settings.activation,
-                          budget), probes) for k, s, fold in keys]
+             UnitSettings(layer, grid.nodes, grid.ridges, settings.seed, settings.activation,
+                          budget), probes) for layer, fold in keys]
     units: dict = {}
     n_jobs = settings.n_jobs or _auto_jobs(len(keys), X.shape[0] - len(splits[0][1]),
                                            max(grid.nodes))
     results = zip(keys, _run(jobs, n_jobs), strict=True)
-    for done, ((k, s, _), scores) in enumerate(results, 1):
-        units.setdefault((k, s), []).append(scores)
+    for done, ((layer, _), scores) in enumerate(results, 1):
+        units.setdefault(layer, []).append(scores)
         if progress is not None:
             progress(done, len(keys))
     span = Y.max(axis=0) - Y.min(axis=0)

@@ -65,11 +65,14 @@ def _with_ones(blocks):
         yield design, Y
 
 
-def accumulate_designs(blocks) -> QRFactor:
+def accumulate_designs(blocks, start: QRFactor | None = None) -> QRFactor:
     """:func:`accumulate` for blocks (D, Y) whose design D = [1, H] of shape (rows, M + 1), C order,
-    already holds the ones column."""
+    already holds the ones column; from ``start`` (the factor of earlier rows, not modified) if
+    given."""
     R = qty = scratch = y_squares = None
     n_rows = 0
+    if start is not None:
+        R, qty, n_rows, y_squares = start.R, start.qty, start.n_rows, start.y_squares
     for design, Y in blocks:
         if design.shape[0] == 0:
             continue

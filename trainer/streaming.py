@@ -15,13 +15,12 @@ import numpy as np
 
 from nodecast.compiler.bundle import Bundle
 from nodecast.compiler.errors import NodecastError
-from nodecast.trainer.export import to_bundle
 from nodecast.trainer.hidden import block_bounds
 from nodecast.trainer.metrics import MetricSums
 from nodecast.trainer.progress import Progress
 from nodecast.trainer.row_hash import held_out
 from nodecast.trainer.streamed_fit import StreamedFit, reblock
-from nodecast.trainer.training import TrainingJob, feature_columns, make_estimator
+from nodecast.trainer.training import TrainingJob, feature_columns, heavy_tailed, make_estimator, model_bundle
 
 
 @dataclass
@@ -59,6 +58,10 @@ class StreamedTraining:
         self.source, self.job, self.progress = source, job, progress or Progress(None)
         self.features = feature_columns(source.header, job)
         self.classify = job.task == "classification"
+        if job.categorical:
+            raise NodecastError("--categorical is not available for streamed or cluster training "
+                                "yet (the level indicators need the table in memory); read the "
+                                "file whole (a CSV file without --chunk-rows or --cluster)")
         if self.classify and len(job.targets) != 1:
             raise NodecastError("classification takes exactly one --target column (the labels)")
         unknown = sorted(set(job.domain) - set(self.features))
@@ -95,27 +98,22 @@ class StreamedTraining:
                 check = None
             if check is not None:
                 metrics["validation"] = self._metrics(check, "held")
-        units, job = dict(self.job.units), self.job
-        target_names = job.targets if not self.classify else tuple(map(str, model.classes_))
-        return to_bundle(
-            model, feature_names=self.features, target_names=target_names,
-            feature_units=[units.get(name, "") for name in self.features],
-            target_units=[units.get(name, "") for name in target_names],
-            metadata={"seed": job.seed, "metrics": metrics, "rows": self.all.rows,
-                      "rows_outside_domain": self.outside, "targets": list(job.targets),
-                      "validation_fraction": job.validation_fraction})
+        heavy = heavy_tailed(np.concatenate(self.strided_x), self.features, strided=True)
+        return model_bundle(self.job, model, self.features, metrics, self.all.rows, self.outside,
+                            heavy)
 
     def _fit(self, stats: RowStats, rows: str):
         fit = StreamedFit(make_estimator(self.job, self.low, self.high), self.job.task,
                           len(self.features))
         fit.start(stats.rows, stats.y_low, stats.y_high, stats.labels)
-        for first, X, _ in self.chunks("anchors", rows):
-            fit.take_anchor_chunk(first, X)
+        for first, X, Y in self.chunks("anchors", rows):
+            fit.take_anchor_chunk(first, X, Y)
         if fit.finish_anchors():
             for first, X, Y in self.chunks("neighbours", rows):
                 fit.take_neighbour_chunk(first, X, Y)
-            fit.finish_neighbours()
-        fit.fit_output((X, Y) for _, X, Y in self.chunks("factor", rows))
+        fit.fit_chunks(lambda: ((X, Y) for _, X, Y in self.chunks("factor", rows)))
+        if rows == "all":
+            self.strided_x = fit.strided_x
         return fit.estimator
 
     def _metrics(self, model, rows: str) -> dict:

@@ -14,6 +14,7 @@ import numpy as np
 from nodecast.compiler.bundle import Bundle
 from nodecast.compiler.errors import NodecastError
 from nodecast.trainer import training
+from nodecast.trainer.categorical import design, split_features
 from nodecast.trainer.folds import input_box
 from nodecast.trainer.selection import (
     SelectionResult,
@@ -24,19 +25,27 @@ from nodecast.trainer.selection import (
 )
 
 
-def run_selection(table, job, grid, settings, growth=None, progress=None):
+def run_selection(table, job, grid, settings, growth=None, progress=None, allowed_nodes=None):
     """Search, refit (or grow) and bundle; returns (SelectionResult, Bundle).
 
     table : a :class:`nodecast.compiler.csvio.Table`; job : TrainingJob (targets, features,
     domain, units, seed, validation fraction); grid : Grid; settings : SearchSettings; growth :
-    GrowthSettings or None.
+    GrowthSettings or None; allowed_nodes : node counts that meet flash and cycle budgets (None:
+    all); the others are searched (for the report's frontier) but never chosen.
     """
     features = training.feature_columns(table.header, job)
-    X, Y = _finite(table, features, "feature"), _finite(table, job.targets, "target")
-    declared = _declared(job, features)
+    numeric = split_features(features, job.categorical, job.targets)
+    X, Y = finite_columns(table, numeric, "feature"), finite_columns(table, job.targets, "target")
+    inputs = design(table, numeric, job.categorical, X)
+    declared = inputs.box(*declared_box(job, numeric))  # NaN: the data's range
+    X = inputs.X
     points, diagnostics = run_search(X, Y, grid, settings, declared, progress)
+    if allowed_nodes is not None:
+        points = [p if p.nodes in allowed_nodes else replace(p, meets_budget=False)
+                  for p in points]
     if growth is not None:
-        result, bundle = _grown(X, Y, features, job, points, grid, settings, declared, growth)
+        result, bundle = _grown(X, Y, features, inputs, job, points, grid, settings, declared,
+                                growth)
         result.diagnostics = diagnostics
     else:
         def fit_final(point):
@@ -50,12 +59,10 @@ def run_selection(table, job, grid, settings, growth=None, progress=None):
 
 def train_options(point, settings) -> dict:
     """The ``nodecast train`` options (TrainingJob.params) of a grid point."""
-    return dict(n_nodes=point.nodes, method="data-driven", n_neighbors=point.neighbors,
-                slope_scale=point.slope_scale, interval=1.0, ridge=point.ridge,
-                activation=settings.activation)
+    return {**point.params, "activation": settings.activation}
 
 
-def _finite(table, names, what: str) -> np.ndarray:
+def finite_columns(table, names, what: str) -> np.ndarray:
     values = table.numbers(names)
     bad = np.argwhere(~np.isfinite(values))
     if bad.size:
@@ -65,7 +72,7 @@ def _finite(table, names, what: str) -> np.ndarray:
     return values
 
 
-def _declared(job, features):
+def declared_box(job, features):
     unknown = sorted(set(job.domain) - set(features))
     if unknown:
         raise NodecastError(f"--domain names unknown feature(s): {', '.join(map(repr, unknown))}")
@@ -74,9 +81,10 @@ def _declared(job, features):
     return low, high
 
 
-def _grown(X, Y, features, job, points, grid, settings, declared, growth):
-    from nodecast.trainer.export import to_bundle
+def _grown(X, Y, features, inputs, job, points, grid, settings, declared, growth):
+    from nodecast.trainer.export import stage_to_bundle
     from nodecast.trainer.growth import fit_grown
+    from nodecast.trainer.input_stage import InputStage
 
     point, grown = grow_best(X, Y, points, settings, declared, growth)
     model = fit_grown(X, Y, input_box(X, *declared), point, settings, grown)
@@ -84,11 +92,13 @@ def _grown(X, Y, features, job, points, grid, settings, declared, growth):
     metrics = {"training": {"rmse": [float(v) for v in np.sqrt(np.mean(error**2, axis=0))],
                             "max_abs_error": [float(v) for v in np.max(np.abs(error), axis=0)],
                             "rows": int(X.shape[0])}}
-    bundle = to_bundle(model, feature_names=features, target_names=job.targets,
-                       feature_units=[job.units.get(name, "") for name in features],
-                       target_units=[job.units.get(name, "") for name in job.targets],
-                       metadata={"seed": job.seed, "metrics": metrics, "rows": int(X.shape[0]),
-                                 "targets": list(job.targets)})
+    stage = InputStage(model, inputs.columns(), inputs.levels, ())
+    bundle = stage_to_bundle(
+        stage, features, target_names=job.targets,
+        feature_units={name: job.units[name] for name in inputs.features if name in job.units},
+        target_units=[job.units.get(name, "") for name in job.targets],
+        metadata={"seed": job.seed, "metrics": metrics, "rows": int(X.shape[0]),
+                  "targets": list(job.targets)})
     estimate = checked_estimate(bundle.network, settings, point)
     return SelectionResult(points, point, settings, grid, bundle, estimate, 1, grown), bundle
 

@@ -2,17 +2,49 @@
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from nodecast.compiler.bundle import Bundle
 from nodecast.compiler.errors import NodecastError
+from nodecast.trainer.categorical import Design, design, split_features
 from nodecast.trainer.estimators import RandomNodeClassifier, RandomNodeRegressor
-from nodecast.trainer.export import to_bundle
+from nodecast.trainer.export import stage_to_bundle
+from nodecast.trainer.generators.data_driven import global_stride
 from nodecast.trainer.hidden import block_bounds
+from nodecast.trainer.input_stage import InputStage
 from nodecast.trainer.metrics import MetricSums
 from nodecast.trainer.row_hash import held_out
+
+HEAVY_TAIL_SHARE = 0.5  # a column is heavy-tailed when its middle 99% spans less of its range
+
+
+def heavy_tailed(X: np.ndarray, names, strided: bool = False) -> list[str]:
+    """Features whose middle 99% of values (0.5% to 99.5% quantiles) spans less than
+    ``HEAVY_TAIL_SHARE`` of their range: a few extreme rows set the range, so the other rows crowd
+    into a small part of the normalised box. Columns of one or two distinct values are not
+    counted (a rare yes in a yes/no column is not a tail). Measured on the rows of the global
+    trend (at most 20,000, evenly strided: :func:`global_stride`), which a streamed or cluster
+    fit gathers too (``strided``: X holds those rows already)."""
+    X = X if strided else X[:: global_stride(X.shape[0])]
+    low, high = np.quantile(X, [0.005, 0.995], axis=0)
+    span = np.ptp(X, axis=0)
+    crowded = (high - low) < HEAVY_TAIL_SHARE * span
+    return [name for j, name in enumerate(names)
+            if crowded[j] and np.unique(X[:, j]).size > 2]
+
+
+def heavy_tail_note(metadata: dict) -> str | None:
+    """The one-line note ``train`` prints when some inputs are heavy-tailed, or None."""
+    names = metadata.get("heavy_tailed_features") or []
+    if not names:
+        return None
+    shown = ", ".join(map(repr, names[:5])) + (f" and {len(names) - 5} more" if len(names) > 5 else "")
+    return (f"note: heavy-tailed input(s) {shown} (the middle 99% of the values spans under half "
+            "the range); the default ridge was checked on held-out rows; a log or rank transform "
+            "of such columns usually helps")
 
 
 @dataclass(frozen=True)
@@ -27,6 +59,7 @@ class TrainingJob:
     params: dict = field(default_factory=dict)
     seed: int = 0
     validation_fraction: float = 0.2
+    categorical: tuple[str, ...] = ()
 
 
 def feature_columns(header, job: TrainingJob) -> tuple[str, ...]:
@@ -83,6 +116,19 @@ def _check_target_varies(y: np.ndarray, names) -> None:
                                 "there is nothing to learn")
 
 
+def _check_classes(y: np.ndarray, name: str) -> None:
+    """At least two classes, and on average at least two rows per class (the rule under which
+    scikit-learn also suspects a regression target): otherwise most classes are single rows that
+    no classifier can learn, and the model would have as many outputs as the data has rows."""
+    n_classes, n_rows = len(set(y)), len(y)
+    if n_classes < 2:
+        raise NodecastError(f"target {name!r} holds a single class; need at least two")
+    if 2 * n_classes > n_rows:
+        raise NodecastError(f"target {name!r} has {n_classes} distinct labels in {n_rows} rows, "
+                            "fewer than 2 rows per class: too few to learn any class (a continuous "
+                            "target? train it with --task regression)")
+
+
 def make_estimator(job: TrainingJob, low, high):
     cls = RandomNodeClassifier if job.task == "classification" else RandomNodeRegressor
     try:
@@ -91,11 +137,14 @@ def make_estimator(job: TrainingJob, low, high):
         raise NodecastError(f"bad training option: {exc}") from None
 
 
-def train(table, job: TrainingJob) -> Bundle:
-    """Fit on all rows; report validation metrics from a same-settings fit on a held-out split."""
+def train(table, job: TrainingJob, on_stage=None) -> Bundle:
+    """Fit on all rows; report validation metrics from a same-settings fit on a held-out split.
+
+    ``on_stage``: None or callable(text, rows), told before each fit (for progress lines)."""
     features = feature_columns(table.header, job)
-    X = table.numbers(features)
-    _check_finite(X, features, "feature")
+    numeric = split_features(features, job.categorical, job.targets)
+    X = table.numbers(numeric)
+    _check_finite(X, numeric, "feature")
     if X.shape[0] < 2:
         raise NodecastError(f"{table.source}: need at least 2 data rows to train, got {X.shape[0]}"
                             + (" (the file has a header only)" if X.shape[0] == 0 else ""))
@@ -103,41 +152,74 @@ def train(table, job: TrainingJob) -> Bundle:
         if len(job.targets) != 1:
             raise NodecastError("classification takes exactly one --target column (the labels)")
         y = np.asarray(table.texts(job.targets[0]), dtype=object)
-        if len(set(y)) < 2:
-            raise NodecastError(f"target {job.targets[0]!r} holds a single class; need at least two")
+        _check_classes(y, job.targets[0])
     else:
         y = table.numbers(job.targets)
         _check_finite(y, job.targets, "target")
         _check_target_varies(y, job.targets)
-    low, high, outside = _domain(job, features, X)
+    low, high, outside = _domain(job, numeric, X)
+    inputs = design(table, numeric, job.categorical, X, job.params.get("n_neighbors"))
+    low, high = inputs.box(low, high)
     estimator = make_estimator(job, low, high)
+    if on_stage is not None:
+        _check_memory(job, X, y)  # refuse in one line before any progress or warning
+        on_stage("fitting on all rows", X.shape[0])
     try:
-        estimator.fit(X, y)
+        estimator.fit(inputs.X, y)
     except ValueError as exc:
         raise NodecastError(f"cannot train: {' '.join(str(exc).split())}") from None
-    metrics = {"training": _metrics(estimator, X, y, job.task)}
-    metrics.update(_validation(job, low, high, X, y))
+    metrics = {"training": _metrics(estimator, inputs.X, y, job.task)}
+    metrics.update(_validation(job, low, high, inputs.X, y, on_stage))
+    heavy = heavy_tailed(X[:, : len(numeric)], numeric)
+    return model_bundle(job, estimator, features, metrics, int(X.shape[0]), outside, heavy, inputs)
+
+
+def model_bundle(job: TrainingJob, estimator, features, metrics: dict, rows: int, outside: int,
+                 heavy: list[str], inputs=None) -> Bundle:
+    """The bundle of ``train`` (in memory, streamed or on a cluster): the fitted estimator, its
+    input design (``inputs``, a :class:`~nodecast.trainer.categorical.Design`; None: the numeric
+    ``features`` as they are) and the run's figures."""
+    inputs = inputs or Design(tuple(features), {}, np.empty((0, len(features))))
+    numeric = inputs.features
     units = dict(job.units)
     target_names = job.targets if job.task == "regression" else tuple(map(str, estimator.classes_))
-    return to_bundle(
-        estimator, feature_names=features, target_names=target_names,
-        feature_units=[units.get(name, "") for name in features],
-        target_units=[units.get(name, "") for name in target_names],
-        metadata={"seed": job.seed, "metrics": metrics, "rows": int(X.shape[0]),
-                  "rows_outside_domain": outside, "targets": list(job.targets),
-                  "validation_fraction": job.validation_fraction})
+    metadata = {"seed": job.seed, "metrics": metrics, "rows": rows,
+                "rows_outside_domain": outside, "targets": list(job.targets),
+                "heavy_tailed_features": heavy, "validation_fraction": job.validation_fraction}
+    if job.categorical:
+        metadata["level_spacing"] = inputs.spacing
+    stage = InputStage(estimator, inputs.columns(), inputs.levels, ())
+    return stage_to_bundle(
+        stage, features, target_names=target_names,
+        feature_units={name: units[name] for name in numeric if name in units},
+        target_units=[units.get(name, "") for name in target_names], metadata=metadata)
 
 
-def _validation(job: TrainingJob, low, high, X, y) -> dict:
+def _check_memory(job: TrainingJob, X: np.ndarray, y: np.ndarray) -> None:
+    from nodecast.trainer.memory import check_fits_in_memory
+
+    outputs = len(set(y)) if job.task == "classification" else y.shape[1]
+    try:
+        check_fits_in_memory(X.shape[0], X.shape[1], int(job.params.get("n_nodes", 200)), outputs)
+    except ValueError as exc:
+        raise NodecastError(f"cannot train: {exc}") from None
+
+
+def _validation(job: TrainingJob, low, high, X, y, on_stage=None) -> dict:
     """Metrics of a same-settings fit on the rows not held out (:mod:`nodecast.trainer.row_hash`),
     measured on the held-out rows."""
     valid = held_out(0, X.shape[0], job.validation_fraction, job.seed)
     n_valid = int(valid.sum())
     if n_valid < 1 or X.shape[0] - n_valid < 2:
         return {}
+    if on_stage is not None:
+        on_stage("validation fit", X.shape[0] - n_valid)
+    fit = ~valid
     estimator = make_estimator(job, low, high)
     try:
-        estimator.fit(X[~valid], y[~valid])
+        with warnings.catch_warnings():  # the split may hold a class once; all rows passed _check_classes
+            warnings.filterwarnings("ignore", "The number of unique classes", UserWarning)
+            estimator.fit(X[fit], y[fit])
     except ValueError:
         return {}
     return {"validation": _metrics(estimator, X[valid], y[valid], job.task)}

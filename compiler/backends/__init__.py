@@ -29,9 +29,46 @@ class Artifact:
     summary: dict = field(default_factory=dict)
 
 
+_DEFAULT_PRECISION = {"onnx": "float32", "c": "float32", "python": "float64"}
+FLOAT32_LIMIT = 1e38  # below float32's largest value (3.4e38), with room for a sum of a few terms
+FLOAT32_SMALLEST_SCALE = 2.0**-100  # scaled values keep float32's precision above its normal range
+
+
+def check_fits_float32(net) -> None:
+    """Refuse a model that float32 arithmetic cannot hold (a weight, a bound, a pre-activation or
+    an output beyond float32's range, or a scale so small that values fall below its normal
+    range), before rendering: the artifact would compute infinities or zeros, not the model."""
+    import numpy as np
+
+    with np.errstate(all="ignore"):
+        reach = np.maximum(np.abs(net.domain_low - net.input_offset),
+                           np.abs(net.domain_high - net.input_offset)) / net.input_scale
+        values = {**net.arrays(), "the weights in input units": net.hidden_weights / net.input_scale,
+                  "the output weights in target units": net.output_weights * net.output_scale,
+                  "the pre-activations": np.abs(net.hidden_weights) @ reach + np.abs(net.hidden_biases),
+                  "the outputs": np.abs(net.output_offset) + net.output_scale
+                  * (np.sum(np.abs(net.output_weights), axis=0) + np.abs(net.output_bias))}
+    for what, array in values.items():
+        largest = float(np.max(np.abs(array))) if array.size else 0.0
+        if not largest <= FLOAT32_LIMIT:
+            raise NodecastError(f"{what} reach {largest:.3g}, beyond what float32 holds (about "
+                                "3.4e38); emit --precision float64")
+    for name in ("input_scale", "output_scale"):
+        smallest = float(np.min(getattr(net, name)))
+        if smallest < FLOAT32_SMALLEST_SCALE:
+            raise NodecastError(f"{name} {smallest:.3g} is too small for float32 (the model's "
+                                "values would fall below its normal range); emit --precision "
+                                "float64")
+
+
 def render(bundle, to: str, **options) -> Artifact:
     if to not in BACKENDS:
         raise NodecastError(f"unknown target {to!r}; choose one of: {', '.join(BACKENDS)}")
+    if options.get("flag_out_of_domain") and to != "onnx":
+        raise NodecastError(f"--flag-out-of-domain adds an output to an ONNX graph; the {to} "
+                            "artifact has its own out-of-domain handling (--out-of-domain)")
+    if options.get("precision", _DEFAULT_PRECISION[to]) == "float32":
+        check_fits_float32(bundle.network)
     try:
         module = importlib.import_module(BACKENDS[to])
     except ModuleNotFoundError as exc:

@@ -5,7 +5,8 @@
 and ``model.c.j2``. The float32/float64 layout lives in :mod:`~nodecast.compiler.backends.c_float`,
 the q15/q31 one in :mod:`~nodecast.compiler.backends.c_fixed` (formats from
 :mod:`nodecast.compiler.fixedpoint`). The footprint (sizes and stack on the host and on Cortex-M)
-is measured by :mod:`nodecast.compiler.toolchain` when asked for.
+is measured by :mod:`nodecast.compiler.toolchain` when asked for, the instructions per prediction
+on emulated Cortex-M cores by :mod:`nodecast.compiler.instruction_count`.
 """
 
 from __future__ import annotations
@@ -16,7 +17,7 @@ from nodecast.compiler import numerics
 from nodecast.compiler.backends import Artifact
 from nodecast.compiler.backends.c_board import board_files
 from nodecast.compiler.backends.c_fixed import fixed_context
-from nodecast.compiler.backends.c_float import float_context
+from nodecast.compiler.backends.c_float import DEFAULT_FLOAT_IMPLS, float_context
 from nodecast.compiler.backends.c_format import (
     _with_point,
     c_comment,
@@ -32,6 +33,7 @@ from nodecast.compiler.version import __version__
 
 PRECISIONS = ("float64", "float32", "q31", "q15")
 ACTIVATION_IMPLS = ("libm", "rational", "table")
+DEFAULT_IMPLS = {**DEFAULT_FLOAT_IMPLS, "q31": "table", "q15": "table"}
 _IMPL_TEXT = {
     "libm": "the C library's {fn}",
     "rational": "a rational approximation x P(x^2)/Q(x^2), clipped at |x| = 9 (no libm)",
@@ -41,13 +43,14 @@ _POLICY_TEXT = {
     "pass": "pass: inputs outside the domain are evaluated as given (the estimate covers the "
             "domain only)",
     "clamp": "clamp: each input is clipped into its domain before evaluation",
-    "reject": "reject: {P}_predict returns {P}_ERROR_OUT_OF_DOMAIN and leaves y untouched",
+    "reject": "reject: {p}_predict returns {P}_ERROR_OUT_OF_DOMAIN and leaves y untouched",
 }
 
 
 def render(bundle, precision: str = "float32", prefix: str = "model", out_of_domain: str = "pass",
            activation_impl: str | None = None, table_size: int | None = None,
-           footprint: bool = False, bare_metal: bool = False, **_ignored) -> Artifact:
+           footprint: bool = False, bare_metal: bool = False, instruction_count: bool = False,
+           **_ignored) -> Artifact:
     """Render ``<prefix>.h`` and ``<prefix>.c`` for ``bundle``; see docs/c-backend.md."""
     check_prefix(prefix)
     if precision not in PRECISIONS:
@@ -58,11 +61,15 @@ def render(bundle, precision: str = "float32", prefix: str = "model", out_of_dom
     if fixed and out_of_domain == "pass":
         raise NodecastError(f"{precision} integers hold the declared domain only, so inputs "
                             "outside it cannot pass; choose --out-of-domain clamp or reject")
-    impl = activation_impl or ("table" if fixed else "libm")
+    impl = activation_impl or DEFAULT_IMPLS[precision]
     if impl not in ACTIVATION_IMPLS:
         raise NodecastError(f"--activation-impl is one of {', '.join(ACTIVATION_IMPLS)}, "
                             f"not {impl!r}")
     net = bundle.network
+    if fixed and net.n_categorical:
+        raise NodecastError(f"{precision} artifacts do not take categorical inputs yet; choose "
+                            "float32 or float64")
+    _check_label_lengths(net.class_labels)
     make_context = fixed_context if fixed else float_context
     context = make_context(net, precision, impl, table_size)
     if fixed:
@@ -88,9 +95,25 @@ def render(bundle, precision: str = "float32", prefix: str = "model", out_of_dom
         from nodecast.compiler.toolchain import footprint as measure_footprint
 
         summary["footprint"] = measure_footprint(files, prefix, uses_libm=impl == "libm")
+    if instruction_count:
+        from nodecast.compiler.instruction_count import instruction_counts
+
+        summary["instructions"] = instruction_counts(files, net, prefix, precision)
     if bare_metal:
         files.update(board_files())
     return Artifact("c", files, False, summary)
+
+
+C99_STRING_LIMIT = 4095  # ISO C99 5.2.4.1: the characters a string literal must be able to hold
+
+
+def _check_label_lengths(labels) -> None:
+    """A class label becomes a string literal; longer than C99 guarantees, -Wpedantic refuses it."""
+    for label in labels:
+        size = len(label.encode("utf-8"))
+        if size > C99_STRING_LIMIT:
+            raise NodecastError(f"class label {label[:20]!r}... is {size} bytes; a C99 string "
+                                f"literal holds at most {C99_STRING_LIMIT}; shorten the labels")
 
 
 def _render_template(name: str, context: dict) -> bytes:
@@ -122,7 +145,8 @@ def _common_context(bundle, precision, prefix, policy, impl, estimate, context) 
                         f"{_count(net.n_outputs, 'output')}, {net.n_nodes} {net.activation} nodes, "
                         f"{precision}.",
         "precision_text": _precision_text(precision),
-        "policy_text": _POLICY_TEXT[policy].format(P=upper), "policy_bounds": policy != "pass",
+        "policy_text": _POLICY_TEXT[policy].format(P=upper, p=prefix),
+        "policy_bounds": policy != "pass",
         "bound_type": context["word"] if fixed else context["real"],
         "domain_low": context["input_low"] if fixed else context["domain_low"],
         "domain_high": context["input_high"] if fixed else context["domain_high"],
@@ -132,18 +156,19 @@ def _common_context(bundle, precision, prefix, policy, impl, estimate, context) 
         "layout_lines": _layout_lines(fixed, upper),
         "return_text": _return_text(fixed, policy, upper),
         "class_names": [c_string(label) for label in net.class_labels],
+        **_level_context(net, context),
     }
 
 
 def stated_activation_error(net, precision: str, impl: str | None, table_size: int | None) -> float:
     """The ACTIVATION_ERROR an artifact with these options states (what verify expects)."""
     if precision in FIXED_PRECISIONS:
-        from nodecast.compiler.fixedpoint import make_plan
+        from nodecast.compiler.fixedpoint import table_error
 
-        return make_plan(net, precision, table_size).table_error
+        return table_error(precision, table_size)
     from nodecast.compiler.backends.c_float import activation_error
 
-    return activation_error(impl or "libm", precision, table_size)
+    return activation_error(impl or DEFAULT_IMPLS[precision], precision, table_size)
 
 
 def _bound_context(net, certificate) -> dict:
@@ -152,6 +177,24 @@ def _bound_context(net, certificate) -> dict:
                                                          certificate.per_output, strict=True))]
     return {"bound_lines": lines, "bound_assumes": certificate.assumption,
             "bound_literals": [_with_point(repr(float(v))) for v in certificate.per_output]}
+
+
+def _level_context(net, context) -> dict:
+    """Categorical inputs: per input its level table (levels x tiles x tile, in the hidden
+    layer's tiles, the padding nodes copying the last node) and the header's code listing."""
+    from nodecast.compiler.backends.c_float import tiled_rows
+
+    tables = []
+    for c, (name, levels) in enumerate(zip(net.categorical_names, net.categorical_levels,
+                                           strict=True)):
+        start = net.level_start(c)
+        weights = net.level_weights[start : start + len(levels)]
+        tables.append({
+            "count": len(levels), "name": c_comment(name),
+            "rows": tiled_rows(weights, context["tile"], context["n_tiles"], context["literal"]),
+            "codes": [f"{k} = {c_comment(level)}" for k, level in enumerate(levels)],
+            "strings": [c_string(level) for level in levels]})
+    return {"n_categorical": net.n_categorical, "level_tables": tables}
 
 
 def _count(number: int, noun: str) -> str:
@@ -171,7 +214,11 @@ def _z_range(net) -> str:
     centre = 0.5 * (net.domain_low + net.domain_high)
     mid = net.hidden_biases + weights @ (centre - net.input_offset)
     radius = np.abs(weights) @ (0.5 * (net.domain_high - net.domain_low))
-    return f"{float(np.min(mid - radius)):.4g} .. {float(np.max(mid + radius)):.4g}"
+    low, high = mid - radius, mid + radius
+    for c, levels in enumerate(net.categorical_levels):  # over every level
+        vectors = net.level_weights[net.level_start(c) : net.level_start(c) + len(levels)]
+        low, high = low + vectors.min(axis=0), high + vectors.max(axis=0)
+    return f"{float(np.min(low)):.4g} .. {float(np.max(high)):.4g}"
 
 
 def _estimate_lines(net, estimate) -> list[str]:
@@ -234,9 +281,10 @@ def _layout_lines(fixed: bool, upper: str) -> list[str]:
         return ["Layout: node-major weights; one pass over the nodes computes each node's",
                 "pre-activation, its tanh and its share of every output, so the stack holds only",
                 f"the normalised inputs and the output accumulators ({upper}_SCRATCH_BYTES)."]
-    return ["Layout: hidden weights input-major, so each pass over the nodes is contiguous and",
-            "vectorises; the output sums run in interleaved partial sums. The stack holds the",
-            f"normalised inputs, the node array and the partial sums ({upper}_SCRATCH_BYTES).",
+    return ["Layout: the nodes go in tiles; each tile's pre-activations build up in registers",
+            "(input by input), pass through tanh and add their share of each output to",
+            "interleaved partial sums, so node values are never stored. The stack holds the",
+            f"normalised inputs, one tile and the partial sums ({upper}_SCRATCH_BYTES).",
             "Build with -ffp-contract=off for results that match other builds bit for bit",
             "(fused multiply-add changes the last bits, within the stated estimate)."]
 

@@ -31,6 +31,13 @@ _HEADERS = frozenset("""
 assert complex ctype errno fenv float inttypes iso646 limits locale math setjmp signal stdarg
 stdbool stddef stdint stdio stdlib string tgmath time wchar wctype
 """.split())
+# Files nodecast writes or builds beside <prefix>.c: the board start-up code (--bare-metal), the
+# verify harness, and the user's own main.c that docs/c-backend.md tells them to add.
+_TAKEN_FILES = {"startup": "the start-up code startup.c that --bare-metal writes",
+                "harness": "the verify harness harness.c (and its harness_* functions)",
+                "main": "your own main.c beside the model"}
+# Upper-case macro families the C library reserves (ISO C99 7.26: <locale.h>, <signal.h>, <fenv.h>).
+_RESERVED_MACRO_PREFIXES = {"lc": "LC_", "sig": "SIG_", "fe": "FE_"}
 _NAMED_ESCAPES = {"\n": "\\n", "\t": "\\t", "\r": "\\r", '"': '\\"', "\\": "\\\\", "?": "\\?"}
 
 
@@ -43,6 +50,17 @@ def check_prefix(prefix) -> str:
         raise NodecastError(f"--prefix is at most {MAX_PREFIX} characters, got {len(prefix)}")
     if prefix in _KEYWORDS:
         raise NodecastError(f"--prefix {prefix!r} is a C or C++ keyword; choose another name")
+    if prefix.startswith("_") or prefix.endswith("_") or "__" in prefix:
+        raise NodecastError(f"--prefix {prefix!r} would make reserved identifiers (a leading "
+                            "underscore, or two in a row, as in __tanh: ISO C 7.1.3, C++ "
+                            "[lex.name]); start with a letter and do not end with '_'")
+    if prefix in _TAKEN_FILES:
+        raise NodecastError(f"--prefix {prefix!r} would clash with {_TAKEN_FILES[prefix]}; "
+                            "choose another name")
+    if prefix in _RESERVED_MACRO_PREFIXES:
+        raise NodecastError(f"--prefix {prefix!r} would define macros {prefix.upper()}_..., a "
+                            f"family the C library reserves ({_RESERVED_MACRO_PREFIXES[prefix]}); "
+                            "choose another name")
     if prefix in _HEADERS:
         raise NodecastError(f"--prefix {prefix!r} would shadow the standard header <{prefix}.h>; "
                             "choose another name")
@@ -72,9 +90,10 @@ def c_comment(text: str) -> str:
 
 def float_literal(value: float) -> str:
     """A float (binary32) literal that reads back as float32(value); raise if it would overflow."""
-    single = np.float32(value)
+    with np.errstate(over="ignore"):
+        single = np.float32(value)
     if not np.isfinite(single):
-        raise NodecastError(f"value {value!r} does not fit float32; emit float64 instead")
+        raise NodecastError(f"value {float(value):.17g} does not fit float32; emit float64 instead")
     return _with_point(f"{float(single):.9g}") + "f"
 
 

@@ -89,10 +89,29 @@ def _context(bundle, error, out_of_domain: str, certificate) -> dict:
     }
     for name in ("feature_names", "feature_units", "target_names", "target_units", "class_labels"):
         context[name] = text_tuple(getattr(net, name))
+    context.update(_categorical_context(net, halving))
     for name in ("domain_low", "domain_high", "input_offset", "input_scale", "output_offset",
                  "output_scale"):
         context[name] = float_tuple(getattr(net, name))
     return context
+
+
+def _categorical_context(net, halving: float) -> dict:
+    """The categorical constants: names, levels, and each level's vector (scaled like the nodes)."""
+    if not net.n_categorical:
+        return {"categorical": False}
+    groups = []
+    for c, levels in enumerate(net.categorical_levels):
+        start = net.level_start(c)
+        rows = [f"        {float_tuple(vector, indent=12)}," for vector in
+                net.level_weights[start : start + len(levels)] * halving]
+        groups.append("    (\n" + "\n".join(rows) + "\n    ),")
+    levels = [f"    {text_tuple(group).replace(chr(10), chr(10) + '    ')}," for group in
+              net.categorical_levels]
+    return {"categorical": True, "n_categorical": net.n_categorical,
+            "categorical_names": text_tuple(net.categorical_names),
+            "categorical_levels": "(\n" + "\n".join(levels) + "\n)",
+            "level_weights": "(\n" + "\n".join(groups) + "\n)"}
 
 
 def float_tuple(values, indent: int = 4) -> str:
@@ -173,9 +192,15 @@ def _docstring(bundle, error, out_of_domain: str, certificate) -> dict:
         label = f", class label {net.class_labels[i]!r}" if net.task == "classification" else ""
         outputs += docstring_lines(f"{i:<3} {name!r}, unit {unit!r}{label}, certified max abs "
                                    f"error {bound:.3g}, typical {err:.3g}", "    ", "        ")
+    categorical = []
+    for i, (name, levels) in enumerate(zip(net.categorical_names, net.categorical_levels,
+                                           strict=True)):
+        categorical += docstring_lines(f"{net.n_features + i:<3} {name!r}, levels "
+                                       f"{', '.join(map(repr, levels))}", "    ", "        ")
     example = [float(v) for v in (net.domain_low + net.domain_high) / 2]
+    example += [levels[0] for levels in net.categorical_levels]
     return {
-        "features": features, "outputs": outputs,
+        "features": features, "outputs": outputs, "categorical": categorical,
         "example": docstring_lines(f"predictor.predict({example!r})", "    ", "        "),
         "nodes": net.n_nodes, "activation": net.activation, "policy": out_of_domain,
         "bundle_id": bundle.bundle_id, "version": __version__,

@@ -10,6 +10,8 @@ the text in an artifact is short and the same on every machine.
 
 from __future__ import annotations
 
+import dataclasses
+import itertools
 import math
 from dataclasses import dataclass
 
@@ -84,6 +86,10 @@ def _assumption(target: str, precision: str, impl: str | None) -> str:
         return f"numpy's tanh is within {proven.NUMPY_ULPS:g} ulp of exact"
     if precision in ("q15", "q31"):
         return "none beyond C99 with arithmetic right shifts of negative values"
+    if impl is None:
+        from nodecast.compiler.backends.c_float import DEFAULT_FLOAT_IMPLS
+
+        impl = DEFAULT_FLOAT_IMPLS[precision]
     if impl == "libm":
         return (f"the C library's tanh{'f' if precision == 'float32' else ''} is within "
                 f"{proven.LIBM_ULPS:g} ulp of exact")
@@ -92,8 +98,9 @@ def _assumption(target: str, precision: str, impl: str | None) -> str:
 
 
 def box_function(net: Network, target: str, precision: str, activation_impl: str | None = None,
-                 table_size: int | None = None):
-    """The per-box bound ``f(lows, highs) -> (B, t)`` of one artifact configuration."""
+                 table_size: int | None = None, extra_terms: int = 0, level_abs=0.0):
+    """The per-box bound ``f(lows, highs) -> (B, t)`` of one artifact configuration
+    (``extra_terms``/``level_abs``: see :func:`certify` and :class:`floating.FloatProgram`)."""
     if precision not in TARGET_PRECISIONS.get(target, ()):
         known = ", ".join(TARGET_PRECISIONS.get(target, ()))
         raise NodecastError(f"a {target} artifact computes in {known or 'no known precision'}, "
@@ -101,12 +108,14 @@ def box_function(net: Network, target: str, precision: str, activation_impl: str
     if target == "c" and precision in ("q15", "q31"):
         from nodecast.compiler.fixedpoint import make_plan
 
-        plan = make_plan(net, precision, table_size)
-        program = fixed.FixedProgram(plan, net)
-        program.y_ceiling = fixed.certified_ceiling(plan, net)
+        program = fixed.FixedProgram(make_plan(net, precision, table_size), net)
         return lambda lo, hi: fixed.box_bounds(program, lo, hi)
     if target == "c":
-        program = programs.c_float_program(net, precision, activation_impl or "libm", table_size)
+        from nodecast.compiler.backends.c_float import DEFAULT_FLOAT_IMPLS
+
+        program = programs.c_float_program(net, precision,
+                                           activation_impl or DEFAULT_FLOAT_IMPLS[precision],
+                                           table_size)
     elif target == "onnx":
         program = programs.onnx_program(net, precision)
     elif target == "python":
@@ -115,6 +124,9 @@ def box_function(net: Network, target: str, precision: str, activation_impl: str
         program = programs.reference_program(net)
     else:
         raise NodecastError(f"no certified bound for target {target!r}")
+    if extra_terms:  # level vectors stored apart from the bias: their own rounding, twice over
+        program = dataclasses.replace(program, extra_terms=extra_terms, extra_z_error=2 * program.unit
+                                      * (np.abs(program.stored_biases) + level_abs))
     return lambda lo, hi: floating.box_bounds(program, lo, hi)
 
 
@@ -123,16 +135,49 @@ def certify(net: Network, target: str, precision: str, activation_impl: str | No
             ) -> Certificate:
     """Certified bound of ``target`` at ``precision`` over the box [low, high] (default: the
     declared domain), refined by branch and bound over at most ``boxes`` boxes (default: set by
-    the model's size; fewer boxes give a looser, still certified bound); see the module doc."""
-    low = net.domain_low if low is None else np.asarray(low, dtype=np.float64)
-    high = net.domain_high if high is None else np.asarray(high, dtype=np.float64)
-    bound = box_function(net, target, precision, activation_impl, table_size)
-    impact = _impact(net)
-    with np.errstate(over="ignore", invalid="ignore"):
-        refined = refine(bound, low, high, impact, boxes or _budget(net))
-    values = tuple(round_up(float(v)) if np.isfinite(v) else math.inf for v in refined.bound)
+    the model's size; fewer boxes give a looser, still certified bound); see the module doc.
+
+    With categorical inputs, every combination of levels (and of an unknown level, which adds
+    nothing) is certified as the network whose biases hold that combination's level vectors, and
+    the bound is the largest over them.
+    """
+    low = net.domain_low if low is None else np.asarray(low, dtype=np.float64)[: net.n_features]
+    high = net.domain_high if high is None else np.asarray(high, dtype=np.float64)[: net.n_features]
+    budget = boxes or _budget(net)
+    worst, evaluated = np.zeros(net.n_outputs), 0
+    variants = list(_level_variants(net))
+    for variant, extra_terms, level_abs in variants:
+        bound = box_function(variant, target, precision, activation_impl, table_size,
+                             extra_terms, level_abs)
+        with np.errstate(over="ignore", invalid="ignore"):
+            refined = refine(bound, low, high, _impact(net),
+                             max(_MIN_BOXES, budget // len(variants)))
+        worst, evaluated = np.maximum(worst, refined.bound), evaluated + refined.boxes
+    values = tuple(round_up(float(v)) if np.isfinite(v) else math.inf for v in worst)
     return Certificate(target, precision, values,
-                       _assumption(target, precision, activation_impl), refined.boxes)
+                       _assumption(target, precision, activation_impl), evaluated)
+
+
+MAX_LEVEL_COMBINATIONS = 1024
+
+
+def _level_variants(net: Network):
+    """(network without categorical inputs, their count, |level vectors| summed) per combination
+    of levels; the network itself when it has none."""
+    if not net.n_categorical:
+        yield net, 0, 0.0
+        return
+    choices = [range(-1, len(levels)) for levels in net.categorical_levels]
+    count = math.prod(len(c) for c in choices)
+    if count > MAX_LEVEL_COMBINATIONS:
+        raise NodecastError(f"the categorical inputs have {count} combinations of levels; the "
+                            f"certified bound covers at most {MAX_LEVEL_COMBINATIONS}")
+    for combination in itertools.product(*choices):
+        rows = [net.level_start(c) + k for c, k in enumerate(combination) if k >= 0]
+        vectors = net.level_weights[rows]
+        yield (net.replace(hidden_biases=net.hidden_biases + vectors.sum(axis=0),
+                           categorical_names=(), categorical_levels=(), level_weights=None),
+               net.n_categorical, np.abs(vectors).sum(axis=0))
 
 
 def screening_bound(net: Network, precision: str) -> float:

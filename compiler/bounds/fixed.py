@@ -67,9 +67,10 @@ class FixedProgram:
         self.output_rounding = ((0.5 * m * acc_step if plan.output_pre_shift else 0.0)
                                 + np.where(shift > 0, 0.5 * result_step, 0.0))
         self.top = (2 ** (bits - 1) - 1) * result_step
-        # a certified max |y| over the domain (set by the caller after its own refinement); the
+        # the plan's certified max |y| over the domain (none yet while the plan computes it); the
         # per-box enclosure of |y| is loose on large boxes, so saturation is judged against both
-        self.y_ceiling = np.full(plan.beta.shape[1], np.inf)
+        self.y_ceiling = (np.asarray(plan.output_ceiling) if plan.output_ceiling
+                          else np.full(plan.beta.shape[1], np.inf))
 
 
 def box_bounds(program: FixedProgram, low: np.ndarray, high: np.ndarray) -> np.ndarray:

@@ -51,6 +51,9 @@ class FloatProgram:
     float sum (term j into lane j mod lanes, in order, lanes from 0, then the lanes in order, then
     the bias); ``lanes`` == 0 any order with the bias in the sum (a Gemm) or after it
     (``bias_in_sum`` False); then y = post_offset + post_scale * sum when ``post_scale`` is given.
+    ``extra_terms`` more terms join each node's sum (categorical inputs' level vectors, folded into
+    ``biases`` for one combination of levels; their sum is then bounded in any order) and
+    ``extra_z_error`` bounds what storing them separately adds.
     """
 
     unit: float
@@ -77,6 +80,8 @@ class FloatProgram:
     bias_slack: np.ndarray
     post_offset: np.ndarray | None = None
     post_scale: np.ndarray | None = None
+    extra_terms: int = 0
+    extra_z_error: np.ndarray | float = 0.0
 
 
 def _g(name: str, z):
@@ -114,9 +119,9 @@ def _sum_rounding(p: FloatProgram, lo, hi) -> np.ndarray:
     stored = p.stored_weights
     c_mid, c_rad = 0.5 * (lo + hi), 0.5 * (hi - lo)
     n = stored.shape[1]
-    if not p.sequential_hidden:
+    if not p.sequential_hidden or p.extra_terms:
         size = np.abs(p.stored_biases) + matvec(np.abs(c_mid) + c_rad, np.abs(stored))
-        return gamma(n + 1, p.unit) * size
+        return gamma(n + 1 + p.extra_terms, p.unit) * size + p.extra_z_error
     terms_mid = c_mid[:, None, :] * stored[None, :, :]  # (B, M, n)
     terms_abs = np.abs(terms_mid) + c_rad[:, None, :] * np.abs(stored)[None, :, :]
     partial = np.abs(p.stored_biases[None, :, None] + np.cumsum(terms_mid, axis=2)) \

@@ -75,7 +75,7 @@ def c_float_activation(precision: str, impl: str, table_size: int | None):
 
 
 def c_float_program(net: Network, precision: str, impl: str, table_size: int | None) -> FloatProgram:
-    from nodecast.compiler.backends.c_float import OUTPUT_LANES
+    from nodecast.compiler.backends.c_float import tile_width
     from nodecast.compiler.passes.scaling import should_fold_inputs
 
     error, _ = c_float_activation(precision, impl, table_size)
@@ -84,7 +84,8 @@ def c_float_program(net: Network, precision: str, impl: str, table_size: int | N
         unit=unit, input_unit=unit, **_hidden(net, precision, should_fold_inputs(net)),
         sequential_hidden=True, activation=net.activation,
         logistic_form="half-tanh" if net.activation == "logistic" else "tanh",
-        activation_error=error, **_folded_output(net, precision, OUTPUT_LANES, False))
+        activation_error=error,
+        **_folded_output(net, precision, tile_width(net.n_nodes), False))  # lanes: the tile
 
 
 def onnx_program(net: Network, precision: str) -> FloatProgram:

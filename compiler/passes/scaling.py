@@ -34,7 +34,7 @@ def folded_output_layer(net: Network) -> tuple[np.ndarray, np.ndarray]:
 
 def input_fold_growth(net: Network) -> float:
     """Largest ratio, over nodes and probes, of the folded to the unfolded pre-activation size."""
-    X = domain_probes(net, count=256)
+    X = domain_probes(net, count=256)[:, : net.n_features]  # level vectors are not folded
     U = (X - net.input_offset) / net.input_scale
     weights, biases = folded_input_layer(net)
     input_rounding = np.abs(X) @ np.abs(weights).T

@@ -70,6 +70,14 @@ def _describe(module, path: Path, bundle, run_options: dict) -> dict:
         raise NodecastError(f"{path} was generated from bundle {str(info.get('bundle_id'))[:12]}"
                             f"..., not from this bundle {bundle.bundle_id[:12]}...; verify it "
                             "against the bundle it was emitted from")
+    net = bundle.network
+    declared = {"n_inputs": net.n_features, "n_outputs": net.n_outputs,
+                "feature_names": list(net.feature_names)}
+    for key, want in declared.items():
+        if key in info and info[key] != want:
+            raise NodecastError(f"{path} declares {key.replace('_', ' ')} {str(info[key])[:80]}, "
+                                f"the bundle has {str(want)[:80]}: the artifact was edited or is "
+                                "not this model's")
     policy = info.get("out_of_domain")
     if policy not in ("clamp", "pass", "reject"):
         raise NodecastError(f"{path} declares an unknown out-of-domain policy {policy!r}")
@@ -107,10 +115,11 @@ def _tolerances(net, path, families, info):
         if family.inside_domain or info["out_of_domain"] != "pass":
             per_family.append(tolerance)
             continue
-        low = np.minimum(net.domain_low, np.nanmin(np.where(np.isfinite(family.X), family.X, np.nan),
+        X = family.X[:, : net.n_features]
+        low = np.minimum(net.domain_low, np.nanmin(np.where(np.isfinite(X), X, np.nan),
                                                    axis=0, initial=np.inf))
-        high = np.maximum(net.domain_high, np.nanmax(np.where(np.isfinite(family.X), family.X,
-                                                              np.nan), axis=0, initial=-np.inf))
+        high = np.maximum(net.domain_high, np.nanmax(np.where(np.isfinite(X), X, np.nan),
+                                                     axis=0, initial=-np.inf))
         per_family.append(certified_tolerance(net, info, low, high))
     return tolerance, per_family
 
@@ -144,7 +153,8 @@ def _measured(results, n_outputs: int) -> list[float]:
 
 
 def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
-           abs_tol: float | None = None, rel_tol: float | None = None, **run_options) -> Report:
+           abs_tol: float | None = None, rel_tol: float | None = None, *, on_engine=None,
+           **run_options) -> Report:
     """Verify ``artifact`` (a path) against ``bundle``'s float64 reference.
 
     Parameters
@@ -154,6 +164,7 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
     data : ndarray of shape (n_rows, n_features) or None, extra probes (the user's rows).
     count, seed : the number of quasi-random probes and the seed of every probe family.
     abs_tol, rel_tol : tolerance overrides (see :mod:`nodecast.compiler.verify.tolerance`).
+    on_engine : None or callable(engine, index, total, rows), told before each runtime engine runs.
     run_options : passed to the runner's ``describe`` (e.g. ``emulate="cortex-m4"`` for C).
     """
     net, path = bundle.network, Path(artifact)
@@ -163,6 +174,7 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
                             "artifact, which runs on the host only")
     module = runner(kind)
     info = _describe(module, path, bundle, run_options)
+    _check_verify_memory(net, data, count)
     families = probe_families(net, data, count, seed)
     wanted = [expected_outputs(net, f.X, info["out_of_domain"]) for f in families]
     tolerance, per_family = _tolerances(net, path, families, info)
@@ -173,7 +185,9 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
     X_all = np.vstack([family.X for family in families])
     engines = list(info.get("engines") or [kind])
     results = []
-    for engine in engines:
+    for index, engine in enumerate(engines):
+        if on_engine is not None:
+            on_engine(engine, index, len(engines), X_all.shape[0])
         got_all = _run(module, path, X_all, {**info, "engine": engine}, net.n_outputs)
         labels_all = _run_labels(module, path, X_all, {**info, "engine": engine}, net)
         start = 0
@@ -187,9 +201,11 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
             results.append({"engine": engine, **record})
     within_budget = not budget.exceeded_by(tolerance.certified)
     passed = all(r["passed"] for r in results) and within_budget
+    files = _generated_files(kind, path, info)
     document = {
         "passed": passed, "bundle_id": bundle.bundle_id, "task": net.task,
-        "artifact": {**_plain(info), "path": str(path), "kind": kind, "engines": engines},
+        "artifact": {**_plain(info), "path": str(path), "kind": kind, "engines": engines,
+                     "files": files},
         "outputs": {"names": list(net.target_names), "units": list(net.target_units)},
         "max_abs_error": max(r["max_abs_error"] for r in results),
         "max_rel_error": max(r["max_rel_error"] for r in results),
@@ -200,9 +216,40 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
         "typical_estimate": est.as_dict(),
         "probes": {"seed": seed, "sobol": count, "total": int(X_all.shape[0]),
                    "families": {f.name: int(f.X.shape[0]) for f in families}},
-        "families": results, "notes": _notes(tolerance, budget, results, net.target_names),
+        "families": results,
+        "notes": _file_notes(files) + _notes(tolerance, budget, results, net.target_names),
     }
     return Report(passed, document)
+
+
+def _check_verify_memory(net, data, count: int) -> None:
+    """Refuse, with the estimate, a verification that would exhaust the memory."""
+    from nodecast.compiler.limits import check_memory, verify_bytes
+    from nodecast.compiler.verify.probes import ALL_CORNERS_UP_TO, MAX_CORNERS
+
+    n = net.n_features
+    corners = 2**n if n <= ALL_CORNERS_UP_TO else MAX_CORNERS
+    rows = count + corners + 8 * n + 2 + (0 if data is None else len(data))
+    check_memory(verify_bytes(net, rows), f"verifying {net.n_nodes} nodes and {n} features on "
+                 f"{rows} probe rows", "lower --probes or verify on a machine with more memory")
+
+
+def _generated_files(kind: str, path: Path, info: dict) -> dict[str, str]:
+    """Each generated file's state against the SHA-256 emit recorded in it (compiler/integrity)."""
+    from nodecast.compiler.integrity import check_files
+
+    if kind == "c":
+        return check_files([path / f"{info['prefix']}.h", path / f"{info['prefix']}.c"])
+    return check_files([path])
+
+
+def _file_notes(files: dict[str, str]) -> list[str]:
+    changed = [name for name, state in files.items() if state != "unchanged"]
+    if not changed:
+        return []
+    return [f"{', '.join(changed)}: changed since emit or not recorded by it (the SHA-256 emit "
+            "wrote into each generated file does not match); these results are for the code as "
+            "it is now, which nodecast did not write"]
 
 
 def _plain(value):
@@ -231,8 +278,9 @@ def check(bundle, artifact, data=None, **options) -> dict:
         bundle = load(bundle)
     if isinstance(data, (str, os.PathLike)):
         from nodecast.compiler.csvio import read_table
+        from nodecast.compiler.levels import table_rows
 
-        data = read_table(data).numbers(bundle.network.feature_names)
+        data = table_rows(read_table(data), bundle.network)
     report = verify(bundle, artifact, data, **options)
     if not report.passed:
         raise AssertionError(f"{artifact} does not compute bundle {bundle.bundle_id[:12]}:\n"

@@ -62,8 +62,11 @@ def _outside_in_precision(net, X: np.ndarray, precision: str,
     if dtype is None:
         return reference.outside_domain(net, X)
     low, high = net.domain_low.astype(dtype), net.domain_high.astype(dtype)
-    Xp = X.astype(dtype)
-    return ~np.all((Xp >= low) & (Xp <= high), axis=1)
+    Xp = X[:, : net.n_features].astype(dtype)
+    inside = np.all((Xp >= low) & (Xp <= high), axis=1)
+    if net.n_categorical:  # level codes are integers: no rounding moves them
+        inside &= np.all(reference.level_codes(net, X) >= 0, axis=1)
+    return ~inside
 
 
 def _policy(net, X, rejected, policy, precision,

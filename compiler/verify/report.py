@@ -64,9 +64,13 @@ def format_table(report) -> str:
              "  ok  " + ("labels bad/flip/tie  " if is_classifier else "") + "worst input"]
     for r in doc["families"]:
         labels = f"{_labels_cell(r):<19}  " if is_classifier else ""
-        lines.append(f"{r['engine']:<15} {r['family']:<13} {r['count']:>6} "
-                     f"{_number(r['max_abs_error']):>12} {_number(r['max_rel_error']):>12}  "
-                     f"{'yes' if r['passed'] else 'NO ':<3} {labels}{_vector(r['worst_input'])}")
+        if r.get("compared", r["count"]) == 0:  # nothing evaluated: say what happened instead
+            errors, worst = f"{'-':>12} {'-':>12}", _rejected_text(r)
+        else:
+            errors = f"{_number(r['max_abs_error']):>12} {_number(r['max_rel_error']):>12}"
+            worst = _vector(r["worst_input"])
+        lines.append(f"{r['engine']:<15} {r['family']:<13} {r['count']:>6} {errors}  "
+                     f"{'yes' if r['passed'] else 'NO ':<3} {labels}{worst}")
         if r["policy_violation"]:
             lines.append(f"    policy {r['policy']!r} not honoured: {r['policy_violation']}")
         if r.get("labels", {}).get("label_outputs_wrong"):
@@ -88,6 +92,14 @@ def format_table(report) -> str:
                  f"{art['precision']}, max abs error {_number(doc['max_abs_error'])}, "
                  f"certified bound {max(tol['certified_bound']):.3e}")
     return "\n".join(lines)
+
+
+def _rejected_text(result: dict) -> str:
+    """The worst-input cell of a family with no row compared (every row rejected)."""
+    rejected, count = result.get("rejected", 0), result["count"]
+    if result["policy"] == "reject" and result["policy_honoured"]:
+        return f"{rejected} of {count} rows rejected, as the reject policy requires"
+    return f"{rejected} of {count} rows rejected, none compared"
 
 
 def _family_failure(result: dict, names) -> str | None:

@@ -25,13 +25,18 @@ fi
 for artifact in "${targets[@]}"; do
   name=$(basename "$artifact")
   nodecast verify "$out/candidate.ncz" "$artifact" --data "$out/held_out.csv" \
-    --junit "$out/junit/verify-$name.xml" --report "$out/verify-$name.json"
+    --junit "$out/junit/verify-$name.xml" --report "$out/verify-$name.json" --overwrite
 done
 
 gate=(--max-rmse 1.5)
-if [ -n "$shipped" ]; then gate+=(--baseline "$shipped"); fi
+if [ -n "$shipped" ]; then
+  gate+=(--baseline "$shipped")
+  # how far the behaviour moves (a report here; add --max-change X to make it a gate)
+  nodecast diff "$shipped" "$out/candidate.ncz" --data "$out/held_out.csv" \
+    --junit "$out/junit/diff.xml" --report "$out/diff.json" --overwrite
+fi
 nodecast score "$out/candidate.ncz" "$out/held_out.csv" "${gate[@]}" \
-  --junit "$out/junit/score.xml" --report "$out/score.json"
+  --junit "$out/junit/score.xml" --report "$out/score.json" --overwrite
 
 # The team's own pytest suite can call the same check (see test_shipped_model.py).
 NODECAST_MODEL="$out/candidate.ncz" NODECAST_ONNX="$out/candidate.onnx" \

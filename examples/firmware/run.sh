@@ -22,7 +22,7 @@ nodecast emit "$out/fan.ncz" --to c --precision q15 --out-of-domain reject --pre
 # The accuracy budget is the one chosen above (0.3 degC), not verify's default of 5% of the model's
 # validation RMSE, which no q15 artifact of this model can be proven to meet.
 nodecast verify "$out/fan.ncz" "$fw" --emulate cortex-m4 --probes 512 --abs-tol 0.3 \
-  --report "$out/verify_m4.json"
+  --report "$out/verify_m4.json" --overwrite
 
 # The firmware engineer's side: an ordinary Makefile and main.c around the generated files.
 cp "$here/Makefile" "$here/main.c" "$fw/"

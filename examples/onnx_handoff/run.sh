@@ -16,7 +16,7 @@ nodecast train "$out/readings.csv" --target heatsink_temp \
 # too loose for verify's default budget (5% of the model's validation RMSE); see docs/verification.md
 nodecast emit "$out/fan.ncz" --to onnx --precision float64 --flag-out-of-domain \
   -o "$out/fan.onnx" --overwrite
-nodecast verify "$out/fan.ncz" "$out/fan.onnx" --data "$out/held_out.csv" --report "$out/verify.json"
+nodecast verify "$out/fan.ncz" "$out/fan.onnx" --data "$out/held_out.csv" --report "$out/verify.json" --overwrite
 
 # The other team's side: no nodecast import, only the file and its metadata.
 python3 "$here/consumer.py" "$out/fan.onnx" "$out/held_out.csv" > "$out/predictions.csv"

@@ -11,4 +11,4 @@ nodecast demo --data-only -o "$out"
 nodecast train "$out/readings.csv" --target heatsink_temp \
   --domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,supply_voltage=22:26 \
   --units heatsink_temp=degC --nodes 200 -o "$out/fan.ncz" --overwrite
-python3 "$here/make_plots.py" "$out/fan.ncz" "$out/held_out.csv" "$out"
+nodecast inspect "$out/fan.ncz" --plot "$out" --data "$out/held_out.csv" --overwrite

@@ -81,6 +81,7 @@ def tightness(bundle, folder: Path, quick: bool) -> dict:
             options.update(activation_impl=impl, out_of_domain="clamp")
         path = folder / f"{target}-{precision}-{impl}" / {"c": "c", "onnx": "m.onnx",
                                                            "python": "p.py"}[target]
+        path.parent.mkdir(parents=True, exist_ok=True)
         artifact = emit(bundle, target, path, **options)
         module = runner(target)
         info = module.describe(path)

@@ -50,7 +50,8 @@ def time_single_fits(X, y, threads: int | None) -> float:
     with threadpool_limits(limits=threads, user_api="blas"):
         start = time.perf_counter()
         for k in NEIGHBORS:
-            RandomNodeRegressor(n_nodes=max(NODES), n_neighbors=k, random_state=SEED).fit(X, y)
+            RandomNodeRegressor(n_nodes=max(NODES), n_neighbors=k, slope_scale=1.0,
+                                random_state=SEED).fit(X, y)
         return time.perf_counter() - start
 
 
@@ -72,7 +73,7 @@ def time_gridsearch(X, y, n_folds: int, n_jobs: int):
 
     splits = fold_indices(X.shape[0], FOLDS, SEED)[:n_folds]
     search = GridSearchCV(
-        RandomNodeRegressor(random_state=SEED),
+        RandomNodeRegressor(slope_scale=1.0, random_state=SEED),
         {"n_nodes": list(NODES), "n_neighbors": list(NEIGHBORS), "ridge": list(RIDGES)},
         scoring="neg_root_mean_squared_error", cv=splits, refit=False, n_jobs=n_jobs)
     with threadpool_limits(limits=1, user_api="blas"):

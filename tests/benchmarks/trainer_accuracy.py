@@ -2,10 +2,11 @@
 
 Data: sklearn.datasets.make_friedman1 (Friedman 1991), 10 features, 20,000 training rows with noise
 1.0, 5,000 noiseless test rows. For M = 250, 500, 1000: test RMSE of data-driven nodes (default
-settings), fixed interval U(-1, 1) and domain-anchored nodes, each with the default ridge ("auto")
-and with the ridge that is best on the test rows among 1e-8 .. 1e1 (the generator's potential,
-for reference only). Baseline: MLPRegressor (logistic, one hidden layer of 100, adam, early
-stopping off, max_iter 2000) with its training time. Prints JSON; asserts nothing.
+settings, k by the default rule and s = 1), fixed interval U(-1, 1) and domain-anchored nodes,
+each with the default ridge ("auto") and with the ridge that is best on the test rows among
+1e-8 .. 1e1 (the generator's potential, for reference only). Baseline: MLPRegressor (logistic,
+one hidden layer of 100, adam, early stopping off, max_iter 2000) with its training time. Prints
+JSON; asserts nothing.
 Run: python tests/benchmarks/trainer_accuracy.py
 """
 
@@ -32,9 +33,11 @@ def networks(X, y, X_test, y_test) -> dict:
     for method in METHODS:
         for m in NODES:
             start = time.perf_counter()
-            model = RandomNodeRegressor(n_nodes=m, method=method, random_state=0).fit(X, y)
+            model = RandomNodeRegressor(n_nodes=m, method=method, n_neighbors=None,
+                                        slope_scale=1.0, random_state=0).fit(X, y)
             seconds = time.perf_counter() - start
             best = min((_rmse(RandomNodeRegressor(n_nodes=m, method=method, ridge=r,
+                                                  n_neighbors=None, slope_scale=1.0,
                                                   random_state=0).fit(X, y), X_test, y_test), r)
                        for r in RIDGES)
             table[f"{method} M={m}"] = {

@@ -101,7 +101,8 @@ def compare(X, y, n_nodes: int, rows: int) -> dict:
         for ridge, times in (("auto", fit_times), (1e-6, fixed_times)):
             time.sleep(PAUSE)
             start = time.perf_counter()
-            RandomNodeRegressor(n_nodes=n_nodes, ridge=ridge, random_state=0).fit(X, y)
+            RandomNodeRegressor(n_nodes=n_nodes, ridge=ridge, n_neighbors=None, slope_scale=1.0,
+                                random_state=0).fit(X, y)
             times.append(time.perf_counter() - start)
     return {"fit_seconds": min(fit_times), "fit_seconds_given_ridge": min(fixed_times),
             "unavoidable_seconds": min(base_times), "unavoidable_parts_seconds": base_parts,
@@ -124,7 +125,8 @@ def main(n_rows: int = 200_000, n_nodes: int = 500) -> dict:
     peaks = {}
     for rows_used in (n_rows // 2, n_rows):
         tracemalloc.start()
-        model = RandomNodeRegressor(n_nodes=n_nodes, random_state=0).fit(X[:rows_used], y[:rows_used])
+        model = RandomNodeRegressor(n_nodes=n_nodes, n_neighbors=None, slope_scale=1.0,
+                                    random_state=0).fit(X[:rows_used], y[:rows_used])
         peaks[rows_used] = tracemalloc.get_traced_memory()[1]
         tracemalloc.stop()
     peak = peaks[n_rows]

@@ -156,9 +156,24 @@ def _check_float_case(values, field):
         valid &= bool(np.all(array > 0))
     if field == "domain_low":
         valid &= bool(np.all(array <= ORIGINAL.network.domain_high))
+    valid = valid and _within_content_limits(field, array)
     assert (loaded is not None) == valid
     if loaded is not None:
         assert getattr(loaded.network, field).tobytes() == array.tobytes()
+
+
+def _within_content_limits(field, array) -> bool:
+    """docs/reliability.md: values within 1e100, scales at least 1e-100, and the normalised
+    domain, the pre-activations and the outputs over the domain within 1e100."""
+    arrays = dict(ORIGINAL.network.arrays(), **{field: array})
+    if any(np.max(np.abs(v)) > 1e100 for v in arrays.values()) or np.min(
+            arrays["input_scale"]) < 1e-100:
+        return False
+    with np.errstate(all="ignore"):
+        reach = np.maximum(abs(arrays["domain_low"] - arrays["input_offset"]),
+                           abs(arrays["domain_high"] - arrays["input_offset"])) / arrays["input_scale"]
+        z = np.abs(arrays["hidden_weights"]) @ reach + np.abs(arrays["hidden_biases"])
+    return bool(np.max(reach) <= 1e100 and np.max(z) <= 1e100)
 
 
 PAYLOADS_SHAPES = {name: getattr(ORIGINAL.network, name).shape

@@ -213,7 +213,7 @@ def test_appended_or_prepended_bytes_do_not_change_the_model():
 
 # -- versions and manifest ------------------------------------------------------------------------
 
-@pytest.mark.parametrize("version", [2, 0, -1, 10**30, "1", 1.0, True, None, [1]])
+@pytest.mark.parametrize("version", [3, 0, -1, 10**30, "1", 1.0, True, None, [1]])
 def test_unknown_format_version_is_refused(version):
     manifest, payloads = parts(tiny_bundle())
     manifest["format_version"] = version
@@ -497,7 +497,7 @@ def _cli_cases():
     data = bundle_io.to_bytes(tiny_bundle())
     manifest, payloads = parts(tiny_bundle())
     future = copy.deepcopy(manifest)
-    future["format_version"] = 2
+    future["format_version"] = 3
     wrong_type = copy.deepcopy(manifest)
     wrong_type["network"]["feature_names"] = "x0x1"
     flipped = bytearray(data)
@@ -506,7 +506,7 @@ def _cli_cases():
     return {
         "changed array byte": (bytes(flipped), "output_weights.npy"),
         "truncated": (data[: len(data) // 2], "not a readable bundle"),
-        "future version": (assemble(future, payloads), "format version 2"),
+        "future version": (assemble(future, payloads), "format version 3"),
         "dot-dot entry": (assemble(manifest, payloads, extra=[("../x", b"")]), "unsafe entry"),
         "string for list": (assemble(wrong_type, payloads), "not a list of text"),
         "huge stored entry": (patch_central_sizes(data, "arrays/hidden_weights.npy", 2**32 - 1,

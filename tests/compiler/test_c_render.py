@@ -20,13 +20,15 @@ def _c(bundle, **options):
 
 
 @pytest.mark.parametrize("prefix", ["Model", "1model", "my-model", "", "fan.c", "int", "class",
-                                    "math", "stdint", "a" * 33, "caf\u00e9", "x y"])
+                                    "math", "stdint", "a" * 33, "caf\u00e9", "x y",
+                                    # reserved identifiers and clashes with nodecast's own files
+                                    "_", "_x", "x_", "a__b", "startup", "harness", "main", "lc"])
 def test_bad_prefixes_are_refused(friedman_bundle, prefix):
     with pytest.raises(NodecastError, match="prefix"):
         _c(friedman_bundle, prefix=prefix)
 
 
-@pytest.mark.parametrize("prefix", ["fan", "_x", "m2", "heat_sink_01"])
+@pytest.mark.parametrize("prefix", ["fan", "x_2", "m2", "heat_sink_01"])
 def test_good_prefixes_name_files_and_macros(friedman_bundle, prefix):
     artifact = _c(friedman_bundle, prefix=prefix)
     assert sorted(artifact.files) == [f"{prefix}.c", f"{prefix}.h"]

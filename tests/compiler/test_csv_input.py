@@ -6,6 +6,7 @@ from __future__ import annotations
 import csv
 import io
 import math
+import re
 import struct
 
 import numpy as np
@@ -96,7 +97,7 @@ def test_nan_and_inf_are_refused_unless_allowed():
 # -- refused, with line and column ----------------------------------------------------------------
 
 @pytest.mark.parametrize("cell", ["abc", "1,5", "1_000", "0x10", "\u0661\u0662", "1e", "--1",
-                                  "1.2.3", "1e5e5", "TRUE", "12%", "\x00", '2"x"', "\u00bd"])
+                                  "1.2.3", "1e5e5", "T", "12%", "\x00", '2"x"', "\u00bd"])
 def test_cells_that_are_not_plain_decimal_numbers_are_refused(cell):
     quoted = '"' + cell.replace('"', '""') + '"'
     message = refused(f"a,b\n1,{quoted}\n")
@@ -236,3 +237,25 @@ def test_cli_classifier_round_trips_hostile_label_text(tmp_path, capsys):
     rows = list(csv.reader(io.StringIO(out, newline="")))
     assert rows[0][0] == "label" and {row[0] for row in rows[1:]} <= set(names)
     assert np.mean([row[0] == label for row, label in zip(rows[1:], labels, strict=True)]) > 0.8
+
+
+# -- yes/no cells ---------------------------------------------------------------------------------
+
+def test_yes_no_and_true_false_cells_read_as_one_and_zero():
+    read = table("a,b\nyes,TRUE\nNo,false\n Yes , False \n").numbers(["a", "b"])
+    assert read.tolist() == [[1.0, 1.0], [0.0, 0.0], [1.0, 0.0]]
+
+
+@pytest.mark.parametrize("cell", ["y", "on", "nope", "truth", "ＹＥＳ", "yes!"])
+def test_other_text_is_still_refused(cell):
+    with pytest.raises(NodecastError, match=f"line 2, column 'a': {re.escape(repr(cell))} is not a number"):
+        table(f"a\n{cell}\n").numbers(["a"])
+
+
+def test_cli_trains_on_a_yes_no_feature(tmp_path, capsys):
+    X, y = _readings()
+    rows = [[u, "yes" if v > 0.5 else "no", t] for (u, v), t in zip(X, y, strict=True)]
+    data = _write(tmp_path / "d.csv", ["u", "fan_on", "y"], rows)
+    code, _, err = run_cli(["train", data, "--target", "y", "--nodes", "10", "-o",
+                            tmp_path / "m.ncz"], capsys)
+    assert code == 0, err

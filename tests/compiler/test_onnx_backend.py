@@ -91,7 +91,8 @@ def test_classifier_outputs_scores_and_original_string_labels(classifier_bundle)
     assert {"setosa", "versi'color", 'virgin"ica'} == set(map(str, labels))
 
 
-@pytest.mark.parametrize("opset", onnx_backend.SUPPORTED_OPSETS)
+@pytest.mark.parametrize("opset", [o for o in onnx_backend.SUPPORTED_OPSETS
+                                   if o >= onnx_backend.FLAG_OPSET])
 def test_every_supported_opset_checks_and_runs(friedman_bundle, opset):
     data = _model_bytes(friedman_bundle, opset=opset, flag_out_of_domain=True)
     model = onnx.load_from_string(data)
@@ -102,9 +103,9 @@ def test_every_supported_opset_checks_and_runs(friedman_bundle, opset):
     assert got.shape == (X.shape[0], 1) and not flags.any()
 
 
-def test_default_opset_is_newest_the_installed_checker_knows_or_older():
-    assert onnx_backend.DEFAULT_OPSET == max(onnx_backend.SUPPORTED_OPSETS)
-    assert onnx_backend.DEFAULT_OPSET <= onnx.defs.onnx_opset_version()
+def test_newest_supported_opset_is_one_the_installed_checker_knows():
+    assert onnx_backend.NEWEST_OPSET == max(onnx_backend.SUPPORTED_OPSETS)
+    assert onnx_backend.NEWEST_OPSET <= onnx.defs.onnx_opset_version()
 
 
 def test_clamp_policy_and_out_of_domain_flag(friedman_bundle):
@@ -156,7 +157,8 @@ def test_far_narrow_domain_is_costed_and_kept_explicit(friedman_bundle):
 
 @pytest.mark.parametrize("options, message", [
     ({"precision": "q15"}, "float32 or float64"),
-    ({"opset": 9}, "not supported"),
+    ({"opset": 8}, "not supported"),
+    ({"opset": 17, "flag_out_of_domain": True}, "needs opset 18"),
     ({"out_of_domain": "reject"}, "cannot refuse"),
 ])
 def test_unsupported_options_are_refused(friedman_bundle, options, message):

@@ -115,7 +115,7 @@ def test_rmse_gate_exit_status_and_reports(capsys, files, friedman_bundle):
     assert status == 0 and "score PASSED" in out
     assert json.loads(report.read_text())["gates"][0]["passed"] is True
     status, out, _ = run_cli(capsys, "score", files["good"], files["data"], "--max-rmse",
-                             repr(rmse * 0.999), "--junit", junit)
+                             repr(rmse * 0.999), "--junit", junit, "--overwrite")
     assert status == 1 and "score FAILED" in out
     root = ET.fromstring(junit.read_bytes())  # the common JUnit layout (common practice)
     suite = root.find("testsuite")

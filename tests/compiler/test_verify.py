@@ -170,7 +170,8 @@ def test_cli_exit_status_report_and_junit(capsys, onnx_files, tmp_path):
     assert json.loads(report.read_text())["passed"] is True
     assert junit.read_text().startswith("<?xml")
     status, out, _ = run_cli(capsys, "verify", onnx_files["bundle"], onnx_files["float32"],
-                             "--probes", "256", "--abs-tol", "1e-12", "--report", report)
+                             "--probes", "256", "--abs-tol", "1e-12", "--report", report,
+                             "--overwrite")
     assert status == 1 and "verification FAILED" in out
     assert json.loads(report.read_text())["passed"] is False
 

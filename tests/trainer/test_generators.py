@@ -10,7 +10,7 @@ from sklearn.utils import check_random_state
 from nodecast.compiler.activations import get_activation
 from nodecast.trainer import RandomNodeRegressor
 from nodecast.trainer.generators import GENERATORS
-from nodecast.trainer.generators.data_driven import default_neighbors
+from nodecast.trainer.generators.data_driven import LOCAL_RIDGE, default_neighbors
 
 LOGISTIC = get_activation("logistic")
 
@@ -25,8 +25,9 @@ def _unit_data(rows=400, features=3, seed=1):
     return U, (np.sin(4 * U[:, :1]) + U[:, 1:2] ** 2) / 2.0
 
 
-def test_registry_names_the_three_methods_and_draws_are_reproducible():
-    assert sorted(GENERATORS) == ["data-driven", "domain-anchored", "interval"]
+def test_registry_names_the_five_methods_and_draws_are_reproducible():
+    assert sorted(GENERATORS) == ["data-driven", "domain-anchored", "interval", "slope-angle",
+                                  "weight-sum"]
     U, T = _unit_data()
     for method in GENERATORS:
         first, again = _draw(method, U, T), _draw(method, U, T)
@@ -43,22 +44,88 @@ def test_interval_draws_stay_in_the_interval():
     assert np.abs(layer.weights).max() > 0.25  # uses the whole interval, not a corner of it
 
 
+def _meets_unit_box(layer, activation=LOGISTIC) -> bool:
+    # The hyperplane a.u + b = z0 meets [0, 1]^n exactly when z - z0 changes sign between the box's
+    # corners of least and greatest z (z is affine in u).
+    lowest = layer.biases + np.minimum(layer.weights, 0).sum(axis=1) - activation.inflection
+    highest = layer.biases + np.maximum(layer.weights, 0).sum(axis=1) - activation.inflection
+    return bool(np.all(lowest <= 0) and np.all(highest >= 0))
+
+
 def test_domain_anchored_inflections_lie_in_the_unit_box():
-    # b = -a.p with p in [0, 1]^n: the hyperplane a.u + b = 0 meets the box, so z changes sign
-    # between the box's extreme corners for the node.
     U, T = _unit_data()
     layer = _draw("domain-anchored", U, T, n_nodes=200, interval=5.0)
-    lowest = layer.biases + np.minimum(layer.weights, 0).sum(axis=1)
-    highest = layer.biases + np.maximum(layer.weights, 0).sum(axis=1)
-    assert np.all(lowest <= 0) and np.all(highest >= 0)
+    assert _meets_unit_box(layer)
     assert np.all(np.abs(layer.weights) <= 5.0)
+
+
+def _ridge(U, t):
+    """sklearn's Ridge (intercept not penalised) with alpha = LOCAL_RIDGE times the largest
+    squared singular value of the centred inputs, the documented rule of the local fits."""
+    from sklearn.linear_model import Ridge
+
+    alpha = LOCAL_RIDGE * np.linalg.norm(U - U.mean(axis=0), 2) ** 2
+    return Ridge(alpha=alpha, fit_intercept=True, solver="svd").fit(U, t).coef_
+
+
+def _local_ridge_slope(U_local, t_local, trend):
+    """The documented local fit, by scikit-learn's Ridge as reference: shrunk towards the global
+    trend g, c = g + ridge slope of the residual t - U g."""
+    return trend + _ridge(U_local, t_local - U_local @ trend)
+
+
+@pytest.mark.parametrize("name", ["logistic", "tanh"])
+def test_slope_angles_lie_in_the_range_and_directions_are_uniform(name):
+    # Defining property (Dudek 2019): the sigmoid's slope at its inflection, g'(z0) |a|, is
+    # tan(alpha) with alpha in [alpha_min, alpha_max]; the direction a / |a| is uniform on the
+    # sphere, so its mean is ~0 and each squared component averages 1/n (common practice: moments
+    # of the uniform distribution on the sphere).
+    act = get_activation(name)
+    U, T = _unit_data()
+    layer = _draw("slope-angle", U, T, n_nodes=4000, activation=act, angle_range=(20.0, 70.0))
+    angles = np.degrees(np.arctan(act.slope_at_inflection * np.linalg.norm(layer.weights, axis=1)))
+    assert angles.min() >= 20.0 - 1e-9 and angles.max() <= 70.0 + 1e-9
+    assert angles.min() < 21.0 and angles.max() > 69.0  # the whole range is used
+    assert abs(np.mean(angles) - 45.0) < 1.0  # uniform in the angle, not in the slope
+    directions = layer.weights / np.linalg.norm(layer.weights, axis=1, keepdims=True)
+    assert np.all(np.abs(directions.mean(axis=0)) < 0.05)
+    assert np.allclose(np.mean(directions**2, axis=0), 1 / 3, atol=0.02)
+    assert _meets_unit_box(layer, act)
+
+
+def test_weight_sums_lie_in_the_interval_with_random_shares_and_signs():
+    # Defining property: sum_i |a_i| = S with S uniform in [r, s]; shares uniform on the simplex
+    # (mean 1/n each), signs +-1 with equal chances; the inflection hyperplane meets the box.
+    U, T = _unit_data()
+    layer = _draw("weight-sum", U, T, n_nodes=4000, weight_sum=(3.0, 12.0))
+    sums = np.abs(layer.weights).sum(axis=1)
+    assert sums.min() >= 3.0 * (1 - 1e-12) and sums.max() <= 12.0 * (1 + 1e-12)
+    assert sums.min() < 3.1 and sums.max() > 11.9 and abs(sums.mean() - 7.5) < 0.2
+    shares = np.abs(layer.weights) / sums[:, None]
+    assert np.allclose(shares.mean(axis=0), 1 / 3, atol=0.02)
+    assert abs(np.mean(layer.weights > 0) - 0.5) < 0.02
+    assert _meets_unit_box(layer)
+
+
+@pytest.mark.parametrize("method, settings", [
+    ("interval", {"interval": 2.0}), ("domain-anchored", {"interval": 2.0}),
+    ("slope-angle", {"angle_range": (0.0, 80.0)}), ("weight-sum", {"weight_sum": (1.0, 9.0)})])
+def test_every_generator_draw_of_fewer_nodes_is_the_prefix_of_a_larger_one(method, settings):
+    # What select relies on to score every M from one draw, so that train reproduces its choice.
+    U, T = _unit_data()
+    small = _draw(method, U, T, n_nodes=17, **settings)
+    large = _draw(method, U, T, n_nodes=90, **settings)
+    assert np.array_equal(small.weights, large.weights[:17])
+    assert np.array_equal(small.biases, large.biases[:17])
 
 
 @pytest.mark.parametrize("name", ["logistic", "tanh"])
 def test_data_driven_node_takes_the_local_slope_at_its_anchor(name):
     # With g'(z0) the activation's slope at its inflection (1/4 logistic, 1 tanh), the node's
-    # gradient at its anchor equals s times the least-squares slope of its k neighbours
-    # (numpy.linalg.lstsq and sklearn's NearestNeighbors as references).
+    # gradient at its anchor equals s times the ridge slope of its k neighbours shrunk towards the
+    # global trend (sklearn's Ridge and NearestNeighbors as references), which on these
+    # well-spread neighbourhoods is within 1% of the plain least-squares slope of the published
+    # method (numpy.linalg.lstsq).
     from sklearn.neighbors import NearestNeighbors
 
     act = get_activation(name)
@@ -68,11 +135,15 @@ def test_data_driven_node_takes_the_local_slope_at_its_anchor(name):
     anchors = np.argmin(np.abs(Z - act.inflection), axis=0)
     assert np.all(np.abs(Z[anchors, np.arange(25)] - act.inflection) < 1e-12)
     _, rows = NearestNeighbors(n_neighbors=9).fit(U).kneighbors(U[anchors])
+    assert layer.diagnostics["damped_fits"] == 0 and layer.diagnostics["capped_slopes"] == 0
+    trend = _ridge(U, T[:, 0])
     for node in range(25):
-        design = np.column_stack([np.ones(9), U[rows[node]] - U[anchors[node]]])
-        slope = np.linalg.lstsq(design, T[rows[node], 0], rcond=None)[0][1:]
         gradient = act.slope_at_inflection * layer.weights[node]
+        slope = _local_ridge_slope(U[rows[node]], T[rows[node], 0], trend)
         assert np.allclose(gradient, 1.5 * slope, rtol=1e-8, atol=1e-10)
+        design = np.column_stack([np.ones(9), U[rows[node]] - U[anchors[node]]])
+        plain = np.linalg.lstsq(design, T[rows[node], 0], rcond=None)[0][1:]
+        assert np.linalg.norm(gradient - 1.5 * plain) <= 0.01 * np.linalg.norm(1.5 * plain)
 
 
 def test_duplicate_rows_and_too_few_neighbours_are_counted_not_fatal():
@@ -112,7 +183,7 @@ def test_a_constant_feature_gets_no_weight_and_is_counted_by_the_estimator():
     rng = np.random.default_rng(2)
     X = np.column_stack([rng.random(300), np.full(300, 7.0), rng.random(300)])
     y = np.sin(3 * X[:, 0]) + X[:, 2]
-    model = RandomNodeRegressor(n_nodes=30, ridge=1e-6, random_state=0).fit(X, y)
+    model = RandomNodeRegressor(n_nodes=30, n_neighbors=None, ridge=1e-6, random_state=0).fit(X, y)
     assert model.input_scale_[1] == 1.0 and model.input_offset_[1] == 7.0  # zero span: scale 1
     assert np.all(model.hidden_weights_[:, 1] == 0.0)
     assert model.diagnostics_["constant_features"] == 1

@@ -12,6 +12,7 @@ from nodecast.compiler.errors import NodecastError
 from nodecast.trainer import RandomNodeRegressor, select
 from nodecast.trainer.cv_units import UnitSettings, evaluate_unit
 from nodecast.trainer.folds import draw_layer, fold_indices, split_data
+from nodecast.trainer.method_grid import LayerSpec
 
 SEED = 3
 GRID = dict(nodes=[15, 40], neighbors=[12, 30], slope_scales=[0.5, 1.0], ridges=[0.0, 1e-8, 1e-4])
@@ -67,7 +68,8 @@ def test_reuse_path_matches_refitting_every_split(search, gridsearch):
 
 def test_chosen_point_is_gridsearch_best(search, gridsearch):
     best = gridsearch.best_params_
-    assert search.chosen.params == {"n_nodes": best["n_nodes"], "n_neighbors": best["n_neighbors"],
+    assert search.chosen.params == {"n_nodes": best["n_nodes"], "method": "data-driven",
+                                    "n_neighbors": best["n_neighbors"],
                                     "slope_scale": best["slope_scale"], "ridge": best["ridge"]}
     assert search.chosen.rmse_mean[0] == pytest.approx(-gridsearch.best_score_, rel=1e-8)
 
@@ -108,9 +110,11 @@ def test_validation_rows_never_shape_their_own_model(friedman):
     X[valid] = 3.0 * X[valid] + 1.0
     Y[valid] = -Y[valid]
     declared = (np.full(6, np.nan), np.full(6, np.nan))
-    settings = UnitSettings(12, 1.0, (15, 40), (1e-6,), SEED)
+    settings = UnitSettings(LayerSpec("data-driven", (("n_neighbors", 12), ("slope_scale", 1.0))),
+                            (15, 40), (1e-6,), SEED)
     unit = evaluate_unit(X, Y, (train, valid), declared, settings)
-    scratch = RandomNodeRegressor(n_nodes=40, n_neighbors=12, ridge=1e-6, random_state=SEED)
+    scratch = RandomNodeRegressor(n_nodes=40, n_neighbors=12, slope_scale=1.0, ridge=1e-6,
+                                  random_state=SEED)
     scratch.fit(X[train], Y[train, 0])
     expected = np.sqrt(np.mean((scratch.predict(X[valid]) - Y[valid, 0]) ** 2))
     assert unit.rmse[0, 1, 0] == pytest.approx(expected, rel=1e-9)
@@ -146,7 +150,7 @@ def test_folds_partition_the_rows():
 @pytest.mark.parametrize("bad, message", [
     (dict(nodes=[0]), "nodes"), (dict(ridges=[-1.0]), "ridges"),
     (dict(neighbors=[2.5]), "neighbors"),
-    (dict(slope_scales=[]), "slope_scales"), (dict(folds=1), "folds"),
+    (dict(slope_scales=[]), "slope-scales"), (dict(folds=1), "folds"),
     (dict(tolerance=1e-3), "tolerance"),
 ])
 def test_bad_settings_are_one_clear_error(friedman, bad, message):

@@ -57,4 +57,4 @@ def test_default_model_is_sensible_and_its_float32_export_keeps_its_accuracy(tmp
     # float64 artifacts agree with the reference within 1e-10 of the output range (SPEC)
     float64 = np.max(np.abs(_onnxruntime(emit(bundle, "onnx", precision="float64"), probes) - expected))
     assert float64 < 1e-10 * np.ptp(expected)
-    assert bundle.metadata["ridge"]["rule"] == "gcv+float32"
+    assert bundle.metadata["ridge"]["rule"] == "gcv+heldout+float32"

@@ -10,11 +10,15 @@ from nodecast.trainer.generators.base import HiddenLayer
 from nodecast.trainer.generators.data_driven import generate as data_driven
 from nodecast.trainer.generators.domain_anchored import generate as domain_anchored
 from nodecast.trainer.generators.interval import generate as interval
+from nodecast.trainer.generators.slope_angle import generate as slope_angle
+from nodecast.trainer.generators.weight_sum import generate as weight_sum
 
 GENERATORS = {
     "data-driven": data_driven,
     "interval": interval,
     "domain-anchored": domain_anchored,
+    "slope-angle": slope_angle,
+    "weight-sum": weight_sum,
 }
 
 __all__ = ["GENERATORS", "HiddenLayer"]

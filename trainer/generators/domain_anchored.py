@@ -4,15 +4,13 @@ coordinates): b = z0 - a.p."""
 
 from __future__ import annotations
 
-import numpy as np
-
 from nodecast.trainer.generators.base import HiddenLayer
+from nodecast.trainer.generators.streams import box_points, streams, through_points
 
 
 def generate(U, T, n_nodes, rng, activation, *, interval=1.0, **_unused) -> HiddenLayer:
     """Layer of ``n_nodes`` nodes for inputs U of shape (N, n); ``T`` unused."""
     n = U.shape[1]
-    weights = rng.uniform(-interval, interval, size=(n_nodes, n))
-    points = rng.uniform(0.0, 1.0, size=(n_nodes, n))
-    biases = activation.inflection - np.einsum("ij,ij->i", weights, points)
-    return HiddenLayer(weights, biases)
+    weight_rng, point_rng = streams(rng, 2)
+    weights = weight_rng.uniform(-interval, interval, size=(n_nodes, n))
+    return HiddenLayer(weights, through_points(weights, box_points(point_rng, n_nodes, n), activation))

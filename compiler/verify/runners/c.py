@@ -56,6 +56,7 @@ def describe(path: Path, emulate: str | None = None, **_options) -> dict:
                 "activation_error": float(macros["ACTIVATION_ERROR"]),
                 "table_size": int(macros["TABLE_SIZE"]),
                 "n_inputs": int(macros["N_INPUTS"]), "n_outputs": int(macros["N_OUTPUTS"]),
+                "n_categorical": int(macros.get("N_CATEGORICAL", "0")),
                 "emulate": emulate,
                 "engines": [f"qemu-{emulate}" if emulate else f"host-{toolchain.host_compiler()}"]}
         if info["precision"] in ("q15", "q31"):
@@ -73,8 +74,9 @@ def describe(path: Path, emulate: str | None = None, **_options) -> dict:
     return info
 
 
-def harness_source(info: dict, rows: np.ndarray | None = None) -> bytes:
-    """The harness main for ``info``'s artifact: rows from stdin, or compiled in (semihosted)."""
+def harness_source(info: dict, rows: np.ndarray | None = None, timed: bool = False) -> bytes:
+    """The harness main for ``info``'s artifact: rows from stdin, or compiled in (semihosted);
+    ``timed`` (semihosted only) prints SysTick ticks per call instead of the outputs."""
     from nodecast.compiler.backends.c_format import array_body
     from nodecast.templates import render
 
@@ -82,6 +84,8 @@ def harness_source(info: dict, rows: np.ndarray | None = None) -> bytes:
     context = {"version": __version__, "prefix": info["prefix"], "PREFIX": info["prefix"].upper(),
                "precision": info["precision"], "io_type": _IO_TYPES[info["precision"]],
                "n_inputs": info["n_inputs"], "semihosted": rows is not None,
+               "n_categorical": info.get("n_categorical", 0),
+               "timed": timed and rows is not None,
                "row_count": 0 if rows is None else int(rows.shape[0]),
                "rows": array_body([f"UINT64_C(0x{int(b):016x})" for b in bits]) or "    0,"}
     return render("harness", "main.c.j2", **context).encode("ascii")
@@ -125,12 +129,13 @@ def run_host(path: Path, X: np.ndarray, info: dict, extra_flags=()) -> str:
         toolchain.run([compiler, "-std=c99", "-O2", *toolchain.REPRODUCIBLE, *extra_flags,
                        f"{prefix}.c", "harness.c", "-o", "harness", "-lm"], cwd=folder)
         rows = np.ascontiguousarray(X, dtype="<f8").tobytes()
-        return toolchain.run([str(folder / "harness")], cwd=folder, stdin=rows).decode("ascii")
+        return toolchain.run([str(folder / "harness")], cwd=folder, stdin=rows,
+                             env=toolchain.artifact_environment()).decode("ascii")
 
 
 def run(path: Path, X: np.ndarray, info: dict) -> np.ndarray:
     """Outputs of the artifact for rows ``X`` (n_rows, n_inputs); rejected rows are NaN."""
-    X = np.asarray(X, dtype=np.float64).reshape(-1, info["n_inputs"])
+    X = np.asarray(X, dtype=np.float64).reshape(-1, info["n_inputs"] + info.get("n_categorical", 0))
     if X.shape[0] == 0:
         return np.zeros((0, info["n_outputs"]))
     if info.get("emulate"):

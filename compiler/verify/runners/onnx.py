@@ -16,6 +16,7 @@ from nodecast.compiler.errors import NodecastError, one_line
 ENGINES = ("onnxruntime", "onnx.reference")
 PRECISIONS = ("float32", "float64")
 INPUT_NAME, OUTPUT_NAME, LABEL_NAME = "features", "outputs", "label"
+LEVELS_NAME = "levels"
 
 
 def _load(path: Path):
@@ -44,9 +45,14 @@ def describe(path: Path, **_options) -> dict:
         bound = json.loads(props.get("nodecast.certified_bound", "null"))
     except ValueError:
         raise NodecastError(f"{path} holds an unreadable nodecast.certified_bound") from None
+    try:
+        n_categorical = len(json.loads(props.get("nodecast.categorical_names", "[]")))
+    except (ValueError, TypeError):
+        raise NodecastError(f"{path} holds unreadable nodecast.categorical_names") from None
     return {"kind": "onnx", "bundle_id": props["nodecast.bundle_id"], "precision": precision,
             "certified_bound": bound,
             "out_of_domain": props.get("nodecast.out_of_domain", "pass"),
+            "n_categorical": n_categorical,
             "error_estimate": stated, "engines": list(ENGINES)}
 
 
@@ -57,7 +63,7 @@ def _onnxruntime(path: Path, X: np.ndarray, output: str) -> np.ndarray:
     options.intra_op_num_threads = 1
     options.inter_op_num_threads = 1
     session = ort.InferenceSession(str(path), options, providers=["CPUExecutionProvider"])
-    (outputs,) = session.run([output], {INPUT_NAME: X})
+    (outputs,) = session.run([output], X)
     return outputs
 
 
@@ -68,7 +74,7 @@ def _reference_evaluator(path: Path, X: np.ndarray, output: str) -> np.ndarray:
     # its Sigmoid evaluates both branches of a stable formula and keeps the finite one: the other
     # may overflow (inf / inf), which is harmless there; any NaN that reached the outputs is caught
     with np.errstate(over="ignore", under="ignore", invalid="ignore"):
-        (outputs,) = evaluator.run([output], {INPUT_NAME: X})
+        (outputs,) = evaluator.run([output], X)
     return outputs
 
 
@@ -80,11 +86,24 @@ def _evaluate(path: Path, X: np.ndarray, info: dict, output: str) -> np.ndarray:
     dtype = np.float32 if info["precision"] == "float32" else np.float64
     evaluate = _onnxruntime if engine == "onnxruntime" else _reference_evaluator
     try:
-        return evaluate(path, np.ascontiguousarray(X, dtype=dtype), output)
+        return evaluate(path, _feeds(X, dtype, info.get("n_categorical", 0)), output)
     except NodecastError:
         raise
     except Exception as exc:  # a model that loads but cannot run: bad input, not a crash
         raise NodecastError(f"{engine} cannot run {path}: {one_line(exc)}") from None
+
+
+def _feeds(X: np.ndarray, dtype, n_categorical: int) -> dict:
+    """The graph inputs: the features, and the level codes (anything that is not a whole number
+    becomes -1, which names no level) when the model has categorical inputs."""
+    X = np.asarray(X, dtype=np.float64)
+    if not n_categorical:
+        return {INPUT_NAME: np.ascontiguousarray(X, dtype=dtype)}
+    numbers, codes = X[:, :-n_categorical], X[:, -n_categorical:]
+    with np.errstate(invalid="ignore"):
+        whole = np.isfinite(codes) & (codes == np.floor(codes)) & (np.abs(codes) < 2**62)
+    return {INPUT_NAME: np.ascontiguousarray(numbers, dtype=dtype),
+            LEVELS_NAME: np.where(whole, np.nan_to_num(codes), -1).astype(np.int64)}
 
 
 def run(path: Path, X: np.ndarray, info: dict) -> np.ndarray:

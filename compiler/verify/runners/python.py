@@ -21,10 +21,12 @@ from pathlib import Path
 import numpy as np
 
 from nodecast.compiler.errors import NodecastError
+from nodecast.compiler.toolchain import artifact_environment
 
 _CONSTANTS = ("BUNDLE_ID", "PRECISION", "OUT_OF_DOMAIN", "TASK", "TOOL_VERSION", "FEATURE_NAMES",
               "N_OUTPUTS")
-_OPTIONAL_CONSTANTS = ("CERTIFIED_BOUND",)
+# the bound, and the names and levels of predictors with categorical inputs
+_OPTIONAL_CONSTANTS = ("CERTIFIED_BOUND", "CATEGORICAL_NAMES", "CATEGORICAL_LEVELS")
 _SECONDS_PER_ROW = 0.01  # generous: a 2000-node predictor takes about a millisecond per row
 _MIN_SECONDS = 120.0
 MIN_VERSION = (3, 8)  # the oldest Python the generated predictor supports
@@ -50,6 +52,11 @@ def read_constants(path: Path) -> dict:
     missing = [name for name in _CONSTANTS if name not in found]
     if missing:
         raise NodecastError(f"{path} was not made by nodecast (no {', '.join(missing)})")
+    names = found["FEATURE_NAMES"]
+    if (not isinstance(names, (list, tuple)) or not all(isinstance(n, str) for n in names)
+            or type(found["N_OUTPUTS"]) is not int
+            or not all(isinstance(found[k], str) for k in _CONSTANTS[:5])):
+        raise NodecastError(f"{path} declares constants of the wrong type (edited?)")
     return found
 
 
@@ -67,7 +74,10 @@ def describe(path: Path, interpreters=None, **_options) -> dict:
             "certified_bound": constants.get("CERTIFIED_BOUND"),
             "task": constants["TASK"], "tool_version": constants["TOOL_VERSION"],
             "engines": list(chosen), "interpreters": chosen,
-            "feature_names": list(constants["FEATURE_NAMES"]), "n_outputs": constants["N_OUTPUTS"]}
+            "feature_names": list(constants["FEATURE_NAMES"]), "n_outputs": constants["N_OUTPUTS"],
+            "categorical": [[name, list(levels)] for name, levels in zip(
+                constants.get("CATEGORICAL_NAMES", ()), constants.get("CATEGORICAL_LEVELS", ()),
+                strict=True)]}
 
 
 def _interpreters(spec) -> dict[str, str]:
@@ -85,12 +95,27 @@ def _interpreters(spec) -> dict[str, str]:
     return chosen
 
 
-def rows_as_csv(feature_names, X: np.ndarray) -> bytes:
-    """CSV text of the rows under a header of feature names; numbers by ``repr`` (exact)."""
+def rows_as_csv(feature_names, X: np.ndarray, categorical=()) -> bytes:
+    """CSV text of the rows under a header of feature names; numbers by ``repr`` (exact).
+
+    ``categorical``: (name, levels) per categorical input; the columns of ``X`` after the features
+    are level codes, written as the level's text (a code that names no level as a text that is
+    none of the levels)."""
+    X = np.asarray(X, dtype=float)
+    n = len(feature_names)
     buffer = io.StringIO()
     writer = csv.writer(buffer, lineterminator="\n")
-    writer.writerow(feature_names)
-    writer.writerows([repr(value) for value in row] for row in np.asarray(X, dtype=float).tolist())
+    writer.writerow(list(feature_names) + [name for name, _ in categorical])
+    texts = []
+    for c, (_, levels) in enumerate(categorical):
+        unknown = "unknown-level"
+        while unknown in levels:
+            unknown += "?"
+        column = X[:, n + c]
+        known = (column >= 0) & (column < len(levels)) & (column == np.floor(column))
+        texts.append([levels[int(v)] if ok else unknown for v, ok in zip(column, known, strict=True)])
+    for r, row in enumerate(X[:, :n].tolist()):
+        writer.writerow([repr(value) for value in row] + [column[r] for column in texts])
     return buffer.getvalue().encode("utf-8")
 
 
@@ -102,9 +127,10 @@ def run(path: Path, X: np.ndarray, info: dict) -> np.ndarray:
     executable = interpreters.get(info.get("engine"), next(iter(interpreters.values())))
     command = [executable, "-I", "-S", str(path), "--scores", "--keep-going"]
     try:
-        done = subprocess.run(command, input=rows_as_csv(info["feature_names"], X),
+        done = subprocess.run(command, input=rows_as_csv(info["feature_names"], X,
+                                                         info.get("categorical", ())),
                               capture_output=True, timeout=_MIN_SECONDS + _SECONDS_PER_ROW * len(X),
-                              check=False)
+                              check=False, env=artifact_environment())
     except (OSError, subprocess.TimeoutExpired) as exc:
         raise NodecastError(f"cannot run {path} with {executable}: {exc}") from None
     if done.returncode != 0:

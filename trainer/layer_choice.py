@@ -1,0 +1,79 @@
+"""The default neighbours k and slope scale s of the data-driven generator (``n_neighbors="auto"``,
+``slope_scale="auto"``, what ``nodecast train`` does without ``--neighbors``/``--slope-scale``).
+
+A small inner search by generalized cross-validation (Golub, Heath and Wahba 1979), an estimate
+of the leave-one-out error that needs no refits:
+
+* candidates: k in k0 * (1, 2, 4, 8, 16) (at most the rows; k0 = max(10, 2 (q + 1)), q the
+  varying features), then s in (0.5, 1, 2) at the best k (coordinate search: 7 draws at most);
+  a given k or s is not searched;
+* each candidate draws its layer exactly as a plain fit with those settings and the same random
+  state would, reads the rows once into the QR factor of [1, H], and is scored by the GCV minimum
+  over the ridge grid of :mod:`nodecast.trainer.ridge_choice` (or at the given ridge), all from one
+  SVD of that factor;
+* the winner's layer and factor are the model's: nothing is refitted, and ``train`` with the
+  chosen ``--neighbors`` and ``--slope-scale`` and the same seed gives the same arrays.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+import numpy as np
+
+from nodecast.trainer import ridge_choice
+from nodecast.trainer.generators.data_driven import default_neighbors
+
+NEIGHBOR_FACTORS = (1, 2, 4, 8, 16)
+SLOPE_SCALES = (0.5, 1.0, 2.0)
+
+
+def gcv_rmse(factor, ridge) -> float:
+    """sqrt of the GCV score per output (normalised units): at ``ridge``, or the minimum over the
+    ridge grid when ``ridge`` is "auto"."""
+    spec = ridge_choice.spectrum(factor)
+    ridges = ridge_choice.GRID if ridge == "auto" else (float(ridge),)
+    best = min(ridge_choice.gcv_score(spec, float(r)) for r in ridges)
+    return float(np.sqrt(best / spec.rotated.shape[1]))
+
+
+def neighbor_candidates(n_varying: int, n_rows: int) -> list[int]:
+    k0 = default_neighbors(n_varying)
+    return sorted({min(k0 * f, n_rows) for f in NEIGHBOR_FACTORS})
+
+
+def choose(fit_layer: Callable, n_neighbors, slope_scale, ridge, n_varying: int, n_rows: int):
+    """The best (k, s) candidate's fit, and a record of the search for the bundle's metadata.
+
+    fit_layer(n_neighbors, slope_scale) -> (layer, factor, extra), one draw and one pass over the
+    rows; ``n_neighbors``/``slope_scale`` "auto" are searched, other values used as given.
+    Returns ((layer, factor, extra), k, s, record).
+    """
+    tried: dict[tuple, float] = {}
+    best: list = []  # [rank key, (k, s), fitted]: only the best fit is kept, to bound memory
+
+    def score(k, s):
+        if (k, s) not in tried:
+            fitted = fit_layer(k, s)
+            tried[(k, s)] = gcv_rmse(fitted[1], ridge)
+            key = (tried[(k, s)], abs(np.log(s)), k)
+            if not best or key < best[0]:
+                best[:] = [key, (k, s), fitted]
+        return tried[(k, s)]
+
+    ks = neighbor_candidates(n_varying, n_rows) if n_neighbors == "auto" else [n_neighbors]
+    scales = SLOPE_SCALES if slope_scale == "auto" else (float(slope_scale),)
+    first_s = 1.0 if slope_scale == "auto" else float(slope_scale)
+    k = min(ks, key=lambda c: (score(c, first_s), c))
+    for c in scales:
+        score(k, c)
+    k, s = best[1]
+    record = {"rule": "gcv", "neighbors": k, "slope_scale": s,
+              "candidates": [{"neighbors": ck, "slope_scale": cs, "gcv_rmse_normalised": value}
+                             for (ck, cs), value in sorted(tried.items(), key=_order)]}
+    return best[2], k, s, record
+
+
+def _order(item) -> tuple:
+    (k, s), _ = item
+    return (-1 if k is None else k, s)
