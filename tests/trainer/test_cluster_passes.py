@@ -29,10 +29,10 @@ def synchronous(monkeypatch):
     monkeypatch.setattr(frames, "BLOCK_BYTES", 8_000)  # about 5 partitions of a small file
 
 
-def _log(path, rows=900, bad=None):
-    """An invented pump log: speed, head and a power reading."""
+def _log(path, rows=900, bad=None, copies=1):
+    """An invented pump log: speed, head and a power reading (each row ``copies`` times)."""
     rng = np.random.default_rng(5)
-    X = rng.uniform(0, 1, (rows, 2))
+    X = np.repeat(rng.uniform(0, 1, (rows // copies, 2)), copies, axis=0)
     power = X[:, 0] ** 3 + 0.5 * X[:, 1]
     lines = ["speed,head,power"] + [f"{a!r},{b!r},{p!r}" for (a, b), p in
                                     zip(X.tolist(), power.tolist(), strict=True)]
@@ -42,9 +42,12 @@ def _log(path, rows=900, bad=None):
     return path
 
 
-def test_partition_passes_give_the_single_process_model(tmp_path, synchronous):
-    path = _log(tmp_path / "pump.csv")
-    job = TrainingJob(targets=("power",), params={"n_nodes": 40}, seed=7)
+@pytest.mark.parametrize("copies, params", [(1, {"n_nodes": 40}),
+                                            (3, {"n_nodes": 30, "n_neighbors": 9})])
+def test_partition_passes_give_the_single_process_model(tmp_path, synchronous, copies, params):
+    # with copies of every row the ridge's check rows (whole groups of copies) span partitions
+    path = _log(tmp_path / "pump.csv", copies=copies)
+    job = TrainingJob(targets=("power",), params=params, seed=7)
     single = train(read_table(path), job)
     clustered = distributed.train_on_cluster(path, job, "sync")
     a, b = single.network, clustered.network
@@ -54,6 +57,9 @@ def test_partition_passes_give_the_single_process_model(tmp_path, synchronous):
     held = [bundle.metadata["metrics"]["validation"]["rows"] for bundle in (single, clustered)]
     assert held[0] == held[1]
     assert clustered.metadata["diagnostics"] == single.metadata["diagnostics"]
+    checked = [bundle.metadata["ridge"]["check_rows"] for bundle in (single, clustered)]
+    assert checked[0] == checked[1] and checked[0] % copies == 0
+    assert clustered.metadata["layer_choice"]["neighbors"] == single.metadata["layer_choice"]["neighbors"]
 
 
 def test_a_bad_cell_read_on_the_cluster_is_one_line(tmp_path, synchronous, capsys):

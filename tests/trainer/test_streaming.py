@@ -14,11 +14,12 @@ from scipy.spatial.distance import cdist
 from nodecast.compiler.bundle import to_bytes
 from nodecast.compiler.cli import main
 from nodecast.compiler.csvio import read_table
+from nodecast.compiler.errors import NodecastError
 from nodecast.trainer.anchors import draw_anchors
 from nodecast.trainer.neighbours import NearestRows
 from nodecast.trainer.progress import Progress
 from nodecast.trainer.row_hash import held_out
-from nodecast.trainer.sources import CsvSource, ParquetSource
+from nodecast.trainer.sources import CsvSource, MemorySource, ParquetSource
 from nodecast.trainer.streaming import train_streaming
 from nodecast.trainer.training import TrainingJob, train
 
@@ -87,6 +88,43 @@ def test_cli_chunked_and_whole_reads_write_the_same_file(tmp_path, bench_csv):
               "--nodes", "30", "-o", str(out)] + extra)
         outputs.append(out.read_bytes())
     assert outputs[0] == outputs[1]
+
+
+def test_copies_of_rows_stay_on_one_side_of_the_ridge_check_in_any_chunking(tmp_path):
+    # every row twice: the default ridge's held-out check holds out whole pairs (a hash of the
+    # row's values), the same pairs whatever the chunks
+    X, rise, grade = (np.repeat(part, 2, axis=0) for part in _table(600, seed=2))
+    path = _write_csv(tmp_path / "twice.csv", X, rise, grade)
+    job = TrainingJob(targets=("rise",), features=("flow", "stage", "drift"),
+                      params={"n_nodes": 30}, seed=3)
+    reference = train(read_table(path), job)
+    record = reference.metadata["ridge"]
+    assert record["rule"] == "gcv+heldout+float32" and record["check_rows"] % 2 == 0
+    assert 0.1 * 1200 <= record["check_rows"] <= 0.3 * 1200
+    for size in (1, 150, 777):
+        assert to_bytes(train_streaming(CsvSource(path, size), job)) == to_bytes(reference), size
+
+
+def test_above_20000_rows_the_strided_trend_rows_are_gathered_from_the_chunks(tmp_path):
+    # the global trend of the local fits and the heavy-tail note read every s-th row (s = 3
+    # here); the streamed fit gathers those rows from chunks that do not align with s
+    X, rise, grade = _table(41_000, seed=3)
+    X[:, 2] = np.exp(3 * X[:, 2])  # heavy-tailed: a few rows set the range
+    path = _write_csv(tmp_path / "long.csv", X, rise, grade)
+    job = TrainingJob(targets=("rise",), features=("flow", "stage", "drift"), seed=5,
+                      params={"n_nodes": 20, "n_neighbors": 12, "slope_scale": 1.0})
+    table = read_table(path)
+    reference = train(table, job)
+    assert reference.metadata["heavy_tailed_features"] == ["drift"]
+    streamed = train_streaming(MemorySource(table, 4_999), job)
+    assert to_bytes(streamed) == to_bytes(reference)
+
+
+def test_categorical_inputs_are_refused_in_one_line_when_streamed(bench_csv):
+    job = TrainingJob(targets=("rise",), features=("flow", "stage", "drift"),
+                      categorical=("stage",), params={"n_nodes": 10})
+    with pytest.raises(NodecastError, match="--categorical is not available for streamed"):
+        train_streaming(CsvSource(bench_csv, CHUNK), job)
 
 
 def test_bad_cell_in_a_late_chunk_names_its_line_and_writes_nothing(tmp_path, capsys):
