@@ -19,7 +19,7 @@ from nodecast.trainer import layer_choice, ridge_choice, solvers
 from nodecast.trainer.generators import GENERATORS
 from nodecast.trainer.generators.slope_angle import DEFAULT_ANGLES
 from nodecast.trainer.generators.weight_sum import DEFAULT_SUMS
-from nodecast.trainer.hidden import PreactivationRange, block_bounds, design_blocks
+from nodecast.trainer.hidden import DesignMaker, PreactivationRange, block_bounds, design_blocks
 from nodecast.trainer.memory import check_fits_in_memory
 from nodecast.trainer.method_grid import valid_angles, valid_sums
 
@@ -42,28 +42,51 @@ def _fit_dask(estimator, X, y, classify: bool):
     return fit_dask(estimator, X, y, classify)
 
 
-def fold_designs(pieces, checked=None):
-    """(factor, check) from (U block, design [1, H] block, T block) triples in row order: the
-    solver's factor of all rows and, for ``checked`` rows (a
-    :class:`~nodecast.trainer.ridge_choice.CheckRows`, or None), the held-out check's data. The
-    rows outside the check set are folded first and the check rows after them, whatever the
-    ridge, so that giving the ridge "auto" chose reproduces the model bit for bit. The blocks may
-    come from memory, from chunks regrouped into the same blocks, or from one partition."""
+def fold_blocks(blocks, make_design, checked=None):
+    """(factor, check) from (U block, T block) pairs in row order: the solver's factor of the
+    designs [1, H] (``make_design``, a :class:`~nodecast.trainer.hidden.DesignMaker`) of all rows
+    and, for the ``checked`` rows (a :class:`~nodecast.trainer.ridge_choice.CheckRows`, or None),
+    the held-out check's data. The check rows are folded in after all the others, whatever the
+    ridge, so that giving the ridge "auto" chose reproduces the model bit for bit."""
+    rest, design, targets = fold_outside_check(blocks, make_design, checked)
+    if rest is None:
+        raise ValueError("no rows to fit outside the held-out check rows")
     if checked is None:
-        return solvers.accumulate_designs((D, T) for _, D, T in pieces), None
+        return rest, None
+    check = ridge_choice.HeldOut(rest, design, targets)
+    return solvers.accumulate_designs([(design, targets)], start=rest), check
+
+
+def fold_outside_check(blocks, make_design, checked=None):
+    """(factor of the rows outside the check set or None where there are none, the check rows'
+    designs, their targets) from (U block, T block) pairs in row order. Within a block the rows
+    outside the check set come first, in row order, so that they are a view of the design, not a
+    copy. The blocks may come from memory, from chunks regrouped into the same blocks, or from
+    one partition."""
     held, held_targets = [], []
 
-    def outside_check():
-        for U, D, T in pieces:
-            rows = checked.mask(U)
-            held.append(D[rows])
-            held_targets.append(T[rows])
-            yield D[~rows], T[~rows]
+    def designs():
+        for U, T in blocks:
+            rest = U.shape[0]
+            if checked is not None:
+                rows = checked.mask(U)
+                rest -= int(np.count_nonzero(rows))
+                if rest < U.shape[0]:
+                    order = np.concatenate([np.flatnonzero(~rows), np.flatnonzero(rows)])
+                    U, T = U[order], T[order]
+            D = make_design(U)
+            held.append(D[rest:].copy())
+            held_targets.append(T[rest:])
+            yield D[:rest], T[:rest]
 
-    rest = solvers.accumulate_designs(outside_check())
-    check = ridge_choice.HeldOut(rest, np.concatenate(held), np.concatenate(held_targets))
-    factor = solvers.accumulate_designs([(check.design, check.targets)], start=rest)
-    return factor, check
+    try:
+        factor = solvers.accumulate_designs(designs())
+    except ValueError:  # no rows outside the check set
+        factor = None
+    width = make_design.buffer.shape[1]
+    design = np.concatenate(held) if held else np.empty((0, width))
+    targets = np.concatenate(held_targets) if held_targets else None
+    return factor, design, targets
 
 
 def _is_count(value, minimum: int = 1) -> bool:
@@ -213,11 +236,11 @@ class _RandomNodeBase(BaseEstimator):
         """The output layer's factor over row blocks, each node's pre-activation range, and (for
         the ``checked`` rows, a :class:`~nodecast.trainer.ridge_choice.CheckRows`) the held-out
         check of the default ridge."""
-        bounds = block_bounds(U.shape[0], layer.weights.shape[0])
         ranges = PreactivationRange(layer.weights.shape[0])
-        blocks = design_blocks(U, layer.weights, layer.biases, activation, bounds, ranges)
-        pieces = ((U[start:stop], D, T[start:stop]) for (start, stop), D in zip(bounds, blocks, strict=True))
-        factor, check = fold_designs(pieces, checked)
+        make = DesignMaker(layer.weights, layer.biases, activation, ranges)
+        blocks = ((U[start:stop], T[start:stop])
+                  for start, stop in block_bounds(U.shape[0], layer.weights.shape[0]))
+        factor, check = fold_blocks(blocks, make, checked)
         return factor, ranges, check
 
     def _target_scaling(self, Y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

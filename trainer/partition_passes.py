@@ -13,7 +13,8 @@ import numpy as np
 
 from nodecast.trainer import solvers
 from nodecast.trainer.domain_stats import DomainStats
-from nodecast.trainer.hidden import PreactivationRange, block_bounds, design_blocks
+from nodecast.trainer.estimators import fold_outside_check
+from nodecast.trainer.hidden import DesignMaker, PreactivationRange, block_bounds
 from nodecast.trainer.metrics import MetricSums
 from nodecast.trainer.row_hash import held_out
 from nodecast.trainer.streamed_fit import StreamedFit
@@ -81,27 +82,12 @@ def factor(part, fit: StreamedFit, layer, which):
     X, Y = rows_of(part, *which)
     m = layer.weights.shape[0]
     ranges = PreactivationRange(m)
-    held, held_targets = [], []
-    width = (m + 1, fit.n_targets)
-
-    def outside_check():
-        for a, b in block_bounds(X.shape[0], m):
-            U = fit.inputs(X[a:b])
-            D = next(design_blocks(U, layer.weights, layer.biases, fit.activation,
-                                   [(0, U.shape[0])], ranges))
-            T = fit.targets(Y[a:b])
-            rows = fit.checked.mask(U) if fit.checked is not None else np.zeros(len(U), dtype=bool)
-            held.append(D[rows])
-            held_targets.append(T[rows])
-            yield D[~rows], T[~rows]
-
+    make = DesignMaker(layer.weights, layer.biases, fit.activation, ranges)
+    blocks = ((fit.inputs(X[a:b]), fit.targets(Y[a:b])) for a, b in block_bounds(X.shape[0], m))
     with solvers.single_blas_thread():
-        try:
-            rest = solvers.accumulate_designs(outside_check())
-        except ValueError:  # no rows outside the check set here
-            rest = None
-    design = np.concatenate(held) if held else np.empty((0, width[0]))
-    targets = np.concatenate(held_targets) if held_targets else np.empty((0, width[1]))
+        rest, design, targets = fold_outside_check(blocks, make, fit.checked)
+    if targets is None:
+        targets = np.empty((0, fit.n_targets))
     return rest, design, targets, ranges
 
 

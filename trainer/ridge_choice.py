@@ -140,15 +140,17 @@ def heldout_squared_errors(check: HeldOut) -> np.ndarray:
         left, s, right_t = scipy.linalg.svd(factor.R[1:, 1:], lapack_driver="gesdd",
                                             check_finite=False)
     rotated = left.T @ factor.qty[1:]  # (M, t)
-    # prediction = (H - 1 r12 / R11) beta + q1 / R11, beta = V diag(s / (s^2 + lambda)) g
+    # prediction = (H - 1 r12 / R11) beta + q1 / R11, beta = V diag(s / (s^2 + lambda)) g: the
+    # betas of all the grid's lambdas side by side, then one product with the check rows (n_check
+    # M t G numbers instead of n_check M^2 for a rotation of the rows, where t G < M)
     centred = check.design[:, 1:] - factor.R[0, 1:] / factor.R[0, 0]
-    projected = centred @ right_t.T  # (n_check, M)
     offset = factor.qty[0] / factor.R[0, 0]
-    errors = np.empty((GRID.size, check.design.shape[0]))
-    for i, ridge in enumerate(GRID):
-        predicted = projected @ ((s / (s**2 + ridge))[:, None] * rotated) + offset
-        errors[i] = np.sum((predicted - check.targets) ** 2, axis=1)
-    return errors
+    t = rotated.shape[1]
+    betas = np.concatenate([right_t.T @ ((s / (s**2 + ridge))[:, None] * rotated) for ridge in GRID],
+                           axis=1)  # (M, G t)
+    predicted = (centred @ betas).reshape(-1, GRID.size, t) + offset
+    errors = np.sum((predicted - check.targets[:, None, :]) ** 2, axis=2)
+    return np.ascontiguousarray(errors.T)
 
 
 def _within_noise(errors: np.ndarray, best: int) -> np.ndarray:

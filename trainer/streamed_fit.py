@@ -29,7 +29,7 @@ from sklearn.utils import check_random_state
 
 from nodecast.compiler.activations import get_activation
 from nodecast.trainer import layer_choice, ridge_choice
-from nodecast.trainer.estimators import _normaliser, fold_designs
+from nodecast.trainer.estimators import _normaliser, fold_blocks
 from nodecast.trainer.generators import GENERATORS
 from nodecast.trainer.generators.data_driven import (
     default_neighbors,
@@ -38,7 +38,7 @@ from nodecast.trainer.generators.data_driven import (
     layer_from_neighbourhoods,
     plan_nodes,
 )
-from nodecast.trainer.hidden import PreactivationRange, block_bounds, design_blocks
+from nodecast.trainer.hidden import DesignMaker, PreactivationRange, block_bounds
 from nodecast.trainer.neighbours import NearestRows
 from nodecast.trainer.solvers import single_blas_thread
 
@@ -198,16 +198,10 @@ class StreamedFit:
         """(factor, ranges, check data) of ``layer`` over (X, Y) pieces of rows in order,
         regrouped into the row blocks ``bounds``."""
         ranges = PreactivationRange(layer.weights.shape[0])
-
-        def triples():
-            for X, Y in reblock(pieces, bounds):
-                U = self.inputs(X)
-                design = next(design_blocks(U, layer.weights, layer.biases, self.activation,
-                                            [(0, U.shape[0])], ranges))
-                yield U, design, self.targets(Y)
-
+        make = DesignMaker(layer.weights, layer.biases, self.activation, ranges)
+        blocks = ((self.inputs(X), self.targets(Y)) for X, Y in reblock(pieces, bounds))
         with single_blas_thread():
-            factor, check = fold_designs(triples(), self.checked)
+            factor, check = fold_blocks(blocks, make, self.checked)
         return factor, ranges, check
 
     def fit_output(self, factor_pass: Callable) -> None:
