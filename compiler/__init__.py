@@ -24,6 +24,9 @@ def emit(bundle, to: str, path=None, overwrite: bool = False, max_bytes: int | N
          **options):
     """Render ``bundle`` for target ``to`` ("onnx", "c", "python"); write it to ``path`` if given.
 
+    ``options`` are the target's (:data:`nodecast.compiler.targets.TARGETS`): an unknown or
+    misspelt option raises :class:`NodecastError`; defaults follow the precision.
+
     An artifact larger in total than ``max_bytes`` (default
     :data:`~nodecast.compiler.files.MAX_ARTIFACT_BYTES`) is refused before anything is written.
     Returns the :class:`~nodecast.compiler.backends.Artifact` (file names to bytes, and a summary).
@@ -36,10 +39,11 @@ def emit(bundle, to: str, path=None, overwrite: bool = False, max_bytes: int | N
         write_files,
     )
     from nodecast.compiler.limits import check_artifact_estimate, check_memory, estimate_bytes
+    from nodecast.compiler.targets import target_spec
 
     net = bundle.network
-    default = "float64" if to == "python" else "float32"
-    check_artifact_estimate(net, to, options.get("precision") or default,
+    options = target_spec(to).resolve(options)
+    check_artifact_estimate(net, to, options["precision"],
                             MAX_ARTIFACT_BYTES if max_bytes is None else max_bytes)
     check_memory(estimate_bytes(net), f"the export-error estimate of {net.n_nodes} nodes",
                  "emit on a machine with more memory, or use fewer nodes")

@@ -30,9 +30,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from nodecast.compiler.domain_points import domain_probes
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import Network
-from nodecast.compiler.numerics import domain_probes
 
 WORD_BITS = {"q15": 16, "q31": 32}
 FIXED_PRECISIONS = tuple(WORD_BITS)

@@ -1,5 +1,5 @@
 """The export-error estimate of a fixed-point (q15, q31) artifact, whose formats come from
-:func:`nodecast.compiler.fixedpoint.make_plan`. :func:`nodecast.compiler.numerics.estimate` sends
+:func:`nodecast.compiler.fixedpoint.make_plan`. :func:`nodecast.compiler.typical_error.estimate` sends
 "q15" and "q31" here.
 """
 
@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from nodecast.compiler.domain_points import domain_probes
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.fixedpoint import (
     INTERPOLATION_ROUNDING,
@@ -17,7 +18,7 @@ from nodecast.compiler.fixedpoint import (
     table_tanh,
 )
 from nodecast.compiler.ir import Network
-from nodecast.compiler.numerics import COVERAGE, ErrorEstimate, domain_probes
+from nodecast.compiler.typical_error.base import COVERAGE, ErrorEstimate
 
 _TANH_CURVATURE = 0.7698  # max |tanh''| = 4 / (3 sqrt 3)
 # The table's error summed over the nodes is heavier-tailed than a normal error: on four test models
@@ -34,10 +35,11 @@ def estimate(net: Network, precision: str, X: np.ndarray | None = None,
     order); the input's rounding (half a step of its Q format, plus the
     normalisation's) through the model's gradient; the roundings of each node's accumulator and
     interpolation as independent errors (root sum of squares times the coverage factor of
-    :mod:`nodecast.compiler.numerics`); second-order terms; the output's rounding and saturation.
+    :mod:`nodecast.compiler.typical_error.base`); second-order terms; the output's rounding and
+    saturation.
     ``activation_error`` beyond the error of the table of ``table_size`` (an artifact with a coarser
     table) adds linearly as sum |weight| times the excess. The result is the maximum over the probes
-    (default :func:`nodecast.compiler.numerics.domain_probes`), clipped into the domain, since the
+    (default :func:`nodecast.compiler.domain_points.domain_probes`), clipped into the domain, since the
     artifact clamps or rejects anything outside it. ``worst_case`` is the same sum with every term
     taken in absolute value and the table's error at its maximum. The table's own error, also known
     exactly at each probe, varies with x like a random function (every node sits at its own place

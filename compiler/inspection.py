@@ -6,7 +6,7 @@ import json
 
 import numpy as np
 
-from nodecast.compiler import numerics
+from nodecast.compiler import typical_error
 from nodecast.compiler.activations import get_activation
 from nodecast.compiler.reference import hidden_layer
 
@@ -102,7 +102,7 @@ def describe_bundle(bundle, precision: str | None = None) -> dict:
         "metadata": bundle.metadata,
     }
     if precision:
-        description["estimate"] = numerics.estimate(net, precision).as_dict()
+        description["estimate"] = typical_error.estimate(net, precision).as_dict()
         description.update(_certified(bundle, precision))
     return description
 
@@ -275,8 +275,7 @@ def target_cost(bundle, precision: str) -> dict:
     default options (fixed point clamps out-of-domain inputs), as ``emit --to c`` reports them."""
     from nodecast.compiler.backends import render
 
-    policy = "clamp" if precision in ("q15", "q31") else "pass"
-    artifact = render(bundle, "c", precision=precision, out_of_domain=policy, footprint=True,
+    artifact = render(bundle, "c", precision=precision, footprint=True,
                       instruction_count=True)
     summary = artifact.summary
     return {"precision": precision, "activation_impl": summary["activation_impl"],

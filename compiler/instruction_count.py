@@ -84,7 +84,7 @@ def count_instructions(files: dict[str, bytes], info: dict, X: np.ndarray, core:
 
     ``info`` holds ``prefix``, ``precision`` and ``n_inputs`` (as the C runner's ``describe``).
     """
-    from nodecast.compiler.verify.runners.c import harness_source
+    from nodecast.compiler.verify.runners.c_harness import harness_source
 
     build, machine = COUNT_CORES[core]
     compiler, qemu = toolchain.find(toolchain.ARM_CC), toolchain.find(QEMU)

@@ -13,7 +13,7 @@ import os
 from nodecast.compiler.errors import NodecastError
 
 _FLOAT = 8
-_ESTIMATE_ROWS = 2048 + 1024  # numerics' domain probes and corners, evaluated at once
+_ESTIMATE_ROWS = 2048 + 1024  # the typical estimate's domain probes and corners, evaluated at once
 _ESTIMATE_BLOCK = 512 * 10  # a block of 512 rows and about ten temporaries of its size
 BYTES_PER_PARAMETER = {("onnx", "float32"): 3.8, ("onnx", "float64"): 7.4, ("c", "q15"): 9.3,
                        ("c", "q31"): 9.3, ("c", "float32"): 14.3, ("c", "float64"): 21.2,

@@ -46,8 +46,7 @@ def shape_cost(n: int, m: int, t: int, precision: str, core: str) -> dict:
     if core not in COUNT_CORES:
         raise NodecastError(f"the target core is one of {', '.join(COUNT_CORES)}, not {core!r}")
     net = shape_network(n, m, t)
-    policy = "clamp" if precision in ("q15", "q31") else "pass"
-    artifact = render(Bundle(net), "c", precision=precision, out_of_domain=policy, prefix="model")
+    artifact = render(Bundle(net), "c", precision=precision, prefix="model")
     sizes = footprint(artifact.files, "model")[COUNT_CORES[core][0]]
     if "skipped" in sizes:
         raise NodecastError(f"flash and cycle budgets need the Cortex-M toolchain: "

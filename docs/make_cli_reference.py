@@ -8,7 +8,7 @@ from pathlib import Path
 
 import click
 
-from nodecast.compiler.cli import cli
+from nodecast.cli import cli
 
 TARGET = Path(__file__).with_name("cli-reference.md")
 

@@ -51,3 +51,13 @@ def classifier_bundle():
 @pytest.fixture(scope="session")
 def friedman_bundle_factory():
     return _friedman_bundle
+
+
+@pytest.fixture(scope="session")
+def demo_bundle():
+    """The built-in demo's model (4 inputs, 200 nodes), as committed in tests/data at 8ff5fd1."""
+    from pathlib import Path
+
+    from nodecast.compiler import load
+
+    return load(Path(__file__).parent / "data" / "demo_fan.ncast")

@@ -10,27 +10,14 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from nodecast.compiler.cli import main, parse_domain
-from nodecast.compiler.demo import DOMAIN, FEATURES
+from nodecast.cli import main
+from nodecast.cli.demo_scenario import DOMAIN, FEATURES
+from nodecast.cli.parsing import parse_domain
+from tests.helpers import run_cli, write_csv
 
 ROOT = Path(__file__).resolve().parents[1]
 
 
-def run_cli(capsys, *args) -> tuple[int, str, str]:
-    """(exit status, stdout, stderr) of the CLI in this process."""
-    try:
-        main([str(arg) for arg in args])
-        code = 0
-    except SystemExit as exc:
-        code = exc.code
-    captured = capsys.readouterr()
-    return code, captured.out, captured.err
-
-
-def _csv(path: Path, header, rows) -> Path:
-    path.write_text(",".join(header) + "\n" + "".join(",".join(map(repr, r)) + "\n" for r in rows),
-                    encoding="utf-8")
-    return path
 
 
 @pytest.fixture(scope="module")
@@ -39,7 +26,7 @@ def small(tmp_path_factory):
     folder = tmp_path_factory.mktemp("small")
     rng = np.random.default_rng(3)
     X = rng.random((60, 2))
-    data = _csv(folder / "d.csv", ["a", "b", "y"],
+    data = write_csv(folder / "d.csv", ["a", "b", "y"],
                 [[float(a), float(b), float(np.sin(3 * a) + b)] for a, b in X])
     main_args = ["train", str(data), "--target", "y", "--nodes", "20", "-o", str(folder / "m.ncz")]
     try:
@@ -104,7 +91,7 @@ def test_usage_errors_are_one_line_with_exit_2(capsys, args, words):
 
 
 def test_select_refuses_existing_outputs_before_searching(capsys, small, monkeypatch):
-    import nodecast.trainer.table_selection as table_selection
+    import nodecast.trainer.selection_run as table_selection
 
     def must_not_run(*args, **kwargs):
         raise AssertionError("the search ran although an output exists")
@@ -165,7 +152,7 @@ def test_classification_with_two_rows_per_class_still_trains(capsys, tmp_path):
     rng = np.random.default_rng(0)
     X = rng.random((40, 2))
     rows = [[float(a), float(b), float(i % 20)] for i, (a, b) in enumerate(X)]  # 20 classes x 2
-    data = _csv(tmp_path / "c.csv", ["a", "b", "label"], rows)
+    data = write_csv(tmp_path / "c.csv", ["a", "b", "label"], rows)
     status, _, err = run_cli(capsys, "train", data, "--target", "label", "--task", "classification",
                              "--nodes", "10", "-o", tmp_path / "c.ncz")
     assert status == 0, err
@@ -202,7 +189,7 @@ def test_inspect_shows_what_was_chosen_and_the_training_datas_sha256(capsys, tmp
 
     rng = np.random.default_rng(2)
     X = rng.random((80, 2))
-    data = _csv(tmp_path / "d.csv", ["a", "b", "y"], [[float(a), float(b), float(a - b)] for a, b in X])
+    data = write_csv(tmp_path / "d.csv", ["a", "b", "y"], [[float(a), float(b), float(a - b)] for a, b in X])
     status, _, err = run_cli(capsys, "train", data, "--target", "y", "--nodes", "12", "--seed", "7",
                              "--slope-scale", "0.5", "--ridge", "1e-3", "--units", "a=m",
                              "-o", tmp_path / "m.ncz")

@@ -284,7 +284,7 @@ def test_hostile_csv_header_and_labels_survive_train_emit_verify(tmp_path):
     (tmp_path / "d.csv").write_text(buffer.getvalue(), encoding="utf-8")
 
     def nodecast(*args):
-        return subprocess.run([sys.executable, "-m", "nodecast.compiler.cli", *map(str, args)],
+        return subprocess.run([sys.executable, "-m", "nodecast.cli", *map(str, args)],
                               cwd=tmp_path, capture_output=True, text=True, timeout=300)
 
     trained = nodecast("train", "d.csv", "--target", "kind */", "--task", "classification",

@@ -13,40 +13,27 @@ import time
 import numpy as np
 import pytest
 
-from nodecast.compiler.cli import main
-from nodecast.compiler.progress import Progress, run_interruptible
-
-
-def run_cli(capsys, *args) -> tuple[int, str]:
-    try:
-        main([str(arg) for arg in args])
-        code = 0
-    except SystemExit as exc:
-        code = exc.code
-    return code, capsys.readouterr().err
-
-
-def _csv(path, rows):
-    path.write_text("a,b,y\n" + "".join(f"{a!r},{b!r},{y!r}\n" for a, b, y in rows), encoding="utf-8")
-    return path
+from nodecast.cli.progress import Progress, run_interruptible
+from tests.helpers import run_cli, write_csv
 
 
 @pytest.fixture
 def rows40(tmp_path):
     rng = np.random.default_rng(5)
     X = rng.random((40, 2))
-    return _csv(tmp_path / "d.csv", [(float(a), float(b), float(a * b + b)) for a, b in X])
+    return write_csv(tmp_path / "d.csv", ["a", "b", "y"],
+                     [(float(a), float(b), float(a * b + b)) for a, b in X])
 
 
 def test_more_nodes_than_rows_warns_before_training(capsys, rows40, tmp_path):
-    code, err = run_cli(capsys, "train", rows40, "--target", "y", "--nodes", "80",
+    code, _, err = run_cli(capsys, "train", rows40, "--target", "y", "--nodes", "80",
                         "-o", tmp_path / "m.ncz")
     assert code == 0
     lines = err.strip().splitlines()
     assert lines[0].startswith("nodecast: warning: 80 nodes for 40 rows") and "select" in lines[0]
     assert lines[-1].startswith("wrote ")  # the warning comes first, the result last
     # the default M is ours to choose: no warning for it, even on 40 rows
-    code, err = run_cli(capsys, "train", rows40, "--target", "y", "-o", tmp_path / "d.ncz")
+    code, _, err = run_cli(capsys, "train", rows40, "--target", "y", "-o", tmp_path / "d.ncz")
     assert code == 0 and "warning" not in err
 
 
@@ -54,11 +41,11 @@ def test_rows_outside_a_declared_domain_are_counted(capsys, rows40, tmp_path):
     a = np.loadtxt(rows40, delimiter=",", skiprows=1)[:, 0]
     expected = int(np.sum((a < 0.2) | (a > 0.7)))
     assert expected > 0
-    code, err = run_cli(capsys, "train", rows40, "--target", "y", "--domain", "a=0.2:0.7",
+    code, _, err = run_cli(capsys, "train", rows40, "--target", "y", "--domain", "a=0.2:0.7",
                         "-o", tmp_path / "m.ncz")
     assert code == 0
     assert f"warning: {expected} of 40 training rows lie outside the declared --domain" in err
-    code, err = run_cli(capsys, "train", rows40, "--target", "y", "--domain", "a=0:1",
+    code, _, err = run_cli(capsys, "train", rows40, "--target", "y", "--domain", "a=0:1",
                         "-o", tmp_path / "all.ncz")
     assert code == 0 and "warning" not in err
 
@@ -85,7 +72,7 @@ def test_progress_is_printed_for_a_step_expected_to_be_long():
 
 
 def test_select_reports_units_then_the_final_refit():
-    from nodecast.compiler.cli_select import UnitClock
+    from nodecast.cli.select import UnitClock
 
     class Recorder:
         def __init__(self):
@@ -132,14 +119,14 @@ def test_run_interruptible_returns_results_and_raises_errors_of_the_child():
 
 @pytest.mark.skipif(not hasattr(os, "fork"), reason="prompt Ctrl-C needs fork")
 def test_ctrl_c_stops_a_long_fit_at_once_with_status_130(tmp_path):
-    from nodecast.compiler.demo import write_data
+    from nodecast.cli.demo_scenario import write_data
 
     write_data(tmp_path)
     lines = (tmp_path / "readings.csv").read_text().splitlines()[:601]
     (tmp_path / "r.csv").write_text("\n".join(lines) + "\n")
     out = tmp_path / "big.ncz"
     # 3000 nodes on 600 rows takes minutes; the progress line says the fit has started
-    child = subprocess.Popen([sys.executable, "-m", "nodecast.compiler.cli", "train",
+    child = subprocess.Popen([sys.executable, "-m", "nodecast.cli", "train",
                               str(tmp_path / "r.csv"), "--target", "heatsink_temp", "--nodes",
                               "3000", "-o", str(out)], stderr=subprocess.PIPE, text=True)
     seen = []

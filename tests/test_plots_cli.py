@@ -6,20 +6,12 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from nodecast.compiler.cli import main
+from nodecast.cli import main
+from tests.helpers import run_cli
 
 pytest.importorskip("matplotlib")
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), the file signature
 
-
-def run_cli(capsys, *args) -> tuple[int, str, str]:
-    try:
-        main([str(arg) for arg in args])
-        code = 0
-    except SystemExit as exc:
-        code = exc.code
-    captured = capsys.readouterr()
-    return code, captured.out, captured.err
 
 
 @pytest.fixture(scope="module")
@@ -58,7 +50,8 @@ def test_inspect_plot_draws_both_pictures_and_keeps_existing_files(capsys, fan, 
 
 
 def test_predicted_vs_actual_title_names_the_target_and_its_unit(fan, monkeypatch):
-    from nodecast.compiler import load, plots
+    from nodecast.cli import plots
+    from nodecast.compiler import load
 
     titles = []
 
@@ -81,12 +74,12 @@ def test_cv_plot_shows_the_actual_k_units_and_an_edge_hint(capsys, fan, tmp_path
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
+    from nodecast.cli.selection_plot import search_figure
     from nodecast.compiler.csvio import read_table
     from nodecast.trainer.grid import make_grid
     from nodecast.trainer.method_grid import layer_grid
     from nodecast.trainer.selection import SearchSettings
-    from nodecast.trainer.selection_plot import search_figure
-    from nodecast.trainer.table_selection import run_selection
+    from nodecast.trainer.selection_run import run_selection
     from nodecast.trainer.training import TrainingJob
 
     job = TrainingJob(targets=("heatsink_temp",), units={"heatsink_temp": "degC"})

@@ -16,8 +16,8 @@ import traceback
 import numpy as np
 import pytest
 
+from nodecast.cli import main
 from nodecast.compiler.bundle import Bundle, to_bytes
-from nodecast.compiler.cli import main
 from nodecast.compiler.ir import Network
 
 HAS_GCC = shutil.which("gcc") is not None
@@ -203,7 +203,7 @@ def test_printed_text_never_carries_terminal_controls(tmp_path):
     """Through a real pipe (not a terminal): an OSC sequence in a unit retitled the terminal."""
     path = tmp_path / "crafted.ncz"
     path.write_bytes(crafted("escape sequences in names"))
-    done = subprocess.run([sys.executable, "-m", "nodecast.compiler.cli", "inspect", str(path)],
+    done = subprocess.run([sys.executable, "-m", "nodecast.cli", "inspect", str(path)],
                           capture_output=True, timeout=120, check=True)
     assert b"\x1b" not in done.stdout and b"\x07" not in done.stdout
     # shown, escaped (by the terminal filter or by inspect's own quoting), never raw

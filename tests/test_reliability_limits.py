@@ -11,9 +11,9 @@ import pytest
 
 from nodecast.compiler import emit, files
 from nodecast.compiler.bundle import Bundle, save
-from nodecast.compiler.cli import main
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import Network
+from tests.helpers import run_cli
 
 
 def _bundle(n_nodes=400, n_features=8) -> Bundle:
@@ -26,12 +26,6 @@ def _bundle(n_nodes=400, n_features=8) -> Bundle:
         output_scale=[1.0], domain_low=np.zeros(n), domain_high=np.ones(n),
         feature_names=tuple(f"x{i}" for i in range(n)), target_names=("y",)), {})
 
-
-def run_cli(args, capsys) -> tuple[int, str]:
-    with pytest.raises(SystemExit) as info:
-        main([str(arg) for arg in args])
-        raise SystemExit(0)
-    return info.value.code, capsys.readouterr().err
 
 
 KINDS = ["onnx", "python"] + (["c"] if shutil.which("gcc") else [])
@@ -57,14 +51,14 @@ def test_default_limit_applies_without_the_option(tmp_path, monkeypatch, capsys)
     path = tmp_path / "m.ncz"
     save(_bundle(), path)
     monkeypatch.setattr(files, "MAX_ARTIFACT_BYTES", 10_000)
-    code, err = run_cli(["emit", path, "--to", "onnx", "-o", tmp_path / "m.onnx"], capsys)
+    code, _, err = run_cli(capsys, *["emit", path, "--to", "onnx", "-o", tmp_path / "m.onnx"])
     assert code == 2 and "over the limit 10K" in err and "pass --max-artifact-size" in err
     assert files.MAX_ARTIFACT_BYTES != 64 * 2**20  # patched; the shipped default is 64 MiB:
     monkeypatch.undo()
     assert files.MAX_ARTIFACT_BYTES == 64 * 2**20
     assert not (tmp_path / "m.onnx").exists()
-    code, err = run_cli(["emit", path, "--to", "onnx", "-o", tmp_path / "m.onnx",
-                         "--max-artifact-size", "1M"], capsys)
+    code, _, err = run_cli(capsys, *["emit", path, "--to", "onnx", "-o", tmp_path / "m.onnx",
+                         "--max-artifact-size", "1M"])
     assert code == 0, err
 
 
@@ -78,8 +72,8 @@ def test_sizes_are_read_in_binary_units(text, size):
 def test_bad_sizes_are_refused_through_the_cli(text, tmp_path, capsys):
     path = tmp_path / "m.ncz"
     save(_bundle(n_nodes=5), path)
-    code, err = run_cli(["emit", path, "--to", "onnx", "-o", tmp_path / "m.onnx",
-                         "--max-artifact-size", text], capsys)
+    code, _, err = run_cli(capsys, *["emit", path, "--to", "onnx", "-o", tmp_path / "m.onnx",
+                         "--max-artifact-size", text])
     assert code == 2 and "--max-artifact-size takes a size" in err
 
 
@@ -97,7 +91,7 @@ def test_training_refuses_a_model_that_cannot_fit_in_memory_with_an_estimate(tmp
     rows = "\n".join(",".join(map(repr, map(float, row))) for row in rng.random((200, 4)))
     (tmp_path / "d.csv").write_text("a,b,c,y\n" + rows + "\n")
     # 100,000 nodes: the M x M factor alone is 100000^2 x 8 bytes = 80 GB (74.5 GiB)
-    result = subprocess.run([sys.executable, "-m", "nodecast.compiler.cli", "train", "d.csv",
+    result = subprocess.run([sys.executable, "-m", "nodecast.cli", "train", "d.csv",
                              "--target", "y", "--nodes", "100000", "--method", "interval",
                              "-o", "m.ncz"], cwd=tmp_path,
                             capture_output=True, text=True, timeout=300,

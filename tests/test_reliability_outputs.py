@@ -16,8 +16,8 @@ import pytest
 
 from nodecast.compiler import files
 from nodecast.compiler.bundle import Bundle, save
-from nodecast.compiler.cli import main
 from nodecast.compiler.ir import Network
+from tests.helpers import run_cli
 
 HAS_GCC = shutil.which("gcc") is not None
 
@@ -31,13 +31,6 @@ def network(seed=0, n=2, m=4) -> Network:
                    domain_high=np.ones(n), feature_names=tuple(f"x{i}" for i in range(n)),
                    target_names=("y",))
 
-
-def run_cli(args, capsys) -> tuple[int, str]:
-    with pytest.raises(SystemExit) as info:
-        main([str(arg) for arg in args])
-        raise SystemExit(0)
-    err = capsys.readouterr().err
-    return info.value.code, err
 
 
 def one_line_refusal(code, err) -> bool:
@@ -55,44 +48,44 @@ def work(tmp_path):
 
 def test_verify_report_may_not_replace_the_bundle_or_an_existing_file(work, capsys):
     bundle = (work / "fan.ncz").read_bytes()
-    code, _ = run_cli(["emit", work / "fan.ncz", "--to", "python", "-o", work / "p.py"], capsys)
+    code, _, _ = run_cli(capsys, *["emit", work / "fan.ncz", "--to", "python", "-o", work / "p.py"])
     assert code == 0
-    code, err = run_cli(["verify", work / "fan.ncz", work / "p.py", "--probes", "16",
-                         "--report", work / "fan.ncz"], capsys)
+    code, _, err = run_cli(capsys, *["verify", work / "fan.ncz", work / "p.py", "--probes", "16",
+                         "--report", work / "fan.ncz"])
     assert one_line_refusal(code, err) and "same file as MODEL" in err
     assert (work / "fan.ncz").read_bytes() == bundle
     (work / "old.json").write_text("keep")
-    code, err = run_cli(["verify", work / "fan.ncz", work / "p.py", "--probes", "16",
-                         "--junit", work / "old.json"], capsys)
+    code, _, err = run_cli(capsys, *["verify", work / "fan.ncz", work / "p.py", "--probes", "16",
+                         "--junit", work / "old.json"])
     assert one_line_refusal(code, err) and "--overwrite" in err
     assert (work / "old.json").read_text() == "keep"
-    code, _ = run_cli(["verify", work / "fan.ncz", work / "p.py", "--probes", "16",
-                       "--junit", work / "old.json", "--overwrite"], capsys)
+    code, _, _ = run_cli(capsys, *["verify", work / "fan.ncz", work / "p.py", "--probes", "16",
+                       "--junit", work / "old.json", "--overwrite"])
     assert code == 0 and (work / "old.json").read_text().startswith("<?xml")
 
 
 def test_score_junit_may_not_replace_the_data(work, capsys):
     data = (work / "readings.csv").read_bytes()
-    code, err = run_cli(["score", work / "fan.ncz", work / "readings.csv", "--junit",
-                         work / "readings.csv"], capsys)
+    code, _, err = run_cli(capsys, *["score", work / "fan.ncz", work / "readings.csv", "--junit",
+                         work / "readings.csv"])
     assert one_line_refusal(code, err) and "same file as DATA" in err
     assert (work / "readings.csv").read_bytes() == data
-    code, err = run_cli(["score", work / "fan.ncz", work / "readings.csv", "--report",
-                         work / "r.json", "--junit", work / "r.json"], capsys)
+    code, _, err = run_cli(capsys, *["score", work / "fan.ncz", work / "readings.csv", "--report",
+                         work / "r.json", "--junit", work / "r.json"])
     assert one_line_refusal(code, err) and "same file as --report" in err
     assert not (work / "r.json").exists()
 
 
 def test_select_refuses_one_file_for_two_outputs_before_the_search(work, capsys, monkeypatch):
-    from nodecast.trainer import table_selection
+    from nodecast.trainer import selection_run
 
-    monkeypatch.setattr(table_selection, "run_selection", lambda *a, **k: pytest.fail("searched"))
-    code, err = run_cli(["select", work / "readings.csv", "--target", "y", "-o", work / "s.ncz",
-                         "--report", work / "s.ncz"], capsys)
+    monkeypatch.setattr(selection_run, "run_selection", lambda *a, **k: pytest.fail("searched"))
+    code, _, err = run_cli(capsys, *["select", work / "readings.csv", "--target", "y", "-o", work / "s.ncz",
+                         "--report", work / "s.ncz"])
     assert one_line_refusal(code, err) and "same file as -o" in err
     (work / "cv.json").write_text("keep")
-    code, err = run_cli(["select", work / "readings.csv", "--target", "y", "-o", work / "s.ncz",
-                         "--report", work / "cv.json"], capsys)
+    code, _, err = run_cli(capsys, *["select", work / "readings.csv", "--target", "y", "-o", work / "s.ncz",
+                         "--report", work / "cv.json"])
     assert one_line_refusal(code, err) and "cv.json already exists" in err
     assert (work / "cv.json").read_text() == "keep" and not (work / "s.ncz").exists()
 
@@ -101,21 +94,21 @@ def test_train_checks_the_output_before_training(work, capsys, monkeypatch):
     from nodecast.trainer import training
 
     monkeypatch.setattr(training, "train", lambda *a, **k: pytest.fail("trained"))
-    code, err = run_cli(["train", work / "readings.csv", "--target", "y", "-o",
-                         work / "missing" / "x.ncz"], capsys)
+    code, _, err = run_cli(capsys, *["train", work / "readings.csv", "--target", "y", "-o",
+                         work / "missing" / "x.ncz"])
     assert one_line_refusal(code, err) and "does not exist" in err
-    code, err = run_cli(["train", work / "readings.csv", "--target", "y", "-o",
-                         work / ("n" * 300 + ".ncz")], capsys)
+    code, _, err = run_cli(capsys, *["train", work / "readings.csv", "--target", "y", "-o",
+                         work / ("n" * 300 + ".ncz")])
     assert one_line_refusal(code, err) and "the file system allows 255" in err
-    code, err = run_cli(["train", work / "readings.csv", "--target", "y", "-o",
-                         work / "readings.csv", "--overwrite"], capsys)
+    code, _, err = run_cli(capsys, *["train", work / "readings.csv", "--target", "y", "-o",
+                         work / "readings.csv", "--overwrite"])
     assert one_line_refusal(code, err) and "same file as DATA" in err
 
 
 def test_a_long_output_name_within_the_limit_is_written(work, capsys):
     name = "n" * 250 + ".ncz"  # 254 bytes: fits; the temporary name must fit as well
-    code, err = run_cli(["train", work / "readings.csv", "--target", "y", "--nodes", "5",
-                         "-o", work / name], capsys)
+    code, _, err = run_cli(capsys, *["train", work / "readings.csv", "--target", "y", "--nodes", "5",
+                         "-o", work / name])
     assert code == 0, err
     assert (work / name).stat().st_size > 0
     assert [p.name for p in work.iterdir() if p.name.endswith(".part")] == []
@@ -125,7 +118,7 @@ def test_a_long_output_name_within_the_limit_is_written(work, capsys):
 def test_dangling_symlink_at_the_output_is_refused(work, capsys, overwrite):
     link = work / "out.onnx"
     link.symlink_to(work / "nowhere" / "target.onnx")
-    code, err = run_cli(["emit", work / "fan.ncz", "--to", "onnx", "-o", link, *overwrite], capsys)
+    code, _, err = run_cli(capsys, *["emit", work / "fan.ncz", "--to", "onnx", "-o", link, *overwrite])
     assert one_line_refusal(code, err) and "symbolic link to a missing file" in err
     assert link.is_symlink() and not (work / "nowhere").exists()
 
@@ -133,10 +126,10 @@ def test_dangling_symlink_at_the_output_is_refused(work, capsys, overwrite):
 def test_symlink_to_a_file_is_written_through_with_overwrite(work, capsys):
     (work / "real.onnx").write_bytes(b"old")
     (work / "link.onnx").symlink_to(work / "real.onnx")
-    code, err = run_cli(["emit", work / "fan.ncz", "--to", "onnx", "-o", work / "link.onnx"], capsys)
+    code, _, err = run_cli(capsys, *["emit", work / "fan.ncz", "--to", "onnx", "-o", work / "link.onnx"])
     assert one_line_refusal(code, err) and (work / "real.onnx").read_bytes() == b"old"
-    code, _ = run_cli(["emit", work / "fan.ncz", "--to", "onnx", "-o", work / "link.onnx",
-                       "--overwrite"], capsys)
+    code, _, _ = run_cli(capsys, *["emit", work / "fan.ncz", "--to", "onnx", "-o", work / "link.onnx",
+                       "--overwrite"])
     assert code == 0 and (work / "link.onnx").is_symlink()
     assert (work / "real.onnx").read_bytes().startswith(b"\x08")
 
@@ -144,8 +137,8 @@ def test_symlink_to_a_file_is_written_through_with_overwrite(work, capsys):
 def test_fifo_at_the_output_is_never_replaced(work, capsys):
     fifo = work / "pipe.csv"
     os.mkfifo(fifo)
-    code, err = run_cli(["predict", work / "fan.ncz", work / "readings.csv", "-o", fifo,
-                         "--overwrite"], capsys)
+    code, _, err = run_cli(capsys, *["predict", work / "fan.ncz", work / "readings.csv", "-o", fifo,
+                         "--overwrite"])
     assert one_line_refusal(code, err) and "is a FIFO" in err
     assert fifo.is_fifo()
 
@@ -160,8 +153,8 @@ def test_character_device_is_refused_even_with_overwrite(work, capsys):
         os.mknod(device, stat.S_IFCHR | 0o666, os.makedev(1, 3))
     except (PermissionError, OSError):
         pytest.skip("cannot make a device node here (needs root)")
-    code, err = run_cli(["predict", work / "fan.ncz", work / "readings.csv", "-o", device,
-                         "--overwrite"], capsys)
+    code, _, err = run_cli(capsys, *["predict", work / "fan.ncz", work / "readings.csv", "-o", device,
+                         "--overwrite"])
     assert one_line_refusal(code, err) and "is a device" in err
     assert stat.S_ISCHR(device.lstat().st_mode)
 
@@ -245,8 +238,8 @@ def test_concurrent_c_emits_through_the_cli(work):
     save(Bundle(network(seed=5), {"seed": 5}), work / "other.ncz")
     for round_ in range(3):
         out = work / f"c{round_}"
-        procs = [subprocess.Popen([sys.executable, "-m", "nodecast.compiler.cli", "emit",
-                                   str(work / name), "--to", "c", "-o", str(out)],
+        procs = [subprocess.Popen([sys.executable, "-m", "nodecast.cli", "emit",
+                                   str(work / name), "--to", "c", "--prefix", "model", "-o", str(out)],
                                   stderr=subprocess.PIPE, text=True)
                  for name in ("fan.ncz", "other.ncz")]
         codes = [(p.wait(timeout=300), p.stderr.read()) for p in procs]
@@ -257,18 +250,18 @@ def test_concurrent_c_emits_through_the_cli(work):
 
 
 def test_c_prefix_clashing_with_the_board_file_is_refused(work, capsys):
-    code, err = run_cli(["emit", work / "fan.ncz", "--to", "c", "--prefix", "startup",
-                         "--bare-metal", "-o", work / "c"], capsys)
+    code, _, err = run_cli(capsys, *["emit", work / "fan.ncz", "--to", "c", "--prefix", "startup",
+                         "--bare-metal", "-o", work / "c"])
     assert one_line_refusal(code, err) and "startup.c" in err and not (work / "c").exists()
-    code, err = run_cli(["emit", work / "fan.ncz", "--to", "c", "--prefix", "_", "-o",
-                         work / "c"], capsys)
+    code, _, err = run_cli(capsys, *["emit", work / "fan.ncz", "--to", "c", "--prefix", "_", "-o",
+                         work / "c"])
     assert one_line_refusal(code, err) and "reserved identifiers" in err
 
 
 def test_demo_keeps_the_users_files_without_overwrite(tmp_path, capsys):
     (tmp_path / "readings.csv").write_text("mine\n")
-    code, err = run_cli(["demo", "-o", tmp_path, "--data-only"], capsys)
+    code, _, err = run_cli(capsys, *["demo", "-o", tmp_path, "--data-only"])
     assert one_line_refusal(code, err) and "readings.csv already exists" in err
     assert (tmp_path / "readings.csv").read_text() == "mine\n"
-    code, _ = run_cli(["demo", "-o", tmp_path, "--data-only", "--overwrite"], capsys)
+    code, _, _ = run_cli(capsys, *["demo", "-o", tmp_path, "--data-only", "--overwrite"])
     assert code == 0 and (tmp_path / "readings.csv").read_text().startswith("ambient_temp,")

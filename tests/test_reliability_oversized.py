@@ -9,16 +9,8 @@ import pytest
 
 from nodecast.compiler import limits
 from nodecast.compiler.bundle import Bundle, save
-from nodecast.compiler.cli import main
 from nodecast.compiler.ir import Network
-
-
-def run_cli(args, capsys) -> tuple[int, str, str]:
-    with pytest.raises(SystemExit) as info:
-        main([str(arg) for arg in args])
-        raise SystemExit(0)
-    captured = capsys.readouterr()
-    return info.value.code, captured.out, captured.err
+from tests.helpers import run_cli
 
 
 def network(n_nodes, n_features) -> Network:
@@ -54,19 +46,18 @@ def test_emit_of_a_million_node_model_is_refused_before_rendering(million_nodes,
     from nodecast.compiler import backends
 
     monkeypatch.setattr(backends, "render", lambda *a, **k: pytest.fail("rendered"))
-    code, _, err = run_cli(["emit", million_nodes, "--to", "python", "-o", tmp_path / "p.py"],
-                           capsys)
+    code, _, err = run_cli(capsys, *["emit", million_nodes, "--to", "python", "-o", tmp_path / "p.py"])
     assert _refused(code, err, "would be at least", "4000001 parameters", "--max-artifact-size")
-    code, _, err = run_cli(["emit", million_nodes, "--to", "onnx", "--max-artifact-size", "1G",
-                            "-o", tmp_path / "m.onnx"], capsys)
+    code, _, err = run_cli(capsys, *["emit", million_nodes, "--to", "onnx", "--max-artifact-size", "1G",
+                            "-o", tmp_path / "m.onnx"])
     assert _refused(code, err, "GiB of memory", "2 GiB available")
     assert list(tmp_path.iterdir()) == []
 
 
 def test_inspect_of_a_million_node_model(million_nodes, capsys, two_gib):
-    code, out, _ = run_cli(["inspect", million_nodes], capsys)
+    code, out, _ = run_cli(capsys, *["inspect", million_nodes])
     assert code == 0 and "1000000 tanh nodes" in out
-    code, _, err = run_cli(["inspect", million_nodes, "--precision", "q15"], capsys)
+    code, _, err = run_cli(capsys, *["inspect", million_nodes, "--precision", "q15"])
     assert _refused(code, err, "error estimate of 1000000 nodes", "GiB of memory")
 
 
@@ -75,18 +66,17 @@ def test_verify_with_too_many_probes_or_features_is_refused_up_front(tmp_path, c
     from nodecast.compiler.verify import probes
 
     save(Bundle(network(50, 3), {}), tmp_path / "m.ncz")
-    code, _, _ = run_cli(["emit", tmp_path / "m.ncz", "--to", "onnx", "-o", tmp_path / "m.onnx"],
-                         capsys)
+    code, _, _ = run_cli(capsys, *["emit", tmp_path / "m.ncz", "--to", "onnx", "-o", tmp_path / "m.onnx"])
     assert code == 0
     monkeypatch.setattr(probes, "sobol", lambda *a: pytest.fail("allocated the probes"))
-    code, _, err = run_cli(["verify", tmp_path / "m.ncz", tmp_path / "m.onnx", "--probes",
-                            "100000000"], capsys)
+    code, _, err = run_cli(capsys, *["verify", tmp_path / "m.ncz", tmp_path / "m.onnx", "--probes",
+                            "100000000"])
     assert _refused(code, err, "on 100000034 probe rows", "lower --probes")
     save(Bundle(network(20, 20_000), {}), tmp_path / "wide.ncz")
-    code, _, _ = run_cli(["emit", tmp_path / "wide.ncz", "--to", "onnx", "-o",
-                          tmp_path / "wide.onnx"], capsys)
+    code, _, _ = run_cli(capsys, *["emit", tmp_path / "wide.ncz", "--to", "onnx", "-o",
+                          tmp_path / "wide.onnx"])
     assert code == 0
-    code, _, err = run_cli(["verify", tmp_path / "wide.ncz", tmp_path / "wide.onnx"], capsys)
+    code, _, err = run_cli(capsys, *["verify", tmp_path / "wide.ncz", tmp_path / "wide.onnx"])
     assert _refused(code, err, "20000 features", "GiB of memory")
 
 

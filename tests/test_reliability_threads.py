@@ -14,7 +14,7 @@ import sys
 import numpy as np
 import pytest
 
-RUN = "from nodecast.compiler.cli import main; import sys; main(sys.argv[1:])"
+RUN = "from nodecast.cli import main; import sys; main(sys.argv[1:])"
 
 
 def _data(path):

@@ -12,18 +12,11 @@ import numpy as np
 import pytest
 
 from nodecast.compiler.bundle import Bundle, save
-from nodecast.compiler.cli import main
 from nodecast.compiler.ir import Network
+from tests.helpers import run_cli
 
 HAS_GCC = shutil.which("gcc") is not None
 
-
-def run_cli(args, capsys) -> tuple[int, str, str]:
-    with pytest.raises(SystemExit) as info:
-        main([str(arg) for arg in args])
-        raise SystemExit(0)
-    captured = capsys.readouterr()
-    return info.value.code, captured.out, captured.err
 
 
 def one_line_refusal(code, err) -> bool:
@@ -60,28 +53,28 @@ def test_options_that_cannot_be_honoured_are_one_line_refusals(work, capsys, arg
     args = [a.format(d=work / "d.csv", m=work / "m.ncz") for a in args]
     if args[0] in ("train", "select", "emit"):
         args += ["-o", str(work / ("out.py" if args[0] == "emit" else "out.ncz"))]
-    code, _, err = run_cli(args, capsys)
+    code, _, err = run_cli(capsys, *args)
     assert one_line_refusal(code, err) and message in err, err
     assert not (work / "out.ncz").exists() and not (work / "out.py").exists()
 
 
 def _emit(work, capsys, kind, name):
-    code, _, err = run_cli(["emit", work / "m.ncz", "--to", kind, "-o", work / name], capsys)
+    code, _, err = run_cli(capsys, *["emit", work / "m.ncz", "--to", kind, "-o", work / name])
     assert code == 0, err
     return work / name
 
 
 def test_generated_files_carry_their_sha256_and_verify_reports_an_edit(work, capsys):
     predictor = _emit(work, capsys, "python", "p.py")
-    code, _, _ = run_cli(["verify", work / "m.ncz", predictor, "--probes", "32", "--report",
-                          work / "r.json"], capsys)
+    code, _, _ = run_cli(capsys, *["verify", work / "m.ncz", predictor, "--probes", "32", "--report",
+                          work / "r.json"])
     assert code == 0
     assert json.loads((work / "r.json").read_text())["artifact"]["files"] == {"p.py": "unchanged"}
     source = predictor.read_text()
     assert re.search(r"^# nodecast-sha256:[0-9a-f]{64}$", source, re.M)
     predictor.write_text(source.replace("import sys", "import sys  # edited", 1))
-    code, out, _ = run_cli(["verify", work / "m.ncz", predictor, "--probes", "32", "--report",
-                            work / "r2.json"], capsys)
+    code, out, _ = run_cli(capsys, *["verify", work / "m.ncz", predictor, "--probes", "32", "--report",
+                            work / "r2.json"])
     report = json.loads((work / "r2.json").read_text())
     assert report["artifact"]["files"] == {"p.py": "changed"}
     assert "p.py: changed since emit" in out and any("changed since emit" in n
@@ -94,8 +87,8 @@ def test_onnx_records_its_sha256_in_the_metadata(work, capsys):
     path = _emit(work, capsys, "onnx", "m.onnx")
     props = {p.key: p.value for p in onnx.load(str(path)).metadata_props}
     assert re.fullmatch(r"nodecast-sha256:[0-9a-f]{64}", props["nodecast.sha256"])
-    code, _, _ = run_cli(["verify", work / "m.ncz", path, "--probes", "16", "--report",
-                          work / "r.json"], capsys)
+    code, _, _ = run_cli(capsys, *["verify", work / "m.ncz", path, "--probes", "16", "--report",
+                          work / "r.json"])
     assert code == 0
     assert json.loads((work / "r.json").read_text())["artifact"]["files"] == {"m.onnx": "unchanged"}
 
@@ -109,7 +102,7 @@ def test_the_predictor_runs_with_an_empty_environment(work, capsys, monkeypatch)
         "import sys", f"import sys, os, json; json.dump(dict(os.environ), open({str(dump)!r}, 'w'))",
         1))
     monkeypatch.setenv("NODECAST_TEST_SECRET", "hunter2")
-    run_cli(["verify", work / "m.ncz", predictor, "--probes", "16"], capsys)
+    run_cli(capsys, *["verify", work / "m.ncz", predictor, "--probes", "16"])
     seen = json.loads(dump.read_text())
     assert "NODECAST_TEST_SECRET" not in seen and set(seen) <= {"PATH", "LC_ALL", "LC_CTYPE"}
 
@@ -119,13 +112,13 @@ def test_c_verify_builds_only_the_generated_files_and_refuses_edited_sizes(work,
     folder = work / "fw"
     _emit(work, capsys, "c", "fw")
     (folder / "main.c").write_text("int main(void) { return 0; }\n")  # the user's own firmware
-    code, out, err = run_cli(["verify", work / "m.ncz", folder, "--probes", "32"], capsys)
+    code, out, err = run_cli(capsys, *["verify", work / "m.ncz", folder, "--probes", "32"])
     assert code == 0, out + err
     header = (folder / "model.h").read_text()
     for macro in ("MODEL_N_INPUTS", "MODEL_N_OUTPUTS"):
         (folder / "model.h").write_text(re.sub(rf"#define {macro} \d+", f"#define {macro} 99999",
                                                header))
-        code, _, err = run_cli(["verify", work / "m.ncz", folder, "--probes", "32"], capsys)
+        code, _, err = run_cli(capsys, *["verify", work / "m.ncz", folder, "--probes", "32"])
         assert one_line_refusal(code, err) and "the artifact was edited" in err
 
 
@@ -135,10 +128,10 @@ def test_python_predictor_with_edited_declarations_is_one_line(work, capsys):
     for edit in (("FEATURE_NAMES = (", "FEATURE_NAMES = ('x',) + ("),
                  ("N_OUTPUTS = ", "N_OUTPUTS = 7 #")):
         predictor.write_text(source.replace(*edit, 1))
-        code, _, err = run_cli(["verify", work / "m.ncz", predictor, "--probes", "16"], capsys)
+        code, _, err = run_cli(capsys, *["verify", work / "m.ncz", predictor, "--probes", "16"])
         assert one_line_refusal(code, err), err
     predictor.write_bytes(source.encode().replace(b"FEATURE_NAMES", b"\xff", 1))
-    code, _, err = run_cli(["verify", work / "m.ncz", predictor, "--probes", "16"], capsys)
+    code, _, err = run_cli(capsys, *["verify", work / "m.ncz", predictor, "--probes", "16"])
     assert one_line_refusal(code, err), err
 
 

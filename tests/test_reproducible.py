@@ -35,7 +35,7 @@ C_COMMANDS = [
 ]
 CHILD = """
 import json, sys
-from nodecast.compiler.cli import main
+from nodecast.cli import main
 for args in json.loads(sys.argv[1]):
     try:
         main(args)

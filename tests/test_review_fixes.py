@@ -9,17 +9,14 @@ import numpy as np
 import pytest
 
 from nodecast.compiler import NodecastError, emit, reference
-from nodecast.compiler.numerics import domain_probes
+from nodecast.compiler.domain_points import domain_probes
+from tests.helpers import write_csv
 
 
 def _nodecast(*args, cwd):
-    return subprocess.run([sys.executable, "-m", "nodecast.compiler.cli", *args], cwd=cwd,
+    return subprocess.run([sys.executable, "-m", "nodecast.cli", *args], cwd=cwd,
                           capture_output=True, text=True, timeout=300)
 
-
-def _write_csv(path, header, rows):
-    path.write_text(",".join(header) + "\n" + "".join(
-        ",".join(repr(float(v)) for v in row) + "\n" for row in rows), encoding="utf-8")
 
 
 def test_float32_estimate_covers_a_target_far_from_zero(tmp_path):
@@ -51,7 +48,7 @@ def test_unboundable_fixed_point_export_is_refused(friedman_bundle):
 
 def test_percent_in_a_feature_name_keeps_predictor_help_working(tmp_path):
     rows = np.random.default_rng(1).random((40, 3))
-    _write_csv(tmp_path / "d.csv", ["a", "%(prog)s %d", "y"], rows)
+    write_csv(tmp_path / "d.csv", ["a", "%(prog)s %d", "y"], rows)
     for args in (["train", "d.csv", "--target", "y", "--nodes", "6", "-o", "m.ncz"],
                  ["emit", "m.ncz", "--to", "python", "-o", "p.py"]):
         assert _nodecast(*args, cwd=tmp_path).returncode == 0
@@ -61,7 +58,7 @@ def test_percent_in_a_feature_name_keeps_predictor_help_working(tmp_path):
 
 
 def test_a_target_cannot_also_be_a_feature(tmp_path):
-    _write_csv(tmp_path / "d.csv", ["a", "y"], np.random.default_rng(2).random((30, 2)))
+    write_csv(tmp_path / "d.csv", ["a", "y"], np.random.default_rng(2).random((30, 2)))
     result = _nodecast("train", "d.csv", "--target", "y", "--features", "a,y", "-o", "m.ncz",
                        cwd=tmp_path)
     assert result.returncode == 2 and "both a feature and a target" in result.stderr

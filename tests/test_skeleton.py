@@ -15,7 +15,7 @@ from nodecast.compiler.activations import get_activation
 
 
 def _nodecast(*args, cwd=None):
-    return subprocess.run([sys.executable, "-m", "nodecast.compiler.cli", *args], cwd=cwd,
+    return subprocess.run([sys.executable, "-m", "nodecast.cli", *args], cwd=cwd,
                           capture_output=True, text=True, timeout=300)
 
 
@@ -87,7 +87,7 @@ def test_data_driven_node_has_inflection_and_local_slope_at_its_anchor():
 
 
 def test_help_imports_no_heavy_library():
-    code = ("import sys\nfrom nodecast.compiler.cli import main\n"
+    code = ("import sys\nfrom nodecast.cli import main\n"
             "for args in (['--help'], ['train', '--help'], ['emit', '--help'], ['verify', '--help'],"
             " ['predict', '--help'], ['inspect', '--help'], ['demo', '--help']):\n"
             "    try:\n        main(args)\n    except SystemExit:\n        pass\n"

@@ -23,7 +23,7 @@ def fit_seconds(rows: int, nodes: int, rate: float = SECONDS_PER_UNIT) -> float:
 
 
 class FitClock:
-    """A ``training.train`` stage callback that feeds a :class:`~nodecast.compiler.progress.Progress`
+    """A ``training.train`` stage callback that feeds a :class:`~nodecast.cli.progress.Progress`
     with estimates, re-calibrating the rate from each finished fit."""
 
     def __init__(self, progress, nodes: int, on_start=None):

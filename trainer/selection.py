@@ -19,8 +19,8 @@ from typing import Any
 
 import numpy as np
 
-from nodecast.compiler import numerics
 from nodecast.compiler.bounds import Certificate
+from nodecast.compiler.domain_points import domain_probes
 from nodecast.compiler.errors import NodecastError
 from nodecast.trainer.cv_units import UnitSettings, evaluate_unit
 from nodecast.trainer.folds import fold_indices, input_box
@@ -243,7 +243,7 @@ def _run(jobs, n_jobs: int):
 def _screen_probes(X, declared) -> np.ndarray:
     low, high = input_box(X, *declared)
     box = SimpleNamespace(n_features=X.shape[1], domain_low=low, domain_high=high)
-    probes = numerics.domain_probes(box, count=SCREEN_PROBES)
+    probes = domain_probes(box, count=SCREEN_PROBES)
     corners = probes[SCREEN_PROBES:]
     step = max(1, -(-corners.shape[0] // SCREEN_PROBES))
     return np.vstack([probes[:SCREEN_PROBES], corners[::step]])

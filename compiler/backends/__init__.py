@@ -29,7 +29,6 @@ class Artifact:
     summary: dict = field(default_factory=dict)
 
 
-_DEFAULT_PRECISION = {"onnx": "float32", "c": "float32", "python": "float64"}
 FLOAT32_LIMIT = 1e38  # below float32's largest value (3.4e38), with room for a sum of a few terms
 FLOAT32_SMALLEST_SCALE = 2.0**-100  # scaled values keep float32's precision above its normal range
 
@@ -62,12 +61,12 @@ def check_fits_float32(net) -> None:
 
 
 def render(bundle, to: str, **options) -> Artifact:
-    if to not in BACKENDS:
-        raise NodecastError(f"unknown target {to!r}; choose one of: {', '.join(BACKENDS)}")
-    if options.get("flag_out_of_domain") and to != "onnx":
-        raise NodecastError(f"--flag-out-of-domain adds an output to an ONNX graph; the {to} "
-                            "artifact has its own out-of-domain handling (--out-of-domain)")
-    if options.get("precision", _DEFAULT_PRECISION[to]) == "float32":
+    """The artifact of ``bundle`` for target ``to``, its options checked and completed by the
+    target's spec (:mod:`nodecast.compiler.targets`)."""
+    from nodecast.compiler.targets import target_spec
+
+    options = target_spec(to).resolve(options)
+    if options["precision"] == "float32":
         check_fits_float32(bundle.network)
     try:
         module = importlib.import_module(BACKENDS[to])

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from nodecast.compiler import numerics
+from nodecast.compiler import typical_error
 from nodecast.compiler.backends import Artifact
 from nodecast.compiler.backends.c_board import board_files
 from nodecast.compiler.backends.c_fixed import fixed_context
@@ -77,7 +77,7 @@ def render(bundle, precision: str = "float32", prefix: str = "model", out_of_dom
 
         estimate = fixed_estimate(net, precision, table_size=context["plan"].table_size)
     else:
-        estimate = numerics.estimate(net, precision, activation_error=context["activation_error"])
+        estimate = typical_error.estimate(net, precision, activation_error=context["activation_error"])
     certificate = certify(net, "c", precision, activation_impl=impl,
                           table_size=context.get("table_size") if not fixed
                           else context["plan"].table_size)

@@ -30,13 +30,13 @@ import numpy as np
 from nodecast.compiler.backends import Artifact
 from nodecast.compiler.bounds import certify
 from nodecast.compiler.errors import NodecastError
-from nodecast.compiler.numerics import estimate
 from nodecast.compiler.passes.scaling import (
     FOLD_GROWTH_LIMIT,
     folded_input_layer,
     folded_output_layer,
     should_fold_inputs,
 )
+from nodecast.compiler.typical_error import estimate
 from nodecast.compiler.version import __version__
 
 # The default operator set is the oldest one the graph needs, so that older runtimes load it
@@ -69,7 +69,7 @@ _ACTIVATION_OP = {"logistic": "Sigmoid", "tanh": "Tanh"}
 
 
 def render(bundle, precision: str = "float32", opset: int | None = None,
-           out_of_domain: str = "pass", flag_out_of_domain: bool = False, **_ignored) -> Artifact:
+           out_of_domain: str = "pass", flag_out_of_domain: bool = False) -> Artifact:
     if precision not in PRECISIONS:
         raise NodecastError(f"ONNX takes precision float32 or float64, not {precision!r}")
     needed = needed_opset(flag_out_of_domain, bundle.network.n_categorical > 0)

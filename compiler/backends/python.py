@@ -26,7 +26,7 @@ from nodecast.compiler.backends import Artifact
 from nodecast.compiler.bounds import certify
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import OUT_OF_DOMAIN_POLICIES
-from nodecast.compiler.numerics import estimate
+from nodecast.compiler.typical_error import estimate
 from nodecast.compiler.version import __version__
 from nodecast.templates import render as render_template
 
@@ -37,7 +37,7 @@ LINE_LIMIT = 100  # pyproject [tool.ruff] line-length: the generated file passes
 _NOQA_LONG_LINE = "  # noqa: E501"
 
 
-def render(bundle, precision: str = "float64", out_of_domain: str = "pass", **_ignored) -> Artifact:
+def render(bundle, precision: str = "float64", out_of_domain: str = "pass") -> Artifact:
     """Render ``bundle`` as ``predictor.py``.
 
     Parameters

@@ -22,10 +22,11 @@ from nodecast.compiler.bounds import fixed, floating, programs
 from nodecast.compiler.bounds.branch import refine
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import Network
+from nodecast.compiler.targets import TARGETS
 
 # the precisions each target can execute (an artifact declaring another is refused)
-TARGET_PRECISIONS = {"c": ("float64", "float32", "q31", "q15"), "onnx": ("float64", "float32"),
-                     "python": ("float64",), "reference": ("float64",)}
+TARGET_PRECISIONS = {**{name: spec.precisions for name, spec in TARGETS.items()},
+                     "reference": ("float64",)}
 _WORK = 6_000_000  # node-input evaluations the refinement may spend per output (sets the budget)
 _MIN_BOXES, _MAX_BOXES = 16, 1024
 SCREENING_BOXES = 64  # a coarser refinement for many candidate models (select): looser, certified

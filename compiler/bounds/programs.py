@@ -13,8 +13,7 @@ import numpy as np
 from nodecast.compiler.bounds import activations as proven
 from nodecast.compiler.bounds.floating import FloatProgram
 from nodecast.compiler.ir import Network
-
-UNIT_ROUNDOFF = {"float64": 2.0**-53, "float32": 2.0**-24}
+from nodecast.compiler.targets import UNIT_ROUNDOFF
 
 
 def _stored(values: np.ndarray, precision: str) -> np.ndarray:

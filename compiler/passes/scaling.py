@@ -15,8 +15,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from nodecast.compiler.domain_points import domain_probes
 from nodecast.compiler.ir import Network
-from nodecast.compiler.numerics import domain_probes
 
 FOLD_GROWTH_LIMIT = 1.5
 

@@ -20,7 +20,7 @@ Report schema (``Report.as_dict()``; also what ``verify --report`` writes):
     ``safety_factor``, ``estimate`` and ``reference_rounding`` (per output): the in-domain
     tolerance.
 ``estimate`` (object)
-    The export-error estimate for the artifact's precision (:mod:`nodecast.compiler.numerics`).
+    The export-error estimate for the artifact's precision (:mod:`nodecast.compiler.typical_error`).
 ``probes`` (object)
     ``seed``, ``sobol`` (the quasi-random count asked for), ``total``, ``families`` (count by name).
 ``families`` (list)
@@ -41,7 +41,7 @@ from pathlib import Path
 
 import numpy as np
 
-from nodecast.compiler import numerics
+from nodecast.compiler import typical_error
 from nodecast.compiler.bounds.budget import accuracy_budget
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.verify.compare import compare_family, expected_outputs
@@ -181,7 +181,7 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
     inside = np.vstack([w for f, w in zip(families, wanted, strict=True) if f.inside_domain])
     out_range = np.maximum(inside.max(axis=0) - inside.min(axis=0), np.finfo(float).tiny)
     budget = accuracy_budget(bundle, abs_tol, rel_tol, out_range)
-    est = numerics.estimate(net, info["precision"], activation_error=info.get("activation_error", 0.0))
+    est = typical_error.estimate(net, info["precision"], activation_error=info.get("activation_error", 0.0))
     X_all = np.vstack([family.X for family in families])
     engines = list(info.get("engines") or [kind])
     results = []
@@ -224,8 +224,8 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
 
 def _check_verify_memory(net, data, count: int) -> None:
     """Refuse, with the estimate, a verification that would exhaust the memory."""
+    from nodecast.compiler.domain_points import ALL_CORNERS_UP_TO, MAX_CORNERS
     from nodecast.compiler.limits import check_memory, verify_bytes
-    from nodecast.compiler.verify.probes import ALL_CORNERS_UP_TO, MAX_CORNERS
 
     n = net.n_features
     corners = 2**n if n <= ALL_CORNERS_UP_TO else MAX_CORNERS

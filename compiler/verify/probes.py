@@ -22,7 +22,7 @@ Families, in this order (empty ones are left out):
     names no level (code -1), judged by the policy like ``outside``.
 
 With categorical inputs every generated row also carries a level code per categorical input,
-cycling through every level (``numerics.with_levels``; each family starts at another level), so
+cycling through every level (``domain_points.with_levels``; each family starts at another level), so
 every level meets the Sobol points, the corners and the bounds.
 
 Each family draws from its own stream ``numpy.random.default_rng([seed, k])``, so adding a family
@@ -35,13 +35,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from nodecast.compiler.domain_points import corners, sobol, with_levels
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import Network
-from nodecast.compiler.numerics import with_levels
 from nodecast.compiler.reference import outside_domain
 
-MAX_CORNERS = 1024
-ALL_CORNERS_UP_TO = 10
 INSIDE_STEP = 1e-6
 OUTSIDE_FACTORS = (-10.0, -0.1, 0.1, 10.0)
 
@@ -63,24 +61,6 @@ def _span(net: Network) -> np.ndarray:
 def _random_rows(net: Network, rng: np.random.Generator, count: int) -> np.ndarray:
     return net.domain_low + rng.random((count, net.n_features)) * _span(net)
 
-
-def sobol(net: Network, count: int, seed: int) -> np.ndarray:
-    """The first ``count`` points of a scrambled Sobol sequence of 2^m >= count points (drawing a
-    power of two keeps the sequence's balance and SciPy's warning quiet), mapped onto the box."""
-    from nodecast.compiler.sobol import sobol as sobol_points  # scipy's sequence, 0.6 s faster
-
-    unit = sobol_points(net.n_features, count, seed)  # the first of 2^m points are these
-    return net.domain_low + unit * _span(net)
-
-
-def corners(net: Network, seed: int) -> np.ndarray:
-    """All 2^n corners for n <= ALL_CORNERS_UP_TO, else MAX_CORNERS seeded random ones."""
-    n = net.n_features
-    if n <= ALL_CORNERS_UP_TO:
-        bits = np.array(np.meshgrid(*[[0, 1]] * n, indexing="ij")).reshape(n, -1).T
-    else:
-        bits = np.random.default_rng([seed, 1]).integers(0, 2, size=(MAX_CORNERS, n))
-    return np.where(bits == 1, net.domain_high, net.domain_low)
 
 
 def near_bounds(net: Network, seed: int) -> np.ndarray:

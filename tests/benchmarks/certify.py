@@ -24,8 +24,8 @@ CONFIGS = [("c", "float32", "libm"), ("c", "float32", "rational"), ("c", "float3
 
 
 def demo_bundles(folder: Path):
+    from nodecast.cli import main
     from nodecast.compiler import load
-    from nodecast.compiler.cli import main
 
     main(["demo", "--data-only", "-o", str(folder)])
     bundles = {}

@@ -147,7 +147,7 @@ def command_line_rates(executable, predictor, csv_path, rows) -> dict:
 
 def main(argv=None) -> None:
     from nodecast.compiler import emit, reference
-    from nodecast.compiler.numerics import domain_probes
+    from nodecast.compiler.domain_points import domain_probes
     from nodecast.compiler.verify.runners.python import find_interpreters, rows_as_csv
 
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])

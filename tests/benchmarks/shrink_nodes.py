@@ -28,11 +28,11 @@ COUNTS = {"cortex-m4f": {"precision": "float32"},
 
 
 def _demo():
-    from nodecast.compiler.demo import write_data
+    from nodecast.cli.demo_scenario import write_data
 
     with tempfile.TemporaryDirectory() as tmp:
+        from nodecast.cli.demo_scenario import DOMAIN, FEATURES, TARGET, UNITS
         from nodecast.compiler.csvio import read_table
-        from nodecast.compiler.demo import DOMAIN, FEATURES, TARGET, UNITS
         from nodecast.trainer.training import TrainingJob, train
 
         write_data(Path(tmp))

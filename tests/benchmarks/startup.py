@@ -34,7 +34,7 @@ def _measure(args: list[str]) -> dict:
 
 
 def main() -> None:
-    nodecast = [sys.executable, "-m", "nodecast.compiler.cli"]
+    nodecast = [sys.executable, "-m", "nodecast.cli"]
     with tempfile.TemporaryDirectory() as folder:
         out = Path(folder)
         subprocess.run(nodecast + ["demo", "--data-only", "-o", folder], check=True,

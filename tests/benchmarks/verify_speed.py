@@ -42,8 +42,8 @@ def _engine_times(bundle, path: Path) -> dict:
 
 def demo_bundle(folder: Path):
     """The demo's model, trained exactly as ``nodecast demo`` trains it."""
+    from nodecast.cli.demo_scenario import DOMAIN, FEATURES, TARGET, UNITS, write_data
     from nodecast.compiler.csvio import read_table
-    from nodecast.compiler.demo import DOMAIN, FEATURES, TARGET, UNITS, write_data
     from nodecast.trainer.training import TrainingJob, train
 
     write_data(folder)

@@ -14,7 +14,12 @@ import os
 import numpy as np
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-from test_bundle_integrity import (
+
+from nodecast.compiler import bundle as bundle_io
+from nodecast.compiler import reference
+from nodecast.compiler.bundle import BundleError
+from nodecast.compiler.inspection import describe_bundle, format_description
+from tests.compiler.test_bundle_integrity import (
     HEADER,
     assemble,
     npy,
@@ -23,11 +28,6 @@ from test_bundle_integrity import (
     same_content,
     tiny_bundle,
 )
-
-from nodecast.compiler import bundle as bundle_io
-from nodecast.compiler import reference
-from nodecast.compiler.bundle import BundleError
-from nodecast.compiler.inspection import describe_bundle, format_description
 
 ORIGINAL = tiny_bundle(n=1, m=2)
 DATA = bundle_io.to_bytes(ORIGINAL)

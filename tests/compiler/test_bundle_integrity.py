@@ -21,8 +21,8 @@ import pytest
 
 from nodecast.compiler import bundle as bundle_io
 from nodecast.compiler.bundle import Bundle, BundleError
-from nodecast.compiler.cli import main
 from nodecast.compiler.ir import Network
+from tests.helpers import run_cli
 
 ZIP_TIME = (1980, 1, 1, 0, 0, 0)
 
@@ -486,12 +486,6 @@ def test_save_refuses_metadata_that_json_cannot_hold(metadata, where, tmp_path):
     assert not (tmp_path / "m.ncz").exists()
 
 
-def run_cli(args, capsys) -> tuple[int, str]:
-    with pytest.raises(SystemExit) as info:
-        main(list(args))
-        raise SystemExit(0)
-    return info.value.code, capsys.readouterr().err
-
 
 def _cli_cases():
     data = bundle_io.to_bytes(tiny_bundle())
@@ -520,7 +514,7 @@ def test_cli_inspect_refuses_bad_bundles_with_exit_2_and_one_line(case, tmp_path
     data, expected = _cli_cases()[case]
     path = tmp_path / "bad.ncz"
     path.write_bytes(data)
-    code, err = run_cli(["inspect", str(path)], capsys)
+    code, _, err = run_cli(capsys, *["inspect", str(path)])
     assert code == 2
     assert err.startswith("nodecast: error: ") and expected in err
     assert len(err.strip().splitlines()) == 1 and "Traceback" not in err

@@ -5,11 +5,11 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from test_c_support import emit_c, need, run_c, single_node_bundle
 
-from nodecast.compiler import numerics, reference
+from nodecast.compiler import reference, typical_error
 from nodecast.compiler.fixedpoint import make_plan
 from nodecast.compiler.verify.probes import corners, near_bounds, sobol
+from tests.compiler.c_support import emit_c, need, run_c, single_node_bundle
 
 
 def _probes(net, seed: int = 11, count: int = 4096) -> np.ndarray:
@@ -59,7 +59,7 @@ def test_fixed_point_estimate_is_not_below_the_measured_error(fixed_point_models
     bundle = fixed_point_models[model]
     emit_c(bundle, tmp_path, precision=precision, out_of_domain="clamp")
     measured = _max_error(bundle, tmp_path, _probes(bundle.network), "clamp")
-    estimate = np.asarray(numerics.estimate(bundle.network, precision).per_output)
+    estimate = np.asarray(typical_error.estimate(bundle.network, precision).per_output)
     assert np.all(measured <= estimate), (measured, estimate)
     assert np.all(measured >= estimate / 30), (measured, estimate)  # an estimate, not a wild bound
     if precision == "q15":  # the quantisation step alone (Q15: 2^-15 of each scale) shows
@@ -117,3 +117,12 @@ def _macro(header, name: str) -> str:
         if line.startswith(f"#define {name} "):
             return line.split()[2]
     raise AssertionError(f"{name} not in {header}")
+
+
+def test_single_node_bundle_is_its_activation():
+    # The helper must compute g(x) exactly in the float64 reference: tanh from NumPy.
+    from nodecast.compiler.reference import predict
+
+    x = np.linspace(-8.0, 8.0, 101)[:, None]
+    assert np.max(np.abs(predict(single_node_bundle("tanh").network, x)[:, 0] - np.tanh(x[:, 0]))) \
+        < 1e-15

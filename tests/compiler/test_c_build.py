@@ -8,10 +8,10 @@ import subprocess
 
 import numpy as np
 import pytest
-from test_c_support import STRICT, emit_c, need
 
 from nodecast.compiler import emit
 from nodecast.compiler.bundle import Bundle
+from tests.compiler.c_support import STRICT, emit_c, need
 
 VARIANTS = [("float64", "libm", "pass"), ("float32", "libm", "reject"),
             ("float32", "rational", "clamp"), ("float64", "table", "reject"),

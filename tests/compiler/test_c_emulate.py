@@ -8,12 +8,12 @@ import subprocess
 
 import numpy as np
 import pytest
-from test_c_support import emit_c, extreme_rows, need, run_c
 
 from nodecast.compiler.verify import verify
 from nodecast.compiler.verify.probes import probe_families
 from nodecast.compiler.verify.runners import c as c_runner
 from nodecast.compiler.verify.runners import qemu
+from tests.compiler.c_support import emit_c, extreme_rows, need, run_c
 
 EMULATION_TOOLS = ("gcc", "arm-none-eabi-gcc", "qemu-system-arm")
 

@@ -5,10 +5,10 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from test_c_support import emit_c, extreme_rows, need, run_c
 
 from nodecast.compiler import reference
 from nodecast.compiler.verify.probes import probe_families
+from tests.compiler.c_support import emit_c, extreme_rows, need, run_c
 
 SANITIZE = ("-fsanitize=address,undefined,float-cast-overflow", "-fno-sanitize-recover=all",
             "-fno-omit-frame-pointer", "-g")

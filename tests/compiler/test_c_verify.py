@@ -7,13 +7,13 @@ import subprocess
 
 import numpy as np
 import pytest
-from test_c_support import STRICT, emit_c, need
 
+from nodecast.cli import main
 from nodecast.compiler import emit, save
-from nodecast.compiler.cli import main
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.verify import verify
 from nodecast.compiler.verify.runners import c as c_runner
+from tests.compiler.c_support import STRICT, emit_c, need
 
 
 def test_describe_reads_the_provenance_macros(friedman_bundle, tmp_path):

@@ -45,7 +45,7 @@ def _write_synthetic(path, rows: int, seed: int) -> None:
 
 
 def _train(*arguments):
-    from nodecast.compiler.cli import main
+    from nodecast.cli import main
 
     try:
         main(["train", *map(str, arguments)])

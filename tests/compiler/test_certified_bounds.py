@@ -22,22 +22,12 @@ from nodecast.compiler.bounds.branch import refine
 from nodecast.compiler.bounds.certificate import round_up
 from nodecast.compiler.bounds.ranges import preactivation_ranges
 from nodecast.compiler.bounds.search import find_worst
-from nodecast.compiler.cli import main
 from nodecast.compiler.reference import hidden_layer, predict
 from nodecast.compiler.verify.runners import runner
+from tests.helpers import run_cli
 
 HAS_GCC = shutil.which("gcc") is not None
 
-
-def run_cli(capsys, *args):
-    """(exit status, stdout, stderr) of ``nodecast ARGS`` run in this process."""
-    try:
-        main([str(a) for a in args])
-        status = 0
-    except SystemExit as stop:
-        status = stop.code
-    captured = capsys.readouterr()
-    return status, captured.out, captured.err
 
 
 def _points(net, count, seed=0):

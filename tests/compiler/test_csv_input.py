@@ -14,9 +14,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from nodecast.compiler.cli import main
 from nodecast.compiler.csvio import read_table, write_table
 from nodecast.compiler.errors import NodecastError
+from tests.helpers import run_cli
 
 
 def table(text: str):
@@ -30,13 +30,6 @@ def refused(text: str, columns=("a", "b"), **options) -> str:
     assert "\n" not in message
     return message
 
-
-def run_cli(args, capsys) -> tuple[int, str, str]:
-    with pytest.raises(SystemExit) as info:
-        main([str(arg) for arg in args])
-        raise SystemExit(0)
-    captured = capsys.readouterr()
-    return info.value.code, captured.out, captured.err
 
 
 # -- accepted, as documented ----------------------------------------------------------------------
@@ -181,10 +174,10 @@ def test_cli_trains_on_bom_crlf_data_and_predicts_nan_rows(tmp_path, capsys):
     rows = np.column_stack([X, y]).tolist()
     data = _write(tmp_path / "d.csv", ["u", "v", "y"], rows, ending="\r\n", bom=True)
     model = tmp_path / "m.ncz"
-    code, _, err = run_cli(["train", data, "--target", "y", "--nodes", "10", "-o", model], capsys)
+    code, _, err = run_cli(capsys, *["train", data, "--target", "y", "--nodes", "10", "-o", model])
     assert code == 0, err
     rows = _write(tmp_path / "p.csv", ["v", "u"], [[0.5, 0.5], ["nan", 0.2], [0.1, "inf"]])
-    code, out, err = run_cli(["predict", model, rows], capsys)
+    code, out, err = run_cli(capsys, *["predict", model, rows])
     assert code == 0, err
     lines = out.splitlines()
     assert lines[0] == "y" and len(lines) == 4
@@ -202,8 +195,8 @@ def test_cli_train_refuses_bad_cells_with_line_and_column(cell, expected, tmp_pa
     rows = np.column_stack([X, y]).tolist()
     rows[2][0] = cell  # data row 3 is line 4 of the file
     data = _write(tmp_path / "d.csv", ["u", "v", "y"], rows)
-    code, _, err = run_cli(["train", data, "--target", "y", "--nodes", "10", "-o",
-                            tmp_path / "m.ncz"], capsys)
+    code, _, err = run_cli(capsys, *["train", data, "--target", "y", "--nodes", "10", "-o",
+                            tmp_path / "m.ncz"])
     assert code == 2 and expected in err and "Traceback" not in err
     assert not (tmp_path / "m.ncz").exists()
 
@@ -211,11 +204,11 @@ def test_cli_train_refuses_bad_cells_with_line_and_column(cell, expected, tmp_pa
 def test_cli_refuses_duplicate_feature_names_and_duplicated_headers(tmp_path, capsys):
     X, y = _readings()
     data = _write(tmp_path / "d.csv", ["u", "v", "y"], np.column_stack([X, y]).tolist())
-    code, _, err = run_cli(["train", data, "--target", "y", "--features", "u,u", "--nodes", "5",
-                            "-o", tmp_path / "m.ncz"], capsys)
+    code, _, err = run_cli(capsys, *["train", data, "--target", "y", "--features", "u,u", "--nodes", "5",
+                            "-o", tmp_path / "m.ncz"])
     assert code == 2 and "feature_names repeats 'u'" in err
     dup = _write(tmp_path / "dup.csv", ["u", "u", "y"], np.column_stack([X, y]).tolist())
-    code, _, err = run_cli(["train", dup, "--target", "y", "-o", tmp_path / "m.ncz"], capsys)
+    code, _, err = run_cli(capsys, *["train", dup, "--target", "y", "-o", tmp_path / "m.ncz"])
     assert code == 2 and "duplicated column name 'u' (columns 1, 2)" in err
 
 
@@ -229,10 +222,10 @@ def test_cli_classifier_round_trips_hostile_label_text(tmp_path, capsys):
     data = tmp_path / "d.csv"
     data.write_text(buffer.getvalue(), encoding="utf-8")
     model = tmp_path / "m.ncz"
-    code, _, err = run_cli(["train", data, "--target", "kind", "--task", "classification",
-                            "--nodes", "30", "-o", model], capsys)
+    code, _, err = run_cli(capsys, *["train", data, "--target", "kind", "--task", "classification",
+                            "--nodes", "30", "-o", model])
     assert code == 0, err
-    code, out, err = run_cli(["predict", model, data, "--scores"], capsys)
+    code, out, err = run_cli(capsys, *["predict", model, data, "--scores"])
     assert code == 0, err
     rows = list(csv.reader(io.StringIO(out, newline="")))
     assert rows[0][0] == "label" and {row[0] for row in rows[1:]} <= set(names)
@@ -256,6 +249,6 @@ def test_cli_trains_on_a_yes_no_feature(tmp_path, capsys):
     X, y = _readings()
     rows = [[u, "yes" if v > 0.5 else "no", t] for (u, v), t in zip(X, y, strict=True)]
     data = _write(tmp_path / "d.csv", ["u", "fan_on", "y"], rows)
-    code, _, err = run_cli(["train", data, "--target", "y", "--nodes", "10", "-o",
-                            tmp_path / "m.ncz"], capsys)
+    code, _, err = run_cli(capsys, *["train", data, "--target", "y", "--nodes", "10", "-o",
+                            tmp_path / "m.ncz"])
     assert code == 0, err

@@ -9,17 +9,7 @@ import numpy as np
 import pytest
 
 from nodecast.compiler import load, reference
-from nodecast.compiler.cli import main
-
-
-def run_cli(capsys, *args) -> tuple[int, str, str]:
-    try:
-        main([str(arg) for arg in args])
-        code = 0
-    except SystemExit as exc:
-        code = exc.code
-    captured = capsys.readouterr()
-    return code, captured.out, captured.err
+from tests.helpers import cli_status, run_cli
 
 
 def _write(path, header, rows):
@@ -41,22 +31,15 @@ def models(tmp_path_factory):
     data = _write(folder / "train.csv", ["p", "q", "z"], rows(300))
     held = _write(folder / "held.csv", ["p", "q", "z"], rows(200))
     for seed in (1, 2):
-        code = run_cli_plain("train", data, "--target", "z", "--nodes", "40", "--seed", seed,
+        code = cli_status("train", data, "--target", "z", "--nodes", "40", "--seed", seed,
                              "--domain", "p=-2:2,q=-1:1", "-o", folder / f"s{seed}.ncz")
         assert code == 0
-    code = run_cli_plain("train", data, "--target", "z", "--nodes", "40", "--seed", 1,
+    code = cli_status("train", data, "--target", "z", "--nodes", "40", "--seed", 1,
                          "--domain", "p=-2:2.5,q=-1:1", "-o", folder / "wider.ncz")
     assert code == 0
     return {"folder": folder, "data": data, "held": held, "s1": folder / "s1.ncz",
             "s2": folder / "s2.ncz", "wider": folder / "wider.ncz"}
 
-
-def run_cli_plain(*args) -> int:
-    try:
-        main([str(arg) for arg in args])
-    except SystemExit as exc:
-        return exc.code
-    return 0
 
 
 def test_a_model_compared_with_itself_changes_by_zero(capsys, models, tmp_path):
@@ -124,7 +107,7 @@ def test_a_changed_domain_is_reported_first_and_fails_the_gate(capsys, models):
 def test_models_of_different_inputs_are_refused_in_one_line(capsys, models, tmp_path):
     rows = [[float(a), float(a) ** 2] for a in np.linspace(0, 1, 30)]
     data = _write(tmp_path / "o.csv", ["r", "z"], rows)
-    assert run_cli_plain("train", data, "--target", "z", "--nodes", "5", "-o", tmp_path / "o.ncz") == 0
+    assert cli_status("train", data, "--target", "z", "--nodes", "5", "-o", tmp_path / "o.ncz") == 0
     capsys.readouterr()
     status, out, err = run_cli(capsys, "diff", models["s1"], tmp_path / "o.ncz")
     assert status == 2 and out == "" and len(err.strip().splitlines()) == 1

@@ -13,19 +13,13 @@ import pytest
 
 from nodecast.compiler import bundle as bundle_io
 from nodecast.compiler import files
-from nodecast.compiler.cli import main
 from nodecast.compiler.errors import NodecastError
+from tests.helpers import run_cli
 
 
 def leftovers(folder):
     return sorted(p.name for p in folder.iterdir() if p.name.endswith(".part"))
 
-
-def run_cli(args, capsys) -> tuple[int, str]:
-    with pytest.raises(SystemExit) as info:
-        main([str(arg) for arg in args])
-        raise SystemExit(0)
-    return info.value.code, capsys.readouterr().err
 
 
 class _Boom(Exception):
@@ -153,7 +147,7 @@ def test_written_files_get_ordinary_permissions(tmp_path):
 
 @pytest.fixture(scope="module")
 def bundle_file(tmp_path_factory):
-    from test_bundle_integrity import tiny_bundle
+    from tests.compiler.test_bundle_integrity import tiny_bundle
 
     path = tmp_path_factory.mktemp("bundle") / "tiny.ncz"
     bundle_io.save(tiny_bundle(), path)
@@ -163,16 +157,15 @@ def bundle_file(tmp_path_factory):
 def test_cli_refuses_to_replace_outputs_without_overwrite(bundle_file, tmp_path, capsys):
     existing = tmp_path / "out.onnx"
     existing.write_bytes(b"precious")
-    code, err = run_cli(["emit", bundle_file, "--to", "onnx", "-o", existing], capsys)
+    code, _, err = run_cli(capsys, *["emit", bundle_file, "--to", "onnx", "-o", existing])
     assert code == 2 and "pass --overwrite" in err and existing.read_bytes() == b"precious"
     data = tmp_path / "rows.csv"
     data.write_text("x0,x1\n0.5,0.5\n")
-    code, err = run_cli(["predict", bundle_file, data, "-o", existing], capsys)
+    code, _, err = run_cli(capsys, *["predict", bundle_file, data, "-o", existing])
     assert code == 2 and "pass --overwrite" in err and existing.read_bytes() == b"precious"
-    code, err = run_cli(["train", data, "--target", "x1", "-o", existing], capsys)
+    code, _, err = run_cli(capsys, *["train", data, "--target", "x1", "-o", existing])
     assert code == 2 and "pass --overwrite" in err and existing.read_bytes() == b"precious"
-    code, err = run_cli(["emit", bundle_file, "--to", "onnx", "-o", existing, "--overwrite"],
-                        capsys)
+    code, _, err = run_cli(capsys, *["emit", bundle_file, "--to", "onnx", "-o", existing, "--overwrite"])
     assert code == 0 and existing.read_bytes().startswith(b"\x08")  # protobuf field 1: ir_version
 
 
@@ -185,7 +178,7 @@ def test_cli_emit_interrupted_mid_write_keeps_the_old_artifact(bundle_file, tmp_
         raise KeyboardInterrupt
 
     monkeypatch.setattr(files.os, "fsync", interrupted_sync)
-    code, _ = run_cli(["emit", bundle_file, "--to", "onnx", "-o", existing, "--overwrite"], capsys)
+    code, _, _ = run_cli(capsys, *["emit", bundle_file, "--to", "onnx", "-o", existing, "--overwrite"])
     assert code != 0 and existing.read_bytes() == b"precious" and leftovers(tmp_path) == []
 
 
@@ -196,7 +189,7 @@ CHILD = textwrap.dedent("""
         print("staged", flush=True)
         time.sleep(60)
     files.os.fsync = stall
-    from nodecast.compiler.cli import main
+    from nodecast.cli import main
     main(sys.argv[1:])
 """)
 

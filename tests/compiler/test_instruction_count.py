@@ -7,13 +7,13 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from click.testing import CliRunner
-from test_c_support import need
 
+from nodecast.cli import cli
 from nodecast.compiler import instruction_count as ic
 from nodecast.compiler import save
 from nodecast.compiler.backends import render
-from nodecast.compiler.cli import cli
 from nodecast.compiler.errors import NodecastError
+from tests.compiler.c_support import need
 
 TOOLS = ("arm-none-eabi-gcc", "qemu-system-arm")
 _FAKE_HEADER = b"""#ifndef FAKE_H

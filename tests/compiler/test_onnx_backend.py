@@ -9,7 +9,7 @@ import pytest
 
 from nodecast.compiler import NodecastError, emit, reference
 from nodecast.compiler.backends import onnx as onnx_backend
-from nodecast.compiler.numerics import domain_probes
+from nodecast.compiler.domain_points import domain_probes
 
 onnx = pytest.importorskip("onnx")
 ort = pytest.importorskip("onnxruntime")

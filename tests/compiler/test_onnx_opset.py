@@ -9,9 +9,9 @@ import onnxruntime as ort
 import pytest
 from onnx import helper
 
+from nodecast.cli import main
 from nodecast.compiler import reference
 from nodecast.compiler.backends import onnx as onnx_backend
-from nodecast.compiler.cli import main
 
 VARIANTS = [("regression", "float32", "pass", False), ("regression", "float64", "clamp", False),
             ("regression", "float32", "clamp", True), ("classification", "float32", "pass", False),

@@ -92,7 +92,7 @@ def test_cli_refuses_float32_with_one_line_and_exit_2(friedman_bundle, tmp_path)
     save(friedman_bundle, tmp_path / "m.ncz")
     command = ["emit", str(tmp_path / "m.ncz"), "--to", "python", "--precision", "float32",
                "-o", str(tmp_path / "p.py")]
-    done = subprocess.run([sys.executable, "-m", "nodecast.compiler.cli", *command],
+    done = subprocess.run([sys.executable, "-m", "nodecast.cli", *command],
                           capture_output=True, text=True)
     assert done.returncode == 2 and "Traceback" not in done.stderr
     assert len(done.stderr.strip().splitlines()) == 1 and "float64" in done.stderr

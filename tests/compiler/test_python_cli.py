@@ -88,7 +88,7 @@ def test_file_argument_stdin_and_dash_agree(friedman_bundle, files, tmp_path):
 
 
 def test_values_equal_the_reference_and_nodecast_predict(friedman_bundle, files, tmp_path):
-    from nodecast.compiler.cli import main
+    from nodecast.cli import main
 
     net, X = friedman_bundle.network, rows(friedman_bundle.network, 200, seed=3)
     (tmp_path / "in.csv").write_bytes(rows_as_csv(net.feature_names, X))

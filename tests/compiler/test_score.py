@@ -11,17 +11,10 @@ from sklearn import metrics as skm  # the reference implementation every metric 
 
 from nodecast.compiler import reference, save
 from nodecast.compiler.bundle import Bundle
-from nodecast.compiler.cli import main
 from nodecast.compiler.csvio import read_table, write_table
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.scoring import classification_metrics, regression_metrics, score
-
-
-def run_cli(capsys, *args):
-    with pytest.raises(SystemExit) as stop:
-        main([str(a) for a in args])
-    captured = capsys.readouterr()
-    return stop.value.code, captured.out, captured.err
+from tests.helpers import run_cli
 
 
 @pytest.fixture(scope="module")

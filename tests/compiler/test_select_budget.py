@@ -11,20 +11,20 @@ import sys
 import numpy as np
 import pytest
 from click.testing import CliRunner
-from test_c_support import need
 
+from nodecast.cli import cli
 from nodecast.compiler import load
 from nodecast.compiler.backends import render
-from nodecast.compiler.cli import cli
 from nodecast.compiler.instruction_count import ASSUMED_CPI, count_instructions, counting_rows
 from nodecast.compiler.toolchain import footprint
+from tests.compiler.c_support import need
 
 TOOLS = ("arm-none-eabi-gcc", "qemu-system-arm")
 
 
 @pytest.fixture(scope="module")
 def readings(tmp_path_factory):
-    from nodecast.compiler.demo import write_data
+    from nodecast.cli.demo_scenario import write_data
 
     folder = tmp_path_factory.mktemp("readings")
     write_data(folder)
@@ -69,7 +69,7 @@ def test_a_cycle_budget_is_met_by_the_chosen_model_on_its_own_weights(readings, 
 def test_an_impossible_budget_exits_2_naming_the_smallest_achievable_size(readings, tmp_path):
     need(*TOOLS)
     out = tmp_path / "chosen.ncz"
-    result = subprocess.run([sys.executable, "-m", "nodecast.compiler.cli", "select", str(readings),
+    result = subprocess.run([sys.executable, "-m", "nodecast.cli", "select", str(readings),
                              "--target", "heatsink_temp", "--nodes", "20,60", "--folds", "3",
                              "--max-flash", "300", "-o", str(out)],
                             capture_output=True, text=True, check=False)

@@ -10,10 +10,10 @@ import numpy as np
 import pytest
 from click.testing import CliRunner
 
+from nodecast.cli import cli
 from nodecast.compiler import load, reference, save
 from nodecast.compiler.bounds.search import find_worst
 from nodecast.compiler.bundle import Bundle
-from nodecast.compiler.cli import cli
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import Network
 from nodecast.compiler.passes.shrink import shrink, shrink_bundle

@@ -24,7 +24,7 @@ def test_points_equal_scipys_scrambled_sobol(d, n, seed):
 
 
 def _modules_after(args: list[str]) -> set[str]:
-    code = ("import sys\nfrom nodecast.compiler.cli import main\n"
+    code = ("import sys\nfrom nodecast.cli import main\n"
             "try:\n    main(sys.argv[1:])\n"
             "except SystemExit as exc:\n    assert exc.code in (0, None), exc.code\n"
             "print(' '.join(sorted(sys.modules)))")

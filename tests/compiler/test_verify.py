@@ -9,26 +9,19 @@ import numpy as np
 import pytest
 
 from nodecast.compiler import emit, reference, save
-from nodecast.compiler.cli import main
 from nodecast.compiler.csvio import write_table
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.verify import check, verify
 from nodecast.compiler.verify.probes import probe_families
 from nodecast.compiler.verify.report import to_json
 from nodecast.compiler.verify.runners import detect_kind
+from tests.helpers import run_cli
 
 SCHEMA_KEYS = {"passed", "bundle_id", "task", "artifact", "outputs", "max_abs_error",
                "max_rel_error", "tolerance", "typical_estimate", "probes", "families", "notes",
                "certified_bound", "accuracy_budget", "sound", "within_budget",
                "measured_max_abs_error"}
 
-
-def run_cli(capsys, *args):
-    """(exit status, stdout, stderr) of ``nodecast ARGS`` run in this process."""
-    with pytest.raises(SystemExit) as stop:
-        main([str(a) for a in args])
-    captured = capsys.readouterr()
-    return stop.value.code, captured.out, captured.err
 
 
 @pytest.fixture(scope="module")

@@ -5,7 +5,6 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from test_c_support import emit_c, need
 
 from nodecast.compiler import emit, reference
 from nodecast.compiler.verify import format_table, verify
@@ -13,6 +12,7 @@ from nodecast.compiler.verify.compare import _outside_fixed, compare_family
 from nodecast.compiler.verify.probes import ProbeFamily
 from nodecast.compiler.verify.runners import c as c_runner
 from nodecast.compiler.verify.runners import onnx as onnx_runner
+from tests.compiler.c_support import emit_c, need
 
 
 @pytest.fixture(scope="module")

@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from nodecast.compiler import emit
-from nodecast.compiler.numerics import UNIT_ROUNDOFF
+from nodecast.compiler.typical_error import UNIT_ROUNDOFF
 from nodecast.compiler.verify import format_table, verify
 
 

@@ -22,9 +22,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from nodecast.compiler import emit, numerics
+from nodecast.compiler import emit
 from nodecast.compiler.activations import get_activation
 from nodecast.compiler.bundle import Bundle
+from nodecast.compiler.domain_points import domain_probes
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.reference import hidden_layer
 from nodecast.compiler.verify import verify
@@ -40,7 +41,7 @@ SEEDS = (0, 1, 2)
 
 def most_influential_weight(net):
     """(node j, output o) maximising |beta_jo| * (max h_j - min h_j) over the domain's probes."""
-    H = get_activation(net.activation).function(hidden_layer(net, numerics.domain_probes(net)))
+    H = get_activation(net.activation).function(hidden_layer(net, domain_probes(net)))
     influence = np.abs(net.output_weights) * (H.max(axis=0) - H.min(axis=0))[:, None]
     j, o = np.unravel_index(np.argmax(influence), influence.shape)
     return int(j), int(o), float(np.max(np.abs(H[:, j])))

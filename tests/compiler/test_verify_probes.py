@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from nodecast.compiler import domain_points
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import Network
 from nodecast.compiler.verify import probes
@@ -48,7 +49,7 @@ def test_all_corners_up_to_ten_features_and_a_sample_beyond():
     assert len({tuple(row) for row in probes.corners(net10, 0)}) == 2**10
     net12 = _net(12)
     sample = probes.corners(net12, seed=3)
-    assert sample.shape == (probes.MAX_CORNERS, 12)
+    assert sample.shape == (domain_points.MAX_CORNERS, 12)
     on_a_bound = (sample == net12.domain_low) | (sample == net12.domain_high)
     assert on_a_bound.all()
     assert not np.array_equal(sample, probes.corners(net12, seed=4))

@@ -117,7 +117,7 @@ def test_unsupported_encoders_are_refused(frame):
 
 
 def test_select_takes_categorical_columns(tmp_path):
-    from nodecast.compiler.cli import main
+    from nodecast.cli import main
 
     rng = np.random.default_rng(3)
     rows = 400

@@ -112,8 +112,8 @@ def test_cli_select_classification_refit_equals_train_with_the_chosen_options(tm
 
     from sklearn.datasets import load_breast_cancer
 
+    from nodecast.cli import main
     from nodecast.compiler.bundle import load
-    from nodecast.compiler.cli import main
     from nodecast.compiler.csvio import write_table
 
     data = load_breast_cancer()
@@ -139,7 +139,7 @@ def test_cli_select_classification_refit_equals_train_with_the_chosen_options(tm
 
 
 def test_cli_select_classification_refuses_a_precision_budget(tmp_path, capsys):
-    from nodecast.compiler.cli import main
+    from nodecast.cli import main
 
     (tmp_path / "d.csv").write_text("a,b\n" + "".join(f"{i},{i % 2}\n" for i in range(30)))
     with pytest.raises(SystemExit) as done:

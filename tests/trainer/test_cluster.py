@@ -13,7 +13,7 @@ distributed = pytest.importorskip("distributed")
 da = pytest.importorskip("dask.array")
 dd = pytest.importorskip("dask.dataframe")
 
-from nodecast.compiler.cli import main  # noqa: E402
+from nodecast.cli import main  # noqa: E402
 from nodecast.compiler.csvio import read_table  # noqa: E402
 from nodecast.compiler.errors import NodecastError  # noqa: E402
 from nodecast.trainer import frames  # noqa: E402

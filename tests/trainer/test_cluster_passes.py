@@ -12,7 +12,7 @@ import pytest
 dask = pytest.importorskip("dask")
 pytest.importorskip("pandas")
 
-from nodecast.compiler.cli import main  # noqa: E402
+from nodecast.cli import main  # noqa: E402
 from nodecast.compiler.csvio import read_table  # noqa: E402
 from nodecast.trainer import distributed, frames  # noqa: E402
 from nodecast.trainer.training import TrainingJob, train  # noqa: E402

@@ -8,18 +8,10 @@ import json
 
 import numpy as np
 import pytest
-from franke_function import franke, franke_rows
 
-from nodecast.compiler.cli import main
 from nodecast.compiler.csvio import write_table
-
-
-def run(*args) -> int:
-    try:
-        main([str(a) for a in args])
-    except SystemExit as exc:
-        return int(exc.code or 0)
-    return 0
+from tests.helpers import cli_status
+from tests.trainer.franke_function import franke, franke_rows
 
 
 @pytest.fixture(scope="module")
@@ -38,7 +30,7 @@ def test_franke_value_at_a_known_point():
 
 def test_data_driven_beats_the_fixed_interval_at_every_node_count(franke_csv, capsys):
     report = franke_csv.parent / "compare.json"
-    assert run("compare", franke_csv, "--target", "f", "--method", "fixed-interval,data-driven",
+    assert cli_status("compare", franke_csv, "--target", "f", "--method", "fixed-interval,data-driven",
                "--folds", 10, "--report", report, "--plot", franke_csv.parent / "c.png") == 0
     table = capsys.readouterr().out.splitlines()
     assert table[1].split()[:2] == ["1", "data-driven"]
@@ -56,7 +48,7 @@ def test_data_driven_beats_the_fixed_interval_at_every_node_count(franke_csv, ca
 
 def test_each_contender_reports_its_best_point_and_its_costs(franke_csv, capsys):
     report = franke_csv.parent / "two.json"
-    assert run("compare", franke_csv, "--target", "f", "--method", "slope-angle,interval",
+    assert cli_status("compare", franke_csv, "--target", "f", "--method", "slope-angle,interval",
                "--angle-ranges", "0:70,0:85", "--intervals", "1,10", "--nodes", "20,40",
                "--folds", 4, "--report", report) == 0
     document = json.loads(report.read_text())
@@ -73,7 +65,7 @@ def test_each_contender_reports_its_best_point_and_its_costs(franke_csv, capsys)
 
 
 def test_cli_contenders_are_the_trainers():
-    from nodecast.compiler.cli_compare import CONTENDERS
+    from nodecast.cli.compare import CONTENDERS
     from nodecast.trainer import comparison
 
     assert CONTENDERS == comparison.CONTENDERS
@@ -93,7 +85,7 @@ def test_bad_input_is_one_line_and_exit_2(franke_csv, capsys, args, words):
     base = {"--target": "f", "--nodes": "10", "--folds": "3"}
     for key, value in zip(args[::2], args[1::2], strict=True):
         base[key] = value
-    code = run("compare", franke_csv, *[item for pair in base.items() for item in pair])
+    code = cli_status("compare", franke_csv, *[item for pair in base.items() for item in pair])
     err = capsys.readouterr().err.strip()
     assert code == 2 and words in err and len(err.splitlines()) == 1, err
 
@@ -101,7 +93,7 @@ def test_bad_input_is_one_line_and_exit_2(franke_csv, capsys, args, words):
 @pytest.mark.slow
 def test_every_generator_ranked_and_data_driven_above_the_fixed_interval(franke_csv, capsys):
     report = franke_csv.parent / "all.json"
-    assert run("compare", franke_csv, "--target", "f", "--report", report) == 0
+    assert cli_status("compare", franke_csv, "--target", "f", "--report", report) == 0
     document = json.loads(report.read_text())
     ranking = document["ranking"]
     assert sorted(ranking) == sorted(["data-driven", "fixed-interval", "interval",
@@ -117,7 +109,7 @@ def test_a_choice_at_the_end_of_its_grid_is_marked(franke_csv, capsys):
     # Franke's function has peaks about a tenth of the box wide: the fixed interval's gentlest
     # values cannot follow them: among u = 0.01, 0.02, 0.05 the largest wins (measured), the end.
     report = franke_csv.parent / "edge.json"
-    assert run("compare", franke_csv, "--target", "f", "--method", "interval", "--intervals",
+    assert cli_status("compare", franke_csv, "--target", "f", "--method", "interval", "--intervals",
                "0.01,0.02,0.05", "--nodes", "30", "--folds", 3, "--report", report) == 0
     (contender,) = json.loads(report.read_text())["contenders"]
     assert contender["chosen"]["settings"]["interval"] == 0.05

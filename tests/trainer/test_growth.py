@@ -88,7 +88,7 @@ def test_growth_that_keeps_nothing_is_a_clear_error(friedman):
 def test_cli_grow_writes_the_curve(friedman, tmp_path):
     import json
 
-    from nodecast.compiler.cli import main
+    from nodecast.cli import main
 
     X, y = friedman
     lines = ["a,b,c,d,e,out"] + [",".join(repr(float(v)) for v in row)

@@ -82,8 +82,8 @@ def test_no_data_beats_the_stated_steepness_bound(rows, features, levels, jitter
 
 
 def test_counts_are_in_the_bundle_and_shown_by_inspect(tmp_path, capsys):
+    from nodecast.cli import main
     from nodecast.compiler.bundle import load
-    from nodecast.compiler.cli import main
 
     X, y = counts_and_one_hot()
     names = ["few", "many", "kind_a", "kind_b", "kind_c", "kind_d", "checked", "gauge"]

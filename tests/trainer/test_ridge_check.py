@@ -90,7 +90,7 @@ def test_too_few_rows_fall_back_to_gcv_alone():
 
 
 def test_train_notes_heavy_tailed_inputs_in_one_line(tmp_path, capsys):
-    from nodecast.compiler.cli import main
+    from nodecast.cli import main
     from nodecast.compiler.csvio import write_table
 
     rng = np.random.default_rng(4)

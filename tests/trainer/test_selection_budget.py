@@ -31,11 +31,12 @@ def _measured_float32_error(bundle) -> float:
     # onnxruntime runs the float32 artifact; IEEE 754 float32 arithmetic is what it measures.
     import onnxruntime
 
-    from nodecast.compiler import emit, numerics, reference
+    from nodecast.compiler import emit, reference
+    from nodecast.compiler.domain_points import domain_probes
 
     (data,) = emit(bundle, "onnx", precision="float32").files.values()
     session = onnxruntime.InferenceSession(data, providers=["CPUExecutionProvider"])
-    X = numerics.domain_probes(bundle.network)
+    X = domain_probes(bundle.network)
     name = session.get_inputs()[0].name
     out = session.run(None, {name: X.astype(np.float32)})[0]
     return float(np.max(np.abs(out.reshape(-1) - reference.predict(bundle.network, X).reshape(-1))))

@@ -9,17 +9,10 @@ import numpy as np
 import pytest
 
 from nodecast.compiler import load
-from nodecast.compiler.cli import main
+from tests.helpers import cli_status
 
 SEARCH = ["--nodes", "20,60", "--neighbors", "default,15", "--ridge", "0,1e-6,1e-2", "--folds", "3"]
 
-
-def run(*args) -> int:
-    try:
-        main([str(a) for a in args])
-    except SystemExit as exc:
-        return int(exc.code or 0)
-    return 0
 
 
 @pytest.fixture(scope="module")
@@ -37,7 +30,7 @@ def table(tmp_path_factory):
 @pytest.fixture(scope="module")
 def selected(table):
     out = table.parent
-    code = run("select", table, "--target", "torque", *SEARCH, "--seed", 5,
+    code = cli_status("select", table, "--target", "torque", *SEARCH, "--seed", 5,
                "--domain", "speed=0:1", "--units", "torque=N*m",
                "-o", out / "m.ncz", "--report", out / "cv.json", "--plot", out / "cv.png")
     assert code == 0
@@ -50,7 +43,7 @@ def test_train_with_the_chosen_options_reproduces_the_arrays(table, selected):
     options = ["--nodes", chosen["nodes"], "--ridge", repr(chosen["ridge"]), "--method",
                chosen["method"], "--slope-scale", repr(settings["slope_scale"]),
                "--neighbors", settings["n_neighbors"] or "default"]
-    assert run("train", table, "--target", "torque", *options, "--seed", 5,
+    assert cli_status("train", table, "--target", "torque", *options, "--seed", 5,
                "--domain", "speed=0:1", "--units", "torque=N*m", "-o", selected / "t.ncz") == 0
     ours, theirs = load(selected / "m.ncz"), load(selected / "t.ncz")
     for name, array in theirs.network.arrays().items():
@@ -66,7 +59,7 @@ def test_report_holds_every_point_and_is_reproducible(table, selected):
     assert all(len(p["fold_rmse"]) == 3 for p in report["points"])
     best = min(report["points"], key=lambda p: p["score"])
     assert best["rmse_mean"] == report["chosen"]["rmse_mean"]
-    assert run("select", table, "--target", "torque", *SEARCH, "--seed", 5, "--domain",
+    assert cli_status("select", table, "--target", "torque", *SEARCH, "--seed", 5, "--domain",
                "speed=0:1", "--units", "torque=N*m", "-o", selected / "again.ncz",
                "--report", selected / "again.json") == 0
     assert (selected / "again.json").read_bytes() == (selected / "cv.json").read_bytes()
@@ -79,7 +72,7 @@ def test_plot_is_a_png(selected):
 
 
 def test_budget_reports_the_estimate(table, selected, capsys):
-    code = run("select", table, "--target", "torque", *SEARCH, "--precision", "float32",
+    code = cli_status("select", table, "--target", "torque", *SEARCH, "--precision", "float32",
                "--tolerance", "0.5", "-o", selected / "b.ncz", "--report", selected / "b.json")
     assert code == 0
     report = json.loads((selected / "b.json").read_text())
@@ -89,7 +82,7 @@ def test_budget_reports_the_estimate(table, selected, capsys):
 
 
 def test_no_point_meeting_the_tolerance_is_exit_2(table, selected, capsys):
-    code = run("select", table, "--target", "torque", *SEARCH, "--precision", "float32",
+    code = cli_status("select", table, "--target", "torque", *SEARCH, "--precision", "float32",
                "--tolerance", "1e-12", "-o", selected / "none.ncz")
     err = capsys.readouterr().err.strip()
     assert code == 2 and "best estimated export error is" in err and len(err.splitlines()) == 1
@@ -111,13 +104,13 @@ def test_bad_input_is_one_line_and_exit_2(table, tmp_path, capsys, args, words):
     for key, value in zip(args[::2], args[1::2], strict=True):
         base[key] = value
     flat = [item for pair in base.items() for item in pair]
-    code = run("select", table, *flat, "-o", tmp_path / "x.ncz")
+    code = cli_status("select", table, *flat, "-o", tmp_path / "x.ncz")
     err = capsys.readouterr().err.strip()
     assert code == 2 and words in err and len(err.splitlines()) == 1, err
 
 
 def test_help_lists_every_option_with_an_example(capsys):
-    assert run("select", "--help") == 0
+    assert cli_status("select", "--help") == 0
     text = capsys.readouterr().out
     for option in ("--nodes", "--neighbors", "--slope-scales", "--ridge", "--folds", "--precision",
                    "--tolerance", "--grow", "--report", "--plot", "--jobs", "Example:"):

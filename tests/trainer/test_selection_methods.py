@@ -8,20 +8,12 @@ import json
 
 import numpy as np
 import pytest
-from franke_function import franke, franke_rows
 
 from nodecast.compiler import load
-from nodecast.compiler.cli import main
 from nodecast.compiler.csvio import write_table
 from nodecast.trainer import RandomNodeRegressor, select
-
-
-def run(*args) -> int:
-    try:
-        main([str(a) for a in args])
-    except SystemExit as exc:
-        return int(exc.code or 0)
-    return 0
+from tests.helpers import cli_status
+from tests.trainer.franke_function import franke, franke_rows
 
 
 def _friedman(rows, noise, seed, features=5):
@@ -46,7 +38,7 @@ def rig(tmp_path_factory):
 ])
 def test_train_reproduces_the_chosen_generator(rig, method, grid, train_option):
     out = rig.parent / method
-    assert run("select", rig, "--target", "torque", "--method", f"{method},data-driven", *grid,
+    assert cli_status("select", rig, "--target", "torque", "--method", f"{method},data-driven", *grid,
                "--nodes", "20,60", "--ridge", "1e-6,1e-2", "--folds", 3, "--seed", 2,
                "--report", f"{out}.json", "-o", f"{out}.ncz") == 0
     report = json.loads(open(f"{out}.json").read())
@@ -59,11 +51,11 @@ def test_train_reproduces_the_chosen_generator(rig, method, grid, train_option):
     text = ":".join(repr(v) for v in value) if isinstance(value, list) else repr(value)
     # train with the generator's best point gives the fold models' draw rule on all rows: rerun
     # select restricted to that point and compare its bundle with train's, array for array
-    assert run("select", rig, "--target", "torque", "--method", method,
+    assert cli_status("select", rig, "--target", "torque", "--method", method,
                f"--{param.replace('_', '-')}s", text, "--nodes",
                best[method]["nodes"], "--ridge", repr(best[method]["ridge"]), "--folds", 3,
                "--seed", 2, "-o", f"{out}-one.ncz") == 0
-    assert run("train", rig, "--target", "torque", "--method", method, option, text, "--nodes",
+    assert cli_status("train", rig, "--target", "torque", "--method", method, option, text, "--nodes",
                best[method]["nodes"], "--ridge", repr(best[method]["ridge"]), "--seed", 2,
                "-o", f"{out}-train.ncz") == 0
     selected, trained = load(f"{out}-one.ncz"), load(f"{out}-train.ncz")
@@ -106,7 +98,7 @@ def test_default_k_and_s_are_the_gcv_best_candidate_and_reproducible():
 
 
 def test_train_says_what_it_picked(rig, capsys):
-    assert run("train", rig, "--target", "torque", "--nodes", 40, "-o", rig.parent / "d.ncz") == 0
+    assert cli_status("train", rig, "--target", "torque", "--nodes", 40, "-o", rig.parent / "d.ncz") == 0
     err = capsys.readouterr().err
     bundle = load(rig.parent / "d.ncz")
     k, s = bundle.metadata["diagnostics"]["neighbors"], bundle.metadata["layer_choice"]["slope_scale"]

@@ -11,8 +11,8 @@ import pytest
 from scipy import stats
 from scipy.spatial.distance import cdist
 
+from nodecast.cli import main
 from nodecast.compiler.bundle import to_bytes
-from nodecast.compiler.cli import main
 from nodecast.compiler.csvio import read_table
 from nodecast.compiler.errors import NodecastError
 from nodecast.trainer.anchors import draw_anchors

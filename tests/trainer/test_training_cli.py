@@ -8,8 +8,9 @@ import json
 import numpy as np
 import pytest
 
+from nodecast.cli import main
 from nodecast.compiler import load
-from nodecast.compiler.cli import main
+from tests.helpers import write_csv
 
 
 def _run(capsys, *args):
@@ -21,11 +22,6 @@ def _run(capsys, *args):
         code = exc.code
     return code, capsys.readouterr().err
 
-
-def _csv(path, header, rows):
-    path.write_text(",".join(header) + "\n" + "".join(",".join(map(str, r)) + "\n" for r in rows),
-                    encoding="utf-8")
-    return path
 
 
 @pytest.fixture
@@ -44,7 +40,7 @@ def good_rows():
     ("constant target", lambda rows: [[a, b, 3.5] for a, b, _ in rows], ["single value", "3.5"]),
 ])
 def test_bad_data_is_exit_2_with_one_line(tmp_path, capsys, good_rows, case, edit, words):
-    data = _csv(tmp_path / "d.csv", ["a", "b", "y"], edit(good_rows))
+    data = write_csv(tmp_path / "d.csv", ["a", "b", "y"], edit(good_rows))
     code, err = _run(capsys, "train", data, "--target", "y", "-o", tmp_path / "m.ncz")
     assert code == 2, err
     assert len(err.strip().splitlines()) == 1 and "Traceback" not in err
@@ -59,7 +55,7 @@ def test_bad_data_is_exit_2_with_one_line(tmp_path, capsys, good_rows, case, edi
     ("c=0:1", ["unknown feature", "'c'"]),
 ])
 def test_a_domain_that_cannot_hold_the_data_is_exit_2(tmp_path, capsys, good_rows, domain, words):
-    data = _csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
+    data = write_csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
     code, err = _run(capsys, "train", data, "--target", "y", "--domain", domain,
                      "-o", tmp_path / "m.ncz")
     assert code == 2, err
@@ -72,14 +68,14 @@ def test_a_box_that_holds_no_row_is_exit_2_even_if_each_range_holds_some(tmp_pat
     first_a, first_b = np.argmin(rows[:, 0]), np.argmin(rows[:, 1])
     assert first_a != first_b  # so the corner box below holds no row, each range one
     domain = f"a=0:{float(rows[first_a, 0])!r},b=0:{float(rows[first_b, 1])!r}"
-    data = _csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
+    data = write_csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
     code, err = _run(capsys, "train", data, "--target", "y", "--domain", domain,
                      "-o", tmp_path / "m.ncz")
     assert code == 2 and "contains none of the 120 rows" in err, err
 
 
 def test_rows_outside_a_declared_domain_are_reported_not_dropped(tmp_path, capsys, good_rows):
-    data = _csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
+    data = write_csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
     code, err = _run(capsys, "train", data, "--target", "y", "--domain", "a=0:0.5",
                      "--units", "a=m,y=K", "-o", tmp_path / "m.ncz")
     assert code == 0, err
@@ -92,7 +88,7 @@ def test_rows_outside_a_declared_domain_are_reported_not_dropped(tmp_path, capsy
 
 
 def test_more_nodes_than_memory_allows_is_refused_with_the_estimate(tmp_path, capsys, good_rows):
-    data = _csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
+    data = write_csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
     code, err = _run(capsys, "train", data, "--target", "y", "--nodes", 3_000_000,
                      "-o", tmp_path / "m.ncz")
     assert code == 2 and "GiB" in err and "use fewer nodes" in err, err
@@ -101,13 +97,13 @@ def test_more_nodes_than_memory_allows_is_refused_with_the_estimate(tmp_path, ca
 
 @pytest.mark.parametrize("value", ["-1", "lots", "nan"])
 def test_a_bad_ridge_is_exit_2(tmp_path, capsys, good_rows, value):
-    data = _csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
+    data = write_csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
     code, err = _run(capsys, "train", data, "--target", "y", "--ridge", value, "-o", tmp_path / "m.ncz")
     assert code == 2 and "--ridge" in err, err
 
 
 def test_a_classifier_needs_two_classes(tmp_path, capsys, good_rows):
-    data = _csv(tmp_path / "d.csv", ["a", "b", "label"], [[a, b, "cold"] for a, b, _ in good_rows])
+    data = write_csv(tmp_path / "d.csv", ["a", "b", "label"], [[a, b, "cold"] for a, b, _ in good_rows])
     code, err = _run(capsys, "train", data, "--target", "label", "--task", "classification",
                      "-o", tmp_path / "m.ncz")
     assert code == 2 and "single class" in err, err
@@ -119,7 +115,7 @@ def test_inspect_shows_saturation_over_the_training_data(tmp_path, capsys, good_
     from nodecast.compiler import reference
     from nodecast.compiler.activations import get_activation
 
-    data = _csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
+    data = write_csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
     assert _run(capsys, "train", data, "--target", "y", "--method", "interval", "--interval", 40,
                 "--nodes", 60, "-o", tmp_path / "m.ncz")[0] == 0
     main(["inspect", str(tmp_path / "m.ncz"), "--json"])

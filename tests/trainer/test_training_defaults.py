@@ -7,8 +7,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from nodecast.cli import main
 from nodecast.compiler import emit, load, reference
-from nodecast.compiler.cli import main
 from nodecast.compiler.csvio import write_table
 
 
@@ -20,7 +20,7 @@ def _friedman(rows, noise, seed):
 
 
 def _demo(rows, noise, seed):
-    from nodecast.compiler import demo
+    from nodecast.cli import demo_scenario as demo
 
     return demo.make_readings(rows, seed, noise=0.3 if noise else 0.0)
 

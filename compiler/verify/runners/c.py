@@ -16,11 +16,10 @@ import numpy as np
 
 from nodecast.compiler import toolchain
 from nodecast.compiler.errors import NodecastError
-from nodecast.compiler.version import __version__
+from nodecast.compiler.verify.runners.c_harness import IO_TYPES, harness_source
 
 EMULATED_CPUS = ("cortex-m3", "cortex-m4")
 _MACRO = re.compile(r"^#define ([A-Z_][A-Z0-9_]*) +(\S+)", re.M)
-_IO_TYPES = {"float32": "float", "float64": "double", "q15": "int16_t", "q31": "int32_t"}
 
 
 def _find_header(path: Path) -> Path:
@@ -69,26 +68,10 @@ def describe(path: Path, emulate: str | None = None, **_options) -> dict:
                                    if f"ERROR_BOUND_{o}" in macros] or None
     except (KeyError, ValueError) as exc:
         raise NodecastError(f"{header} lacks or garbles the provenance macro {exc}") from None
-    if info["precision"] not in _IO_TYPES:
+    if info["precision"] not in IO_TYPES:
         raise NodecastError(f"{header} declares an unknown precision {info['precision']!r}")
     return info
 
-
-def harness_source(info: dict, rows: np.ndarray | None = None, timed: bool = False) -> bytes:
-    """The harness main for ``info``'s artifact: rows from stdin, or compiled in (semihosted);
-    ``timed`` (semihosted only) prints SysTick ticks per call instead of the outputs."""
-    from nodecast.compiler.backends.c_format import array_body
-    from nodecast.templates import render
-
-    bits = [] if rows is None else np.ascontiguousarray(rows, dtype="<f8").view("<u8").ravel()
-    context = {"version": __version__, "prefix": info["prefix"], "PREFIX": info["prefix"].upper(),
-               "precision": info["precision"], "io_type": _IO_TYPES[info["precision"]],
-               "n_inputs": info["n_inputs"], "semihosted": rows is not None,
-               "n_categorical": info.get("n_categorical", 0),
-               "timed": timed and rows is not None,
-               "row_count": 0 if rows is None else int(rows.shape[0]),
-               "rows": array_body([f"UINT64_C(0x{int(b):016x})" for b in bits]) or "    0,"}
-    return render("harness", "main.c.j2", **context).encode("ascii")
 
 
 def parse_output(text: str, n_rows: int, info: dict) -> np.ndarray:

@@ -16,7 +16,7 @@ import numpy as np
 from nodecast.compiler import toolchain
 from nodecast.compiler.backends.c_board import board_files
 from nodecast.compiler.errors import NodecastError
-from nodecast.compiler.verify.runners.c import harness_source
+from nodecast.compiler.verify.runners.c_harness import harness_source
 
 QEMU = "qemu-system-arm"
 MACHINES = {"cortex-m3": "mps2-an385", "cortex-m4": "mps2-an386"}

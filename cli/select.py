@@ -14,8 +14,9 @@ from functools import partial
 
 import click
 
-from nodecast.compiler.cli_grid import grid_options, layer_values, parse_methods
+from nodecast.cli.grid import grid_options, layer_values, parse_methods
 from nodecast.compiler.errors import NodecastError
+from nodecast.compiler.targets import PRECISIONS
 
 EXAMPLE = ("nodecast select readings.csv --target heatsink_temp "
            "--domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,supply_voltage=22:26 "
@@ -51,7 +52,7 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp "
 @click.option("--score", "scoring", type=click.Choice(["accuracy", "log-loss"]),
               default="accuracy", show_default=True,
               help="Classification: the cross-validated score that ranks the grid points.")
-@click.option("--precision", type=click.Choice(["float32", "float64", "q31", "q15"]),
+@click.option("--precision", type=click.Choice(PRECISIONS),
               help="Target precision: report the chosen model's estimated export error in it.")
 @click.option("--tolerance", type=click.FloatRange(min=0, min_open=True),
               help="With --precision: reject grid points whose estimated export error exceeds "
@@ -95,17 +96,17 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     """Choose nodes, the generator and its settings, and ridge by k-fold cross-validation on
     DATA.csv (a classifier: by accuracy or log-loss), refit the choice on all rows and save it
     as a bundle."""
+    from nodecast.cli.parsing import check_units, parse_domain, parse_list, parse_units
+    from nodecast.cli.progress import Progress, run_interruptible
     from nodecast.compiler.bundle import save
-    from nodecast.compiler.cli import check_units, parse_domain, parse_list, parse_units
     from nodecast.compiler.csvio import read_table
     from nodecast.compiler.files import check_outputs
-    from nodecast.compiler.progress import Progress, run_interruptible
     from nodecast.compiler.provenance import file_record, with_training_data
     from nodecast.trainer.grid import make_grid
     from nodecast.trainer.growth import GrowthSettings
     from nodecast.trainer.method_grid import layer_grid
     from nodecast.trainer.selection import SearchSettings
-    from nodecast.trainer.table_selection import run_selection
+    from nodecast.trainer.selection_run import run_selection
     from nodecast.trainer.training import TrainingJob
 
     check_outputs({"-o": output, "--report": report, "--plot": plot}, {"DATA": data}, overwrite)
@@ -154,13 +155,13 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     if report:
         _write_report(report, result, bundle, overwrite, budget)
     if plot:
-        from nodecast.trainer.selection_plot import plot_search
+        from nodecast.cli.selection_plot import plot_search
 
         net = bundle.network
         plot_search(result, plot, overwrite=overwrite, target=net.target_names[0],
                     unit=net.target_units[0], n_features=net.n_features)
     click.echo(_summary(result, bundle, output), err=True)
-    from nodecast.trainer.selection_plot import edge_hints
+    from nodecast.cli.selection_plot import edge_hints
 
     for hint in edge_hints(result):
         click.echo(f"nodecast: hint: {hint}", err=True)

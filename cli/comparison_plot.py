@@ -8,8 +8,8 @@ import io
 
 def plot_comparison(result, path) -> None:
     """Write the PNG of ``result`` (a ComparisonResult) to ``path``."""
+    from nodecast.cli.selection_plot import _pyplot
     from nodecast.compiler.files import write_atomic
-    from nodecast.trainer.selection_plot import _pyplot
 
     plt = _pyplot()
     figure, ax = plt.subplots(figsize=(7.0, 4.6))

@@ -1,4 +1,4 @@
-"""The built-in demo: an invented cooling-fan controller that estimates a power stage's heatsink
+"""The built-in demo scenario: an invented cooling-fan controller that estimates a power stage's heatsink
 temperature from four sensor readings. The formula and its constants are made up for the demo."""
 
 from __future__ import annotations

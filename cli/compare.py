@@ -8,7 +8,7 @@ import sys
 
 import click
 
-from nodecast.compiler.cli_grid import grid_options, layer_values, parse_methods
+from nodecast.cli.grid import grid_options, layer_values, parse_methods
 
 # the contenders of nodecast.trainer.comparison (the CLI loads the trainer only when it runs)
 CONTENDERS = ("data-driven", "fixed-interval", "interval", "domain-anchored", "slope-angle",
@@ -44,13 +44,13 @@ def compare(data, target, features, domain, method, nodes, neighbors, slope_scal
             angle_ranges, weight_sums, ridge, folds, activation, seed, jobs, report, plot):
     """Tune every hidden-node generator on DATA.csv by k-fold cross-validation (each on its own
     grid, all on the same folds, nodes and ridge values) and rank them by CV error."""
-    from nodecast.compiler.cli import parse_domain, parse_list
-    from nodecast.compiler.cli_select import _jobs
+    from nodecast.cli.parsing import parse_domain, parse_list
+    from nodecast.cli.select import _jobs
     from nodecast.compiler.csvio import read_table
     from nodecast.trainer.comparison import compare as run_compare
     from nodecast.trainer.comparison import contenders, format_table
     from nodecast.trainer.selection import SearchSettings
-    from nodecast.trainer.table_selection import declared_box, finite_columns
+    from nodecast.trainer.selection_run import declared_box, finite_columns
     from nodecast.trainer.training import TrainingJob, feature_columns
 
     job = TrainingJob(targets=parse_list(target, option="--target"),
@@ -69,7 +69,7 @@ def compare(data, target, features, domain, method, nodes, neighbors, slope_scal
     if report:
         _write_report(report, result, names, job.targets)
     if plot:
-        from nodecast.trainer.comparison_plot import plot_comparison
+        from nodecast.cli.comparison_plot import plot_comparison
 
         plot_comparison(result, plot)
 

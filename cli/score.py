@@ -1,6 +1,6 @@
 """The ``nodecast score`` command: metrics of a bundle on labelled data, and gates for CI.
 
-Kept apart from :mod:`nodecast.compiler.cli` (which registers it) so that file stays small; it
+Kept apart from :mod:`nodecast.cli` (which registers it) so that file stays small; it
 imports nothing heavy until it runs.
 """
 

@@ -47,9 +47,9 @@ def diff(old, new, data, max_change, samples, seed, report, junit, overwrite):
     then local ascent); it is a change the two models really make at the input shown. Exit 0 when
     every gate passes (or none is asked for), 1 when one fails, 2 on bad input.
     """
+    from nodecast.cli.diff_report import diff_junit, format_diff_table
     from nodecast.compiler.bundle import load
     from nodecast.compiler.csvio import read_table
-    from nodecast.compiler.diff_report import diff_junit, format_diff_table
     from nodecast.compiler.files import check_outputs, write_atomic
     from nodecast.compiler.model_diff import diff as run_diff
     from nodecast.compiler.verify.report import to_json

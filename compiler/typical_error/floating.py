@@ -1,5 +1,5 @@
-"""Export-error estimates: how far an artifact evaluated in a named precision may stray from the
-float64 reference, on the declared input domain, before anything is exported.
+"""The typical export error in floating point: how far an artifact evaluated in a named precision
+may stray from the float64 reference on the declared input domain, before anything is exported.
 
 Model. Every floating-point operation rounds with a relative error of at most the unit roundoff u
 (IEEE 754: float32 u = 2^-24 = eps/2, float64 u = 2^-53). For a probe x with normalised input u_i,
@@ -22,79 +22,30 @@ coverage of 4 is what a normal error's maximum over some 10^4 probes reaches. An
 implementation's own absolute error (a libm-free approximation, a table) is systematic, so it adds
 linearly as sum_j |beta_j| times that error. Results are scaled into target units.
 
-This is an estimate, not a certificate: ``worst_case`` gives, beside it, the deterministic bound
-(Higham's gamma_k = k u / (1 - k u) on the same terms), which holds for any summation order.
+This is an estimate, not a certificate: the bound each artifact states is certified by
+:mod:`nodecast.compiler.bounds`.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import numpy as np
 
 from nodecast.compiler.activations import get_activation
+from nodecast.compiler.domain_points import domain_probes
 from nodecast.compiler.ir import Network
+from nodecast.compiler.targets import UNIT_ROUNDOFF
+from nodecast.compiler.typical_error.base import COVERAGE, ErrorEstimate
 
-UNIT_ROUNDOFF = {"float64": 2.0**-53, "float32": 2.0**-24}
-COVERAGE = 4.0
 _TERM_ROUNDINGS = 3.0  # stored weight, activation value, product
 _OUTPUT_ROUNDINGS = 2.0  # the folded output bias, the last addition
-_PROBES = 2048
 _BLOCK = 512
 
-
-@dataclass(frozen=True)
-class ErrorEstimate:
-    """Estimated maximum absolute error per output (target units) for one precision."""
-
-    precision: str
-    per_output: tuple[float, ...]
-    worst_case: tuple[float, ...]
-    probes: int
-
-    @property
-    def max_abs(self) -> float:
-        return max(self.per_output)
-
-    def as_dict(self) -> dict:
-        return {"precision": self.precision, "max_abs_error": self.max_abs,
-                "per_output": list(self.per_output), "worst_case_bound": list(self.worst_case),
-                "probes": self.probes}
-
-
-def domain_probes(net: Network, count: int = _PROBES, seed: int = 0) -> np.ndarray:
-    """Deterministic points of the declared domain: scrambled Sobol points plus up to 1024 corners."""
-    from nodecast.compiler.sobol import sobol as sobol_points  # scipy's sequence, 0.6 s faster
-
-    n = net.n_features
-    sobol = sobol_points(n, count, seed)
-    if n <= 10:
-        corners = np.array(np.meshgrid(*[[0.0, 1.0]] * n, indexing="ij")).reshape(n, -1).T
-    else:
-        corners = np.random.default_rng(seed).integers(0, 2, size=(1024, n)).astype(float)
-    unit = np.vstack([sobol, corners])
-    return with_levels(net, net.domain_low + unit * (net.domain_high - net.domain_low))
-
-
-def with_levels(net: Network, X: np.ndarray, shift: int = 0) -> np.ndarray:
-    """Rows ``X`` of numeric features followed by level codes that cycle through every level of
-    every categorical input (row i takes level (i + shift) mod L of each input), so that each level
-    meets points spread through the domain; ``X`` itself when there are no categorical inputs."""
-    if not getattr(net, "n_categorical", 0):
-        return X
-    rows = np.arange(X.shape[0])[:, None] + shift
-    sizes = np.array([len(group) for group in net.categorical_levels])
-    return np.hstack([X, (rows % sizes).astype(np.float64)])
 
 
 def estimate(net: Network, precision: str, X: np.ndarray | None = None,
              activation_error: float = 0.0) -> ErrorEstimate:
     """Estimate the export error of ``net`` evaluated in ``precision`` ("float32" or "float64";
-    "q15" and "q31" go to :func:`nodecast.compiler.fixedpoint_error.estimate`)."""
-    if precision in ("q15", "q31"):
-        from nodecast.compiler import fixedpoint_error
-
-        return fixedpoint_error.estimate(net, precision, X, activation_error)
+    fixed point: :mod:`nodecast.compiler.fixedpoint_error`)."""
     if precision not in UNIT_ROUNDOFF:
         raise ValueError(f"no floating-point estimate for precision {precision!r}; "
                          f"choose one of {sorted(UNIT_ROUNDOFF)}")

@@ -1,0 +1,3 @@
+from nodecast.cli.app import main
+
+main()

@@ -1,0 +1,128 @@
+"""Parsing of the command line's option values, one line of error for a bad value."""
+
+from __future__ import annotations
+
+import click
+
+from nodecast.compiler.errors import NodecastError
+
+EXAMPLES = {  # shown under each command's --help
+    "train": ("nodecast train readings.csv --target heatsink_temp --nodes 300 "
+              "--domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,"
+              "supply_voltage=22:26 -o fan.ncz"),
+    "predict": "nodecast predict fan.ncz readings.csv -o predictions.csv",
+    "inspect": "nodecast inspect fan.ncz --precision float32",
+    "emit": "nodecast emit fan.ncz --to onnx --precision float32 -o fan.onnx",
+    "verify": "nodecast verify fan.ncz fan.onnx --data readings.csv --report verify.json",
+    "demo": "nodecast demo -o demo-out",
+}
+
+
+def _epilog(name: str) -> str:
+    return f"\b\nExample:\n  {EXAMPLES[name]}"
+
+
+def example(name: str) -> str:
+    return f"\b\nExample:\n  {EXAMPLES[name]}"
+
+
+def parse_list(text: str | None, kind=str, option: str = "") -> tuple:
+    if text is None:
+        return ()
+    items = [item.strip() for item in text.split(",") if item.strip()]
+    try:
+        return tuple(kind(item) for item in items)
+    except ValueError:
+        raise NodecastError(f"{option} takes a comma-separated list of {kind.__name__}, "
+                            f"got {text!r}") from None
+
+
+SEED = click.IntRange(0, 2**32 - 1)  # common practice for seeds; exact in every JSON reader
+
+
+def parse_domain(text: str | None) -> dict[str, tuple[float, float]]:
+    domain = {}
+    for item in parse_list(text, option="--domain"):
+        name, sep, bounds = item.rpartition("=")
+        if name in domain:
+            raise NodecastError(f"--domain names {name!r} twice; give each feature once")
+        low, colon, high = bounds.partition(":")
+        try:
+            lo, hi = float(low), float(high)
+        except ValueError:
+            lo = hi = float("nan")
+        if not sep or not colon or not name or not (lo <= hi):
+            raise NodecastError(f"--domain takes NAME=LO:HI with LO <= HI, got {item!r}")
+        domain[name] = (lo, hi)
+    return domain
+
+
+def parse_ridge(text: str) -> float | str:
+    """--ridge: 'auto' or a finite number >= 0."""
+    if text.strip().lower() == "auto":
+        return "auto"
+    try:
+        value = float(text)
+    except ValueError:
+        value = float("nan")
+    if not (value >= 0 and value < float("inf")):
+        raise NodecastError(f"--ridge takes 'auto' or a finite number >= 0, got {text!r}")
+    return value
+
+
+def parse_units(text: str | None) -> dict[str, str]:
+    units = {}
+    for item in parse_list(text, option="--units"):
+        name, sep, unit = item.partition("=")
+        if not sep or not name:
+            raise NodecastError(f"--units takes NAME=UNIT, got {item!r}")
+        if name in units:
+            raise NodecastError(f"--units names {name!r} twice; give each column once")
+        units[name] = unit
+    return units
+
+
+def check_units(units: dict, table, job) -> None:
+    """Refuse --units for a column that is neither a feature nor a target (a typo, most likely)."""
+    from nodecast.trainer.training import feature_columns
+
+    known = set(feature_columns(table.header, job)) | set(job.targets)
+    unknown = [name for name in units if name not in known]
+    if unknown:
+        raise NodecastError(f"--units names {', '.join(map(repr, unknown))}, not a feature or "
+                            "target column")
+
+
+def load_bundle(path):
+    from nodecast.compiler.bundle import load
+
+    return load(path)
+
+
+def parse_neighbors(text: str):
+    if text in ("auto", "default"):
+        return None if text == "default" else "auto"
+    if text.isdigit() and int(text) >= 1:
+        return int(text)
+    raise NodecastError(f"--neighbors takes a positive integer, 'default' or 'auto', got {text!r}")
+
+
+def parse_slope_scale(text: str):
+    if text == "auto":
+        return "auto"
+    try:
+        value = float(text)
+    except ValueError:
+        value = float("nan")
+    if not (0 < value < float("inf")):
+        raise NodecastError(f"--slope-scale takes a finite positive number or 'auto', got {text!r}")
+    return value
+
+
+def parse_range(text: str, option: str) -> tuple[float, float]:
+    from nodecast.cli.grid import parse_pair
+
+    try:
+        return parse_pair(text)
+    except ValueError:
+        raise NodecastError(f"{option} takes LO:HI (two numbers), got {text!r}") from None
