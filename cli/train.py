@@ -53,8 +53,9 @@ from nodecast.cli.parsing import (
               show_default=True)
 @click.option("--seed", type=SEED, default=0, show_default=True)
 @click.option("--validation-fraction", type=click.FloatRange(0, 0.9), default=0.2, show_default=True,
-              help="Share of rows held out for the reported validation error (the bundle's model "
-                   "is fitted on all rows).")
+              help="Share of rows held out (at most about 20,000) for the automatic ridge's check "
+                   "and the reported validation error, from the same fit (the bundle's model is "
+                   "fitted on all rows; 0: none).")
 @click.option("--chunk-rows", type=click.IntRange(min=1),
               help="Read DATA this many rows at a time, in memory that does not grow with the rows "
                    "(default: CSV files up to 32 MiB are read whole, larger ones and Parquet in "
@@ -118,7 +119,7 @@ def _train_scaled(data, source, job, chunk_rows, cluster):
 
     progress = Progress(sys.stderr if sys.stderr.isatty() else None)
     if cluster:
-        from nodecast.trainer.distributed import train_on_cluster
+        from nodecast.trainer.cluster_training import train_on_cluster
 
         return train_on_cluster(data, job, cluster, chunk_rows, progress)
     from nodecast.trainer.streaming import train_streaming

@@ -9,8 +9,9 @@ from nodecast.compiler.errors import NodecastError
 from nodecast.trainer import partition_passes as passes
 from nodecast.trainer.distributed import ClusterRows, figures_on_cluster, fit_on_cluster
 from nodecast.trainer.domain_stats import DomainStats
+from nodecast.trainer.row_stats import RowStats
 from nodecast.trainer.streamed_fit import StreamedFit
-from nodecast.trainer.streaming import RowStats, StreamedTraining
+from nodecast.trainer.streaming import StreamedTraining
 from nodecast.trainer.training import TrainingJob, heavy_tailed, make_estimator, model_bundle
 
 
@@ -37,7 +38,9 @@ class ClusterTraining(StreamedTraining):
         job, f = self.job, (self.job.validation_fraction, self.job.seed)
         model = self._cluster_fit(self.all, "all")
         metrics = {"training": figures_on_cluster(model, job.task, self.rows, "all", *f)}
-        if self.all.rows - self.kept.rows >= 1 and self.kept.rows >= 2:
+        if model.heldout_figures_ is not None:
+            metrics["validation"] = model.heldout_figures_
+        elif self.all.rows - self.kept.rows >= 1 and self.kept.rows >= 2:
             try:
                 check = self._cluster_fit(self.kept, "kept")
             except ValueError:
@@ -82,3 +85,17 @@ class ClusterTraining(StreamedTraining):
             raise NodecastError(f"need at least 2 data rows to train, got {self.n_rows}")
         self._check_targets(first_values)
         self.low, self.high, self.outside = domain.box()
+
+
+def train_on_cluster(data, job, address: str, chunk_rows=None, progress=None):
+    """``nodecast train --cluster``: the bundle of ``train`` on the file ``data``, computed on Dask."""
+    from nodecast.trainer import distributed, frames
+
+    with distributed.connect(address), distributed.worker_failures():
+        try:
+            header, rows = frames.file_partitions(data, job, chunk_rows)
+            rows.progress = progress
+            return ClusterTraining(header, rows, job).run()
+        except (ValueError, TypeError) as exc:  # a cell the workers' reader refused
+            text = str(exc).rpartition("Original Message:")[2]
+            raise NodecastError(f"{data}: {' '.join(text.split())} (read on the cluster)") from None

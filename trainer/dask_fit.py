@@ -29,8 +29,6 @@ def _rows(X, y) -> tuple[ClusterRows, list | None]:
     """Partitions (X, y) and the feature names of a dataframe (None for arrays)."""
     from dask import delayed
 
-    from nodecast.trainer.frames import array_rows
-
     if hasattr(X, "columns"):
         xs = X.to_delayed()
         ys = y.to_delayed() if is_dask_collection(y) else None
@@ -99,3 +97,19 @@ def _as_2d(rows: ClusterRows, classify: bool) -> ClusterRows:
 def _two_d(part, classify):
     X, y = part
     return X, (np.asarray(y) if classify else np.asarray(y, dtype=np.float64).reshape(len(X), -1))
+
+
+def array_rows(X, y) -> ClusterRows:
+    """Partitions of dask arrays X (rows, n) and y (rows,) or (rows, t), split by X's row chunks."""
+    from dask import delayed
+
+    X = X.rechunk({1: -1}) if X.ndim == 2 else X
+    y = y.rechunk({0: X.chunks[0]} if y.ndim == 1 else {0: X.chunks[0], 1: -1})
+    xs, ys = X.to_delayed().ravel(), y.to_delayed().ravel()
+    lengths = list(X.chunks[0]) if not any(np.isnan(X.chunks[0])) else None
+    parts = [delayed(_array_part)(a, b) for a, b in zip(xs, ys, strict=True)]
+    return ClusterRows(parts, lengths)
+
+
+def _array_part(X, y):
+    return np.asarray(X, dtype=np.float64), np.asarray(y)

@@ -199,18 +199,3 @@ def worker_failures():
             raise NodecastError(f"lost the Dask cluster during training ({name}); no bundle was "
                                 "written") from None
         raise
-
-
-def train_on_cluster(data, job, address: str, chunk_rows=None, progress=None):
-    """``nodecast train --cluster``: the bundle of ``train`` on the file ``data``, computed on Dask."""
-    from nodecast.trainer.cluster_training import ClusterTraining
-    from nodecast.trainer.frames import file_partitions
-
-    with connect(address), worker_failures():
-        try:
-            header, rows = file_partitions(data, job, chunk_rows)
-            rows.progress = progress
-            return ClusterTraining(header, rows, job).run()
-        except (ValueError, TypeError) as exc:  # a cell the workers' reader refused
-            text = str(exc).rpartition("Original Message:")[2]
-            raise NodecastError(f"{data}: {' '.join(text.split())} (read on the cluster)") from None

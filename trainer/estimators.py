@@ -16,6 +16,7 @@ from sklearn.utils.validation import check_is_fitted, validate_data
 
 from nodecast.compiler.activations import get_activation
 from nodecast.trainer import layer_choice, ridge_choice, solvers
+from nodecast.trainer.check_fold import fold_blocks
 from nodecast.trainer.generators import GENERATORS
 from nodecast.trainer.generators.slope_angle import DEFAULT_ANGLES
 from nodecast.trainer.generators.weight_sum import DEFAULT_SUMS
@@ -42,53 +43,6 @@ def _fit_dask(estimator, X, y, classify: bool):
     return fit_dask(estimator, X, y, classify)
 
 
-def fold_blocks(blocks, make_design, checked=None):
-    """(factor, check) from (U block, T block) pairs in row order: the solver's factor of the
-    designs [1, H] (``make_design``, a :class:`~nodecast.trainer.hidden.DesignMaker`) of all rows
-    and, for the ``checked`` rows (a :class:`~nodecast.trainer.ridge_choice.CheckRows`, or None),
-    the held-out check's data. The check rows are folded in after all the others, whatever the
-    ridge, so that giving the ridge "auto" chose reproduces the model bit for bit."""
-    rest, design, targets = fold_outside_check(blocks, make_design, checked)
-    if rest is None:
-        raise ValueError("no rows to fit outside the held-out check rows")
-    if checked is None:
-        return rest, None
-    check = ridge_choice.HeldOut(rest, design, targets)
-    return solvers.accumulate_designs([(design, targets)], start=rest), check
-
-
-def fold_outside_check(blocks, make_design, checked=None):
-    """(factor of the rows outside the check set or None where there are none, the check rows'
-    designs, their targets) from (U block, T block) pairs in row order. Within a block the rows
-    outside the check set come first, in row order, so that they are a view of the design, not a
-    copy. The blocks may come from memory, from chunks regrouped into the same blocks, or from
-    one partition."""
-    held, held_targets = [], []
-
-    def designs():
-        for U, T in blocks:
-            rest = U.shape[0]
-            if checked is not None:
-                rows = checked.mask(U)
-                rest -= int(np.count_nonzero(rows))
-                if rest < U.shape[0]:
-                    order = np.concatenate([np.flatnonzero(~rows), np.flatnonzero(rows)])
-                    U, T = U[order], T[order]
-            D = make_design(U)
-            held.append(D[rest:].copy())
-            held_targets.append(T[rest:])
-            yield D[:rest], T[:rest]
-
-    try:
-        factor = solvers.accumulate_designs(designs())
-    except ValueError:  # no rows outside the check set
-        factor = None
-    width = make_design.buffer.shape[1]
-    design = np.concatenate(held) if held else np.empty((0, width))
-    targets = np.concatenate(held_targets) if held_targets else None
-    return factor, design, targets
-
-
 def _is_count(value, minimum: int = 1) -> bool:
     return isinstance(value, (int, np.integer)) and not isinstance(value, bool) and value >= minimum
 
@@ -100,7 +54,8 @@ def _is_positive(value) -> bool:
 class _RandomNodeBase(BaseEstimator):
     def __init__(self, n_nodes=200, method="data-driven", n_neighbors="auto", slope_scale="auto",
                  ridge=DEFAULT_RIDGE, activation="logistic", interval=1.0, domain=None,
-                 random_state=None, angle_range=DEFAULT_ANGLES, weight_sum=DEFAULT_SUMS):
+                 random_state=None, angle_range=DEFAULT_ANGLES, weight_sum=DEFAULT_SUMS,
+                 check_fraction=ridge_choice.CHECK_FRACTION):
         self.n_nodes = n_nodes
         self.method = method
         self.n_neighbors = n_neighbors
@@ -112,6 +67,7 @@ class _RandomNodeBase(BaseEstimator):
         self.random_state = random_state
         self.angle_range = angle_range
         self.weight_sum = weight_sum
+        self.check_fraction = check_fraction
 
     def _check_params(self) -> None:
         if self.method not in GENERATORS:
@@ -128,6 +84,10 @@ class _RandomNodeBase(BaseEstimator):
         if not (self.slope_scale == "auto" or _is_positive(self.slope_scale)):
             raise ValueError(f"slope_scale must be 'auto' or a finite positive number, got "
                              f"{self.slope_scale!r}")
+        if not (isinstance(self.check_fraction, (int, float, np.number))
+                and 0 <= self.check_fraction < 1):
+            raise ValueError(f"check_fraction must be a number from 0 to below 1, got "
+                             f"{self.check_fraction!r}")
         if not _is_positive(self.interval):
             raise ValueError(f"interval must be a finite positive number, got {self.interval!r}")
         if not valid_angles(self.angle_range):
@@ -175,6 +135,8 @@ class _RandomNodeBase(BaseEstimator):
         else:
             self.ridge_, self.ridge_choice_ = float(self.ridge), {"rule": "given"}
         self.coef_, self.intercept_ = solvers.solve(factor, self.ridge_)
+        self.heldout_figures_ = None if check is None else ridge_choice.heldout_figures(
+            check, self.ridge_, self.output_scale_, hasattr(self, "classes_"))
 
     def _draw_and_factor(self, U, T, rng, activation):
         """The hidden layer, the output layer's factor and the pre-activation ranges; data-driven
@@ -189,7 +151,7 @@ class _RandomNodeBase(BaseEstimator):
                 angle_range=tuple(self.angle_range), weight_sum=tuple(self.weight_sum))
             # the rows are folded in the same order whatever the ridge, so that giving the ridge
             # "auto" chose reproduces the model bit for bit
-            checked = ridge_choice.check_rows(U, rng)
+            checked = ridge_choice.check_rows(U, rng, float(self.check_fraction))
             with solvers.single_blas_thread():  # threaded products round differently: one
                 # thread, the same bundle whatever the machine (docs/reliability.md)
                 return (layer,) + self._accumulate(layer, U, T, activation, checked)
@@ -290,6 +252,10 @@ default "data-driven"
         The declared input box, one value per feature each (None: the training data's range).
         Rows outside it are counted in ``diagnostics_``, not dropped.
     random_state : int, RandomState instance or None, default None
+    check_fraction : float, default 0.2
+        Share of the rows held out (at most about 20,000, each chosen by a hash of its inputs) for
+        the automatic ridge's check; the figures of the check are ``heldout_figures_``, the
+        validation figures of ``nodecast train``. 0: no check (the ridge by GCV alone).
 
     Attributes
     ----------
@@ -305,6 +271,10 @@ default "data-driven"
         chosen (the k used is ``diagnostics_["neighbors"]``).
     diagnostics_ : dict of counts (degenerate neighbourhoods, constant features, rows outside the
         domain), see docs/training.md.
+    heldout_figures_ : dict or None, the model with ``ridge_`` fitted to the rows outside the check
+        set and scored on the check rows (RMSE and largest error per output, or accuracy; rows);
+        None without a check. Its hidden layer, k, s and ridge were chosen with all rows, the check
+        rows included (docs/training.md).
 """
 
 

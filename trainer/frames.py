@@ -21,28 +21,12 @@ def _frame_part(frame, features, targets, classify):
     return X, frame[list(targets)].to_numpy(dtype=np.float64)
 
 
-def _array_part(X, y):
-    return np.asarray(X, dtype=np.float64), np.asarray(y)
-
-
 def frame_rows(frame, features, targets, classify: bool) -> ClusterRows:
     """Partitions of a dask dataframe, in order."""
     from dask import delayed
 
     return ClusterRows([delayed(_frame_part)(part, features, targets, classify)
                         for part in frame.to_delayed()])
-
-
-def array_rows(X, y) -> ClusterRows:
-    """Partitions of dask arrays X (rows, n) and y (rows,) or (rows, t), split by X's row chunks."""
-    from dask import delayed
-
-    X = X.rechunk({1: -1}) if X.ndim == 2 else X
-    y = y.rechunk({0: X.chunks[0]} if y.ndim == 1 else {0: X.chunks[0], 1: -1})
-    xs, ys = X.to_delayed().ravel(), y.to_delayed().ravel()
-    lengths = list(X.chunks[0]) if not any(np.isnan(X.chunks[0])) else None
-    parts = [delayed(_array_part)(a, b) for a, b in zip(xs, ys, strict=True)]
-    return ClusterRows(parts, lengths)
 
 
 def _exact_floats() -> dict:

@@ -12,11 +12,12 @@ import copy
 import numpy as np
 
 from nodecast.trainer import solvers
+from nodecast.trainer.check_fold import fold_outside_check
 from nodecast.trainer.domain_stats import DomainStats
-from nodecast.trainer.estimators import fold_outside_check
 from nodecast.trainer.hidden import DesignMaker, PreactivationRange, block_bounds
 from nodecast.trainer.metrics import MetricSums
 from nodecast.trainer.row_hash import held_out
+from nodecast.trainer.row_stats import RowStats, check_finite_from
 from nodecast.trainer.streamed_fit import StreamedFit
 
 
@@ -37,13 +38,11 @@ def count(part) -> int:
 def stats(part, first: int, features, targets, declared, classify: bool, fraction: float,
           seed: int):
     """(DomainStats, RowStats of all rows, RowStats of the kept rows, first target row or None)."""
-    from nodecast.trainer.streaming import RowStats, _check_finite_from
-
     X, Y = part
     domain = DomainStats(features, declared)
     domain.update(first, X)
     if not classify:
-        _check_finite_from(first, Y, targets, "target")
+        check_finite_from(first, Y, targets, "target")
     every, kept = RowStats(), RowStats()
     every.update(Y, Y if classify else None)
     keep = ~held_out(first, X.shape[0], fraction, seed)

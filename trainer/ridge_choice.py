@@ -66,28 +66,35 @@ class CheckRows:
         return below(content_hash(U, self.key), self.fraction)
 
 
-def check_plan(n_rows: int, rng: np.random.RandomState) -> CheckRows:
-    """The check's hash key (drawn from ``rng``) and fraction: a fifth of the rows, at most
+def enough_rows(n_rows: int, fraction: float = CHECK_FRACTION) -> bool:
+    """Whether ``n_rows`` rows are enough for a check set of ``fraction`` of them (at least
+    ``MIN_CHECK_ROWS`` intended check rows); decided before any draw."""
+    return min(int(fraction * n_rows), CHECK_ROWS) >= MIN_CHECK_ROWS
+
+
+def check_plan(n_rows: int, rng: np.random.RandomState, fraction: float = CHECK_FRACTION) -> CheckRows:
+    """The check's hash key (drawn from ``rng``) and fraction: ``fraction`` of the rows, at most
     ``CHECK_ROWS`` (about: each distinct row is drawn on its own)."""
     key = int(rng.randint(2**62, dtype=np.int64))
-    return CheckRows(key, min(CHECK_FRACTION, CHECK_ROWS / n_rows))
+    return CheckRows(key, min(fraction, CHECK_ROWS / n_rows))
 
 
-def check_usable(n_check: int, n_rows: int) -> bool:
+def check_usable(n_check: int, n_rows: int, fraction: float = CHECK_FRACTION) -> bool:
     """Whether a check set of ``n_check`` of ``n_rows`` rows is used: at least ``MIN_CHECK_ROWS``,
     leaving at least 2 rows to fit, and at most twice the intended count (a large group of equal
     rows drawn into it would hold out much of the data: GCV alone then)."""
-    intended = min(CHECK_FRACTION * n_rows, CHECK_ROWS)
+    intended = min(fraction * n_rows, CHECK_ROWS)
     return MIN_CHECK_ROWS <= n_check < n_rows - 1 and n_check <= 2 * intended
 
 
-def check_rows(U: np.ndarray, rng: np.random.RandomState) -> CheckRows | None:
+def check_rows(U: np.ndarray, rng: np.random.RandomState,
+               fraction: float = CHECK_FRACTION) -> CheckRows | None:
     """The check rows of normalised inputs U (rows, n) in memory, or None where too few rows (or
     too many, see :func:`check_usable`) fall in it."""
-    if min(int(CHECK_FRACTION * U.shape[0]), CHECK_ROWS) < MIN_CHECK_ROWS:
+    if not enough_rows(U.shape[0], fraction):
         return None
-    plan = check_plan(U.shape[0], rng)
-    return plan if check_usable(int(plan.mask(U).sum()), U.shape[0]) else None
+    plan = check_plan(U.shape[0], rng, fraction)
+    return plan if check_usable(int(plan.mask(U).sum()), U.shape[0], fraction) else None
 
 
 @dataclass(frozen=True, eq=False)
@@ -195,3 +202,20 @@ def choose(factor, export_error, check: HeldOut | None = None) -> tuple[float, d
                    "gcv_rmse_normalised": float(per_output_rmse[index]),
                    "float32_bound_normalised": float(error)})
     return float(GRID[index]), record
+
+
+def heldout_figures(check: HeldOut, ridge: float, output_scale: np.ndarray, classify: bool) -> dict:
+    """The figures of the model of ``ridge`` fitted to the rows outside the check set, on the check
+    rows: for regression the RMSE and largest error per output in target units, for
+    classification the accuracy (the highest score's class, ties to the first); and the rows."""
+    from nodecast.trainer import solvers
+
+    beta, bias = solvers.solve(check.factor, ridge)
+    predicted = check.design[:, 1:] @ beta + bias
+    rows = int(predicted.shape[0])
+    if classify:
+        right = np.argmax(predicted, axis=1) == np.argmax(check.targets, axis=1)
+        return {"accuracy": float(np.mean(right)), "rows": rows}
+    error = (predicted - check.targets) * output_scale
+    return {"rmse": [float(v) for v in np.sqrt(np.mean(error**2, axis=0))],
+            "max_abs_error": [float(v) for v in np.max(np.abs(error), axis=0)], "rows": rows}

@@ -29,7 +29,8 @@ from sklearn.utils import check_random_state
 
 from nodecast.compiler.activations import get_activation
 from nodecast.trainer import layer_choice, ridge_choice
-from nodecast.trainer.estimators import _normaliser, fold_blocks
+from nodecast.trainer.check_fold import fold_blocks
+from nodecast.trainer.folds import normaliser as _normaliser
 from nodecast.trainer.generators import GENERATORS
 from nodecast.trainer.generators.data_driven import (
     default_neighbors,
@@ -101,9 +102,9 @@ class StreamedFit:
         else:
             raise ValueError(f"method {est.method!r} cannot read its rows chunk by chunk; "
                              f"streamed fits take {['data-driven', *DATA_FREE_METHODS]}")
-        if min(int(ridge_choice.CHECK_FRACTION * n_rows), ridge_choice.CHECK_ROWS) >= \
-                ridge_choice.MIN_CHECK_ROWS:
-            self.checked = ridge_choice.check_plan(n_rows, rng)
+        fraction = float(est.check_fraction)
+        if ridge_choice.enough_rows(n_rows, fraction):
+            self.checked = ridge_choice.check_plan(n_rows, rng, fraction)
         self.stride = global_stride(n_rows)
         self.strided_x, self.strided_u, self.strided_t = [], [], []  # rows 0, stride, 2 stride ..
 
@@ -156,7 +157,8 @@ class StreamedFit:
 
     def finish_anchors(self) -> bool:
         """After pass 1; True where a neighbour pass is needed."""
-        if self.checked is not None and not ridge_choice.check_usable(self.check_count, self.n_rows):
+        if self.checked is not None and not ridge_choice.check_usable(
+                self.check_count, self.n_rows, float(self.estimator.check_fraction)):
             self.checked = None
         if self.plan is None:
             return False

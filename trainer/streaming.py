@@ -9,8 +9,6 @@ one for the neighbours (data-driven) and one for the factor, and one per fit for
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
-
 import numpy as np
 
 from nodecast.compiler.bundle import Bundle
@@ -19,36 +17,9 @@ from nodecast.trainer.hidden import block_bounds
 from nodecast.trainer.metrics import MetricSums
 from nodecast.trainer.progress import Progress
 from nodecast.trainer.row_hash import held_out
+from nodecast.trainer.row_stats import RowStats, check_finite_from
 from nodecast.trainer.streamed_fit import StreamedFit, reblock
 from nodecast.trainer.training import TrainingJob, feature_columns, heavy_tailed, make_estimator, model_bundle
-
-
-@dataclass
-class RowStats:
-    """Counts and ranges of some of the rows: all of them, or those not held out."""
-
-    rows: int = 0
-    y_low: np.ndarray | None = None
-    y_high: np.ndarray | None = None
-    labels: set = field(default_factory=set)
-
-    def update(self, Y, labels) -> None:
-        self.rows += len(Y) if labels is None else len(labels)
-        if labels is not None:
-            self.labels.update(labels.tolist())
-        elif len(Y):
-            low, high = Y.min(axis=0), Y.max(axis=0)
-            self.y_low = low if self.y_low is None else np.minimum(self.y_low, low)
-            self.y_high = high if self.y_high is None else np.maximum(self.y_high, high)
-
-    def merge(self, other: RowStats) -> None:
-        """Take in the stats of other rows (a partition measured elsewhere)."""
-        self.rows += other.rows
-        self.labels |= other.labels
-        if other.y_low is not None:
-            self.y_low = other.y_low if self.y_low is None else np.minimum(self.y_low, other.y_low)
-            self.y_high = other.y_high if self.y_high is None else np.maximum(self.y_high,
-                                                                              other.y_high)
 
 
 class StreamedTraining:
@@ -91,7 +62,9 @@ class StreamedTraining:
         model = self._fit(self.all, "all")
         metrics = {"training": self._metrics(model, "all")}
         held = self.all.rows - self.kept.rows
-        if held >= 1 and self.kept.rows >= 2:
+        if model.heldout_figures_ is not None:
+            metrics["validation"] = model.heldout_figures_
+        elif held >= 1 and self.kept.rows >= 2:
             try:
                 check = self._fit(self.kept, "kept")
             except ValueError:
@@ -134,7 +107,7 @@ class StreamedTraining:
         for first, X, Y in self.chunks("reading"):
             domain.update(first, X)
             if not self.classify:
-                _check_finite_from(first, Y, self.job.targets, "target")
+                check_finite_from(first, Y, self.job.targets, "target")
             if first_values is None and len(Y):
                 first_values = Y[0]
             self.all.update(Y, Y if self.classify else None)
@@ -158,14 +131,6 @@ class StreamedTraining:
             if self.all.y_high[j] - self.all.y_low[j] == 0:
                 raise NodecastError(f"target {name!r} holds the single value {first_values[j]!r} "
                                     "in every row; there is nothing to learn")
-
-
-def _check_finite_from(first: int, X: np.ndarray, names, what: str) -> None:
-    bad = ~np.isfinite(X)
-    if bad.any():
-        row, col = np.argwhere(bad)[0]
-        raise NodecastError(f"{what} column {names[col]!r}, data row {first + row + 1}: value "
-                            f"{X[row, col]!r} is not finite; training data must be finite")
 
 
 def train_streaming(source, job: TrainingJob, progress: Progress | None = None) -> Bundle:

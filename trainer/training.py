@@ -132,7 +132,8 @@ def _check_classes(y: np.ndarray, name: str) -> None:
 def make_estimator(job: TrainingJob, low, high):
     cls = RandomNodeClassifier if job.task == "classification" else RandomNodeRegressor
     try:
-        return cls(random_state=job.seed, domain=(low, high), **job.params)
+        return cls(random_state=job.seed, domain=(low, high),
+                   check_fraction=job.validation_fraction, **job.params)
     except TypeError as exc:
         raise NodecastError(f"bad training option: {exc}") from None
 
@@ -169,7 +170,10 @@ def train(table, job: TrainingJob, on_stage=None) -> Bundle:
     except ValueError as exc:
         raise NodecastError(f"cannot train: {' '.join(str(exc).split())}") from None
     metrics = {"training": _metrics(estimator, inputs.X, y, job.task)}
-    metrics.update(_validation(job, low, high, inputs.X, y, on_stage))
+    if estimator.heldout_figures_ is not None:
+        metrics["validation"] = estimator.heldout_figures_
+    else:  # too few rows for the check set: a second, small fit
+        metrics.update(_validation(job, low, high, inputs.X, y, on_stage))
     heavy = heavy_tailed(X[:, : len(numeric)], numeric)
     return model_bundle(job, estimator, features, metrics, int(X.shape[0]), outside, heavy, inputs)
 
@@ -207,7 +211,8 @@ def _check_memory(job: TrainingJob, X: np.ndarray, y: np.ndarray) -> None:
 
 def _validation(job: TrainingJob, low, high, X, y, on_stage=None) -> dict:
     """Metrics of a same-settings fit on the rows not held out (:mod:`nodecast.trainer.row_hash`),
-    measured on the held-out rows."""
+    measured on the held-out rows: for data too small for the ridge's check set, whose figures
+    are the validation figures otherwise."""
     valid = held_out(0, X.shape[0], job.validation_fraction, job.seed)
     n_valid = int(valid.sum())
     if n_valid < 1 or X.shape[0] - n_valid < 2:

@@ -17,7 +17,8 @@ from nodecast.cli import main  # noqa: E402
 from nodecast.compiler.csvio import read_table  # noqa: E402
 from nodecast.compiler.errors import NodecastError  # noqa: E402
 from nodecast.trainer import frames  # noqa: E402
-from nodecast.trainer.distributed import ClusterRows, train_on_cluster  # noqa: E402
+from nodecast.trainer.cluster_training import train_on_cluster  # noqa: E402
+from nodecast.trainer.distributed import ClusterRows  # noqa: E402
 from nodecast.trainer.estimators import RandomNodeClassifier, RandomNodeRegressor  # noqa: E402
 from nodecast.trainer.training import TrainingJob, train  # noqa: E402
 

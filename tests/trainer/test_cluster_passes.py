@@ -14,7 +14,7 @@ pytest.importorskip("pandas")
 
 from nodecast.cli import main  # noqa: E402
 from nodecast.compiler.csvio import read_table  # noqa: E402
-from nodecast.trainer import distributed, frames  # noqa: E402
+from nodecast.trainer import cluster_training, distributed, frames  # noqa: E402
 from nodecast.trainer.training import TrainingJob, train  # noqa: E402
 
 
@@ -49,7 +49,7 @@ def test_partition_passes_give_the_single_process_model(tmp_path, synchronous, c
     path = _log(tmp_path / "pump.csv", copies=copies)
     job = TrainingJob(targets=("power",), params=params, seed=7)
     single = train(read_table(path), job)
-    clustered = distributed.train_on_cluster(path, job, "sync")
+    clustered = cluster_training.train_on_cluster(path, job, "sync")
     a, b = single.network, clustered.network
     assert np.array_equal(a.hidden_weights, b.hidden_weights)
     assert np.array_equal(a.hidden_biases, b.hidden_biases)

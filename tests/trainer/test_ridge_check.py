@@ -103,3 +103,28 @@ def test_train_notes_heavy_tailed_inputs_in_one_line(tmp_path, capsys):
     lines = capsys.readouterr().err.splitlines()
     notes = [line for line in lines if line.startswith("note: heavy-tailed")]
     assert len(notes) == 1 and "'flow'" in notes[0] and "'level'" not in notes[0]
+
+
+def test_heldout_figures_are_a_refit_on_the_other_rows_scored_on_the_check_rows():
+    # reference: scikit-learn's Ridge (alpha = lambda, intercept free) on the model's own hidden
+    # outputs of the rows outside the check set, scored on the check rows in target units
+    from sklearn.datasets import make_friedman1  # Friedman (1991)
+    from sklearn.linear_model import Ridge
+
+    X, y = make_friedman1(600, n_features=5, noise=0.5, random_state=1)
+    model = RandomNodeRegressor(n_nodes=40, n_neighbors=12, slope_scale=1.0, ridge=1e-2,
+                                random_state=2).fit(X, y)
+    U = (X - model.input_offset_) / model.input_scale_
+    H = 1 / (1 + np.exp(-(U @ model.hidden_weights_.T + model.hidden_biases_)))
+    T = (y - model.output_offset_[0]) / model.output_scale_[0]
+    rng = check_random_state(2)
+    rng.randint(2**31 - 1, size=3)  # the draws of the data-driven layer come first
+    rows = ridge_choice.check_rows(U, rng).mask(U)
+    predicted = Ridge(alpha=1e-2, solver="svd").fit(H[~rows], T[~rows]).predict(H[rows])
+    error = (predicted - T[rows]) * model.output_scale_[0]
+    figures = model.heldout_figures_
+    assert figures["rows"] == rows.sum()
+    assert np.isclose(figures["rmse"][0], np.sqrt(np.mean(error**2)), rtol=1e-8)
+    assert np.isclose(figures["max_abs_error"][0], np.max(np.abs(error)), rtol=1e-8)
+    assert RandomNodeRegressor(n_nodes=40, check_fraction=0.0, random_state=2).fit(
+        X, y).heldout_figures_ is None
