@@ -4,7 +4,8 @@ runs is built from. Prints JSON; asserts nothing.
 Data: an invented sensor log, ROWS rows x 10 features (uniform), target sin(3 x0) + x1 x2 + 0.1 x3,
 written as Parquet (row groups of PARTITION rows). Measured in one run:
 
-* ``streaming``: one fit (all rows, given ridge) by the streamed passes in a subprocess: wall and CPU
+* ``streaming``: one fit (all rows; k, s and ridge given, so one layer and no check rows) by the
+  streamed passes in a subprocess: wall and CPU
   seconds, peak resident memory, rows per second per core;
 * ``in_memory``: the estimator's fit on the same rows in memory and its training figures
   (subprocess), same measurements;
@@ -51,7 +52,8 @@ import json, resource, sys, time
 import numpy as np
 path, nodes, mode = sys.argv[1], int(sys.argv[2]), sys.argv[3]
 from nodecast.trainer.training import TrainingJob
-job = TrainingJob(targets=("y",), params={"n_nodes": nodes, "ridge": 1e-6}, validation_fraction=0.0)
+job = TrainingJob(targets=("y",), params={"n_nodes": nodes, "ridge": 1e-6, "n_neighbors": 22,
+                  "slope_scale": 1.0}, validation_fraction=0.0)
 start, cpu = time.perf_counter(), time.process_time()
 if mode == "stream":
     from nodecast.trainer.sources import ParquetSource
@@ -63,7 +65,8 @@ else:
     table = pq.read_table(path).to_pandas()
     X, y = table.drop(columns="y").to_numpy(), table["y"].to_numpy()
     del table
-    model = RandomNodeRegressor(n_nodes=nodes, ridge=1e-6, random_state=0).fit(X, y)
+    model = RandomNodeRegressor(n_nodes=nodes, ridge=1e-6, n_neighbors=22, slope_scale=1.0,
+                                random_state=0, check_fraction=0.0).fit(X, y)
     from nodecast.trainer.training import _metrics
     _metrics(model, X, y[:, None], "regression")  # the training figures streaming computes too
     class B: pass
@@ -87,7 +90,8 @@ def cluster_fit(path, nodes, workers) -> tuple[dict, np.ndarray]:
     from nodecast.trainer.frames import file_partitions
     from nodecast.trainer.training import TrainingJob
 
-    job = TrainingJob(targets=("y",), params={"n_nodes": nodes, "ridge": 1e-6}, validation_fraction=0.0)
+    job = TrainingJob(targets=("y",), params={"n_nodes": nodes, "ridge": 1e-6, "n_neighbors": 22,
+                      "slope_scale": 1.0}, validation_fraction=0.0)
     with connect(f"local:{workers}") as client:
         client.run(lambda: __import__("nodecast.trainer.partition_passes"))  # warm the imports
         before = client.run(time.process_time)
@@ -102,7 +106,8 @@ def cluster_fit(path, nodes, workers) -> tuple[dict, np.ndarray]:
 
 
 def per_partition(rows: int, nodes: int) -> dict:
-    """Seconds of each partition task on one partition of ``rows`` rows (this process)."""
+    """Seconds of each partition task on one partition of ``rows`` rows (this process), for a fit
+    with k and s given (one layer: one factor pass) and the default ridge's check set."""
     from nodecast.trainer import partition_passes as passes
     from nodecast.trainer.estimators import RandomNodeRegressor
     from nodecast.trainer.streamed_fit import StreamedFit
@@ -110,34 +115,37 @@ def per_partition(rows: int, nodes: int) -> dict:
     rng = np.random.default_rng(0)
     X = rng.uniform(size=(rows, FEATURES))
     Y = (np.sin(3 * X[:, 0]) + X[:, 1] * X[:, 2])[:, None]
-    fit = StreamedFit(RandomNodeRegressor(n_nodes=nodes, ridge=1e-6, random_state=0,
+    fit = StreamedFit(RandomNodeRegressor(n_nodes=nodes, ridge=1e-6, n_neighbors=22, slope_scale=1.0,
+                                          random_state=0,
                                           domain=(np.zeros(FEATURES), np.ones(FEATURES))),
                       "regression", FEATURES)
     fit.start(100 * rows, Y.min(axis=0), Y.max(axis=0))
     which, times = ("all", 0, 0.0, 0), {}
     start = time.process_time()
-    results = passes.anchors((X, Y), 0, fit, which)
+    part = passes.anchors((X, Y), 0, fit, which)
     times["anchors"] = time.process_time() - start
-    fit.outside, fit.u_low, fit.u_high = 0, np.zeros(FEATURES), np.ones(FEATURES)
+    fit.u_low, fit.u_high = np.zeros(FEATURES), np.ones(FEATURES)
     fit.anchor_rows = rng.uniform(size=fit.anchor_rows.shape)
+    fit.strided_u, fit.strided_t = part.strided_u, part.strided_t
     fit.finish_anchors()
     start = time.process_time()
     passes.neighbours((X, Y), 0, fit, which)
     times["neighbours"] = time.process_time() - start
     fit.nearest.update(np.ascontiguousarray(X), Y, 0)
-    fit.finish_neighbours()
+    layer = fit.layer_for(22, 1.0)
     start = time.process_time()
-    left = passes.factor((X, Y), fit, which)
+    left = passes.factor((X, Y), fit, layer, which)
     times["factor"] = time.process_time() - start
-    right = passes.factor((X[::-1].copy(), Y[::-1].copy()), fit, which)
+    right = passes.factor((X[::-1].copy(), Y[::-1].copy()), fit, layer, which)
     start = time.process_time()
     passes.combine(left, right)
     times["tsqr_combine"] = time.process_time() - start
-    fit.estimator._solve_output(left[0], left[1])
+    est = fit.estimator
+    est.hidden_weights_, est.hidden_biases_ = layer.weights, layer.biases
+    est._solve_output(left[0], left[3])
     start = time.process_time()
-    passes.figures((X, Y), fit.estimator, "regression", which)
+    passes.figures((X, Y), est, "regression", which)
     times["figures"] = time.process_time() - start
-    del results
     return times
 
 
