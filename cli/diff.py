@@ -9,7 +9,7 @@ import click
 
 from nodecast.compiler.errors import NodecastError
 
-EXAMPLE = ("\b\nExample:\n  nodecast diff shipped.ncz fan.ncz --data held_out.csv --max-change 0.5 "
+EXAMPLE = ("\b\nExample:\n  nodecast diff shipped.ncast fan.ncast --data held_out.csv --max-change 0.5 "
            "--junit diff.xml")
 
 

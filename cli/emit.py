@@ -9,7 +9,7 @@ import click
 from nodecast.cli.messages import budget_warning, emitted_line
 from nodecast.cli.parsing import example, load_bundle
 from nodecast.compiler.errors import NodecastError
-from nodecast.compiler.targets import TARGETS, all_choices
+from nodecast.compiler.targets import TARGETS, all_choices, foreign_option_error
 
 
 @click.command(epilog=example("emit"))
@@ -74,10 +74,8 @@ def target_options(target: str, model: str, given: dict) -> dict:
     command line's own defaults for C (a prefix from the bundle's name, instruction counts on)."""
     spec = TARGETS[target]
     for name in given:
-        if spec.option(name) is None and name != "precision":
-            takers = [t for t, s in TARGETS.items() if s.option(name) is not None]
-            flag = "--" + name.replace("_", "-")
-            raise NodecastError(f"{flag} applies to --to {' and '.join(takers)} only")
+        if name not in spec.names:
+            raise foreign_option_error(target, name)
     if target == "c":
         given = {"prefix": default_prefix(model), "instruction_count": True, **given,
                  "footprint": True}

@@ -9,11 +9,11 @@ from nodecast.compiler.errors import NodecastError
 EXAMPLES = {  # shown under each command's --help
     "train": ("nodecast train readings.csv --target heatsink_temp --nodes 300 "
               "--domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,"
-              "supply_voltage=22:26 -o fan.ncz"),
-    "predict": "nodecast predict fan.ncz readings.csv -o predictions.csv",
-    "inspect": "nodecast inspect fan.ncz --precision float32",
-    "emit": "nodecast emit fan.ncz --to onnx --precision float32 -o fan.onnx",
-    "verify": "nodecast verify fan.ncz fan.onnx --data readings.csv --report verify.json",
+              "supply_voltage=22:26 -o fan.ncast"),
+    "predict": "nodecast predict fan.ncast readings.csv -o predictions.csv",
+    "inspect": "nodecast inspect fan.ncast --precision float32",
+    "emit": "nodecast emit fan.ncast --to onnx --precision float32 -o fan.onnx",
+    "verify": "nodecast verify fan.ncast fan.onnx --data readings.csv --report verify.json",
     "demo": "nodecast demo -o demo-out",
 }
 

@@ -12,8 +12,8 @@ import click
 
 from nodecast.compiler.errors import NodecastError
 
-EXAMPLE = ("\b\nExample:\n  nodecast score fan.ncz held_out.csv --max-rmse 0.8 "
-           "--baseline fan-old.ncz --junit score.xml")
+EXAMPLE = ("\b\nExample:\n  nodecast score fan.ncast held_out.csv --max-rmse 0.8 "
+           "--baseline fan-old.ncast --junit score.xml")
 
 
 def _limits(text: str | None) -> tuple[float, ...] | None:

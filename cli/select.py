@@ -22,7 +22,7 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp "
            "--domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,supply_voltage=22:26 "
            "--nodes 50,100,250 "
            "--neighbors 10,20,30 --ridge 0,1e-6 --precision float32 --tolerance 0.05 "
-           "-o fan.ncz --report cv.json --plot cv.png")
+           "-o fan.ncast --report cv.json --plot cv.png")
 
 
 @click.command(epilog=f"\b\nExample:\n  {EXAMPLE}")
@@ -83,7 +83,7 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp "
               help="Parallel (fold, layer) units, or 'auto' (every core for large searches); the "
                    "result is the same for any value.")
 @click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
-              help="Bundle (.ncz).")
+              help="Bundle (.ncast).")
 @click.option("--report", type=click.Path(dir_okay=False), help="Write every number as JSON here.")
 @click.option("--plot", type=click.Path(dir_okay=False),
               help="Plot the CV error against M per k as PNG (needs matplotlib).")

@@ -12,8 +12,8 @@ import click
 
 from nodecast.compiler.errors import NodecastError
 
-EXAMPLE = ("\b\nExample:\n  nodecast shrink fan.ncz --max-error 0.05 -o fan-small.ncz\n"
-           "  nodecast shrink fan.ncz --max-error 0.05 --data readings.csv -o fan-small.ncz")
+EXAMPLE = ("\b\nExample:\n  nodecast shrink fan.ncast --max-error 0.05 -o fan-small.ncast\n"
+           "  nodecast shrink fan.ncast --max-error 0.05 --data readings.csv -o fan-small.ncast")
 
 
 @click.command("shrink", epilog=EXAMPLE)
@@ -29,7 +29,7 @@ EXAMPLE = ("\b\nExample:\n  nodecast shrink fan.ncz --max-error 0.05 -o fan-smal
 @click.option("--ridge", type=click.FloatRange(min=0),
               help="--data: ridge of the re-solve (default: the source model's).")
 @click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
-              help="The shrunk bundle (.ncz).")
+              help="The shrunk bundle (.ncast).")
 @click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
 def shrink(model, max_error, actions, data, ridge, output, overwrite):
     """Remove nodes of MODEL that are nearly constant, duplicate or negligible over the domain."""

@@ -63,7 +63,7 @@ from nodecast.cli.parsing import (
 @click.option("--cluster", metavar="ADDRESS|local[:N]",
               help="Run the passes on a Dask cluster: a scheduler address, or local[:N] for a local "
                    "cluster of N workers (docs/scale.md).")
-@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False), help="Bundle (.ncz).")
+@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False), help="Bundle (.ncast).")
 @click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
 def train(data, target, features, domain, units, categorical, method, nodes, neighbors, slope_scale,
           interval, angle_range, weight_sum, ridge, activation, task, seed, validation_fraction,

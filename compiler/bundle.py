@@ -1,4 +1,4 @@
-"""The bundle (``.ncz``): the IR plus a metadata record, in one zip archive of our own layout.
+"""The bundle (``.ncast``): the IR plus a metadata record, in one zip archive of our own layout.
 
 Layout: ``manifest.json`` and one little-endian float64 ``.npy`` entry per array under ``arrays/``,
 all stored uncompressed with a fixed timestamp, so that the same model gives the same bytes. The

@@ -31,12 +31,14 @@ class Option:
     default: object = None
     choices: tuple | None = None
     value_range: tuple[int, int] | None = None
+    note: str = ""  # why the choices are what they are, said when a value is refused
 
     def check(self, value, target: str) -> None:
         flag = "--" + self.name.replace("_", "-")
         if self.choices is not None and value not in self.choices:
+            note = f" ({self.note})" if self.note else ""
             raise NodecastError(f"{target} takes {flag} {', '.join(map(str, self.choices))}, "
-                                f"not {value!r}")
+                                f"not {value!r}{note}")
         if self.value_range is not None:
             low, high = self.value_range
             if isinstance(value, bool) or not isinstance(value, int) or not low <= value <= high:
@@ -51,6 +53,7 @@ class TargetSpec:
     precisions: tuple[str, ...]
     default_precision: str
     options: tuple[Option, ...]
+    precision_note: str = ""
 
     def option(self, name: str) -> Option | None:
         return next((o for o in self.options if o.name == name), None)
@@ -62,20 +65,13 @@ class TargetSpec:
     def resolve(self, options: dict) -> dict:
         """``options`` checked and completed with defaults; an unknown or misspelt option raises."""
         unknown = [name for name in options if name not in self.names]
-        if unknown and unknown[0] in _OTHER_TARGETS_OPTIONS:
-            raise NodecastError(f"--{unknown[0].replace('_', '-')} "
-                                f"{_OTHER_TARGETS_OPTIONS[unknown[0]]}; the {self.name} artifact "
-                                "handles inputs outside the domain by --out-of-domain")
         if unknown:
-            name = unknown[0]
-            close = difflib.get_close_matches(name, self.names, n=1)
-            hint = f" (did you mean {close[0]!r}?)" if close else ""
-            raise NodecastError(f"the {self.name} target has no option {name!r}{hint}; it takes "
-                                f"{', '.join(self.names)}")
+            raise foreign_option_error(self.name, unknown[0])
         precision = options.get("precision") or self.default_precision
         if precision not in self.precisions:
-            raise NodecastError(f"{self.name} takes precision {', '.join(self.precisions)}, "
-                                f"not {precision!r}")
+            note = f" ({self.precision_note})" if self.precision_note else ""
+            raise NodecastError(f"{self.name} takes precision {', '.join(self.precisions)} only, "
+                                f"not {precision!r}{note}")
         resolved = {"precision": precision}
         for option in self.options:
             value = options.get(option.name)
@@ -94,12 +90,12 @@ class TargetSpec:
         return option.default
 
 
-_OTHER_TARGETS_OPTIONS = {"flag_out_of_domain": "adds an output to an ONNX graph"}
 _POLICY = Option("out_of_domain", "pass", OUT_OF_DOMAIN_POLICIES)
 
 TARGETS: dict[str, TargetSpec] = {
     "onnx": TargetSpec("onnx", FLOAT_PRECISIONS, "float32", (
-        _POLICY,
+        Option("out_of_domain", "pass", ("clamp", "pass"),
+               note="a graph cannot refuse a row; use --flag-out-of-domain to mark them"),
         Option("flag_out_of_domain", False, (False, True)),
         Option("opset"),  # checked by the back-end against the opsets it can write
     )),
@@ -112,8 +108,26 @@ TARGETS: dict[str, TargetSpec] = {
         Option("bare_metal", False, (False, True)),
         Option("instruction_count", False, (False, True)),
     )),
-    "python": TargetSpec("python", ("float64",), "float64", (_POLICY,)),
+    "python": TargetSpec("python", ("float64",), "float64", (_POLICY,),
+                         precision_note="Python floats are IEEE 754 binary64"),
 }
+
+
+def foreign_option_error(target: str, name: str) -> NodecastError:
+    """The error for an option ``target`` does not take: another target's option is named as
+    such; anything else gets the closest option name, if any."""
+    flag = "--" + name.replace("_", "-")
+    if name == "flag_out_of_domain":
+        return NodecastError(f"{flag} adds an output to an ONNX graph; the {target} artifact "
+                             "handles inputs outside the domain by --out-of-domain")
+    takers = [t for t, spec in TARGETS.items() if name in spec.names]
+    if takers:
+        return NodecastError(f"{flag} applies to --to {' and '.join(takers)} only")
+    names = TARGETS[target].names
+    close = difflib.get_close_matches(name, names, n=1)
+    hint = f" (did you mean {close[0]!r}?)" if close else ""
+    return NodecastError(f"the {target} target has no option {name!r}{hint}; it takes "
+                         f"{', '.join(names)}")
 
 
 def target_spec(to: str) -> TargetSpec:

@@ -1,4 +1,5 @@
-"""Write docs/cli-reference.md from the CLI's own --help texts (a test keeps it current).
+"""Write docs/cli-reference.md from the CLI's own --help texts and the targets' option specs (a
+test keeps it current).
 Usage: python3 docs/make_cli_reference.py"""
 
 from __future__ import annotations
@@ -9,6 +10,7 @@ from pathlib import Path
 import click
 
 from nodecast.cli import cli
+from nodecast.compiler.targets import TARGETS
 
 TARGET = Path(__file__).with_name("cli-reference.md")
 
@@ -29,7 +31,38 @@ def render() -> str:
         parent = click.Context(cli, info_name="nodecast", **cli.context_settings)
         parts += ["", f"## nodecast {name}", "", "```text",
                   _help(cli.commands[name], name, parent), "```"]
-    return "\n".join(parts) + "\n"
+    return "\n".join(parts + target_options()) + "\n"
+
+
+def target_options() -> list[str]:
+    """One table per target from :data:`nodecast.compiler.targets.TARGETS`: what ``emit`` (the
+    command and ``nodecast.compiler.emit``) accepts; any other option is refused."""
+    lines = ["", "## Options per target", "",
+             "What `nodecast emit --to T` and `nodecast.compiler.emit(bundle, T, **options)` accept "
+             "(from `compiler/targets.py`); any other option is refused, never dropped."]
+    for name, spec in TARGETS.items():
+        lines += ["", f"### {name}", "", "| option | values | default |", "| --- | --- | --- |",
+                  f"| precision | {', '.join(spec.precisions)} | {spec.default_precision} |"]
+        for option in spec.options:
+            if option.choices is not None:
+                values = ", ".join(map(str, option.choices))
+            elif option.value_range is not None:
+                values = "integer {}..{}".format(*option.value_range)
+            else:
+                values = "see the command's help"
+            default = _default_text(spec, option)
+            lines.append(f"| {option.name} | {values} | {default} |")
+    return lines
+
+
+def _default_text(spec, option) -> str:
+    """The default, or one per group of precisions when it follows the precision."""
+    by_value: dict = {}
+    for precision in spec.precisions:
+        by_value.setdefault(spec.default(option, precision), []).append(precision)
+    if len(by_value) == 1:
+        return str(next(iter(by_value)))
+    return "; ".join(f"{value} ({', '.join(precisions)})" for value, precisions in by_value.items())
 
 
 if __name__ == "__main__":

@@ -26,3 +26,11 @@ def test_readme_opens_with_the_job_and_quick_start_has_two_commands():
     assert len(commands) == 2
     ci = (ROOT / ".ci" / "run").read_text(encoding="utf-8")
     assert commands[1].strip() in ci  # CI runs exactly the README's test command
+
+
+def test_readme_apt_line_installs_what_ci_installs():
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    line = next(text for text in readme.split("`") if text.startswith("sudo apt-get install"))
+    ci = " ".join((ROOT / ".ci" / "run").read_text(encoding="utf-8").replace("\\\n", " ").split())
+    ci_packages = ci.split("--no-install-recommends", 1)[1].split(">")[0].split()
+    assert line.split("--no-install-recommends", 1)[1].split() == ci_packages

@@ -10,6 +10,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+pytestmark = pytest.mark.slow  # each example runs whole, in its own process
+
 EXAMPLES = Path(__file__).resolve().parents[1] / "examples"
 
 
@@ -20,6 +22,7 @@ def _run(script: str, out: Path) -> subprocess.CompletedProcess:
     return result
 
 
+@pytest.mark.slow
 def test_onnx_handoff_consumer_matches_the_reference(tmp_path):
     from nodecast.compiler import load, reference
     from nodecast.compiler.csvio import read_table
@@ -29,7 +32,7 @@ def test_onnx_handoff_consumer_matches_the_reference(tmp_path):
     with open(tmp_path / "predictions.csv", newline="") as handle:
         rows = list(csv.reader(handle))
     assert rows[0] == ["heatsink_temp"]
-    bundle = load(tmp_path / "fan.ncz")
+    bundle = load(tmp_path / "fan.ncast")
     X = read_table(tmp_path / "held_out.csv").numbers(bundle.network.feature_names)
     got = np.array([float(r[0]) for r in rows[1:]])
     want = reference.predict(bundle.network, X)[:, 0]
@@ -44,6 +47,7 @@ def plots_out(tmp_path_factory) -> Path:
     return out
 
 
+@pytest.mark.slow
 def test_plots_example_draws_both_pictures(plots_out):
     for name in ("nodes.png", "predicted_vs_actual.png"):
         data = (plots_out / name).read_bytes()
@@ -54,13 +58,14 @@ def test_data_driven_nodes_are_all_steep_somewhere_on_the_domain(plots_out):
     from nodecast.compiler import load
     from nodecast.compiler.inspection import node_ranges
 
-    bundle = load(plots_out / "fan.ncz")
+    bundle = load(plots_out / "fan.ncast")
     # data-driven nodes put their inflection at a training point, so each is steep somewhere
     ranges = node_ranges(bundle)
     assert ranges["saturated"] == 0
     assert all(lo <= 0.0 <= hi for lo, hi in zip(ranges["z_low"], ranges["z_high"], strict=True))
 
 
+@pytest.mark.slow
 def test_ci_gate_passes_then_refuses_a_worse_model(tmp_path):
     import xml.etree.ElementTree as ET
 
@@ -68,29 +73,31 @@ def test_ci_gate_passes_then_refuses_a_worse_model(tmp_path):
     junit = sorted(p.name for p in (tmp_path / "junit").glob("*.xml"))
     assert "score.xml" in junit and "pytest.xml" in junit
     assert any(name.startswith("verify-candidate_predictor") for name in junit)
-    worse = tmp_path / "worse.ncz"
+    worse = tmp_path / "worse.ncast"
     subprocess.run(["nodecast", "train", str(tmp_path / "readings.csv"), "--target", "heatsink_temp",
                     "--nodes", "8", "-o", str(worse)], check=True, capture_output=True)
     result = subprocess.run(["nodecast", "score", str(worse), str(tmp_path / "held_out.csv"),
-                             "--baseline", str(tmp_path / "candidate.ncz"), "--junit",
+                             "--baseline", str(tmp_path / "candidate.ncast"), "--junit",
                              str(tmp_path / "worse.xml")], capture_output=True, text=True)
     assert result.returncode == 1
     suite = ET.parse(tmp_path / "worse.xml").getroot()
     assert int(suite.get("failures") or suite.find("testsuite").get("failures")) >= 1
 
 
+@pytest.mark.slow
 def test_standalone_predictor_runs_isolated_and_matches_the_reference(tmp_path):
     from nodecast.compiler import load, reference
     from nodecast.compiler.csvio import read_table
 
     _run("standalone_predictor/run.sh", tmp_path)
-    bundle = load(tmp_path / "fan.ncz")
+    bundle = load(tmp_path / "fan.ncast")
     X = read_table(tmp_path / "held_out.csv").numbers(bundle.network.feature_names)
     got = read_table(tmp_path / "predictions.csv").numbers(["heatsink_temp"])[:, 0]
     want = reference.predict(bundle.network, X)[:, 0]
     assert np.max(np.abs(got - want)) <= 1e-10 * np.ptp(want)  # SPEC: float64 artifacts
 
 
+@pytest.mark.slow
 def test_firmware_example_runs_on_emulated_cortex_m4_within_the_bound(tmp_path):
     import os
     import shutil
@@ -109,13 +116,14 @@ def test_firmware_example_runs_on_emulated_cortex_m4_within_the_bound(tmp_path):
     assert "cortex-m0" in result.stderr  # emit printed the footprint table
 
 
+@pytest.mark.slow
 def test_python_api_example_exports_a_tuned_pipeline_that_every_artifact_computes(tmp_path):
     from nodecast.compiler import load, reference
     from nodecast.compiler.csvio import read_table
 
     _run("python_api/run.sh", tmp_path)
     summary = json.loads((tmp_path / "summary.json").read_text())
-    bundle = load(tmp_path / "fan.ncz")
+    bundle = load(tmp_path / "fan.ncast")
     assert summary["bundle_id"] == bundle.bundle_id
     assert bundle.metadata["pipeline"][0].endswith("StandardScaler")
     assert bundle.network.feature_names == ("ambient_temp", "fan_speed", "load_current",

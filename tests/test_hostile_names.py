@@ -29,6 +29,7 @@ from nodecast.compiler.backends import BACKENDS
 from nodecast.compiler.bundle import Bundle
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import Network
+from tests.helpers import run_cli, write_csv
 
 PAYLOADS = [
     'double "quote', "single 'quote", "back\\slash", "trailing backslash\\",
@@ -272,6 +273,7 @@ def test_c_prefix_is_the_only_identifier_and_is_validated(prefix):
 
 # -- the whole path: CSV header -> train -> every target -> verify ---------------------------------
 
+@pytest.mark.slow
 def test_hostile_csv_header_and_labels_survive_train_emit_verify(tmp_path):
     rng = np.random.default_rng(1)
     names = [PAYLOADS[i] for i in (0, 4, 7, 8, 12)]
@@ -288,16 +290,16 @@ def test_hostile_csv_header_and_labels_survive_train_emit_verify(tmp_path):
                               cwd=tmp_path, capture_output=True, text=True, timeout=300)
 
     trained = nodecast("train", "d.csv", "--target", "kind */", "--task", "classification",
-                       "--nodes", "20", "-o", "m.ncz")
+                       "--nodes", "20", "-o", "m.ncast")
     assert trained.returncode == 0, trained.stderr
     targets = {"onnx": "m.onnx", "python": "m.py"}
     if shutil.which("gcc"):
         targets["c"] = "c_out"
     for kind, output in targets.items():
-        emitted = nodecast("emit", "m.ncz", "--to", kind, "-o", output,
+        emitted = nodecast("emit", "m.ncast", "--to", kind, "-o", output,
                            *(["--precision", "float64"] if kind != "python" else []))
         assert emitted.returncode == 0, (kind, emitted.stderr)
-        verified = nodecast("verify", "m.ncz", output, "--data", "d.csv", "--probes", "256")
+        verified = nodecast("verify", "m.ncast", output, "--data", "d.csv", "--probes", "256")
         assert verified.returncode == 0, (kind, verified.stdout, verified.stderr)
     assert not list(tmp_path.glob("planted*"))
 
@@ -343,6 +345,7 @@ def test_c_escapes_keep_any_text_inert(text):
 
 @settings(max_examples=30, deadline=None, derandomize=True, database=None)
 @given(st.lists(names_text, min_size=2, max_size=2, unique=True), names_text)
+@pytest.mark.slow
 def test_any_names_leave_the_python_and_onnx_skeletons_unchanged(features, unit):
     import onnx
 
@@ -356,3 +359,15 @@ def test_any_names_leave_the_python_and_onnx_skeletons_unchanged(features, unit)
     assert namespace["FEATURE_UNITS"] == (unit, unit)
     models = [onnx.load_from_string(emit(b, "onnx").files["model.onnx"]) for b in (hostile, plain)]
     assert _onnx_skeleton(models[0]) == _onnx_skeleton(models[1])
+
+
+@pytest.mark.slow
+def test_percent_in_a_feature_name_keeps_predictor_help_working(tmp_path, capsys):
+    rows = np.random.default_rng(1).random((40, 3))
+    write_csv(tmp_path / "d.csv", ["a", "%(prog)s %d", "y"], rows)
+    for args in (["train", tmp_path / "d.csv", "--target", "y", "--nodes", "6", "-o", tmp_path / "m.ncast"],
+                 ["emit", tmp_path / "m.ncast", "--to", "python", "-o", tmp_path / "p.py"]):
+        assert run_cli(capsys, *args).status == 0
+    result = subprocess.run([sys.executable, "-I", "-S", "p.py", "--help"], cwd=tmp_path,
+                            capture_output=True, text=True, timeout=60)
+    assert result.returncode == 0 and "%(prog)s %d" in result.stdout

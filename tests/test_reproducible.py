@@ -15,22 +15,24 @@ import zipfile
 import numpy as np
 import pytest
 
+pytestmark = pytest.mark.slow  # separate processes train and emit every target
+
 # Every command runs in each of two fresh interpreters; {out} is that run's own absolute folder.
 COMMANDS = [
     ["train", "{data}", "--target", "y", "--features", "a,b,c", "--nodes", "40", "--seed", "5",
-     "-o", "{out}/reg.ncz"],
+     "-o", "{out}/reg.ncast"],
     ["train", "{data}", "--target", "kind", "--features", "a,b,c", "--task", "classification",
-     "--nodes", "30", "--seed", "2", "-o", "{out}/cls.ncz"],
+     "--nodes", "30", "--seed", "2", "-o", "{out}/cls.ncast"],
     ["select", "{data}", "--target", "y", "--features", "a,b,c", "--nodes", "10,20",
-     "--ridge", "0,1e-6", "--folds", "3", "-o", "{out}/sel.ncz"],
-    ["emit", "{out}/reg.ncz", "--to", "onnx", "--precision", "float32", "-o", "{out}/reg32.onnx"],
-    ["emit", "{out}/cls.ncz", "--to", "onnx", "--precision", "float64", "-o", "{out}/cls64.onnx"],
-    ["emit", "{out}/reg.ncz", "--to", "python", "-o", "{out}/reg.py"],
-    ["emit", "{out}/cls.ncz", "--to", "python", "--out-of-domain", "reject", "-o", "{out}/cls.py"],
+     "--ridge", "0,1e-6", "--folds", "3", "-o", "{out}/sel.ncast"],
+    ["emit", "{out}/reg.ncast", "--to", "onnx", "--precision", "float32", "-o", "{out}/reg32.onnx"],
+    ["emit", "{out}/cls.ncast", "--to", "onnx", "--precision", "float64", "-o", "{out}/cls64.onnx"],
+    ["emit", "{out}/reg.ncast", "--to", "python", "-o", "{out}/reg.py"],
+    ["emit", "{out}/cls.ncast", "--to", "python", "--out-of-domain", "reject", "-o", "{out}/cls.py"],
 ]
 C_COMMANDS = [
-    ["emit", "{out}/reg.ncz", "--to", "c", "--precision", "float32", "-o", "{out}/c32"],
-    ["emit", "{out}/cls.ncz", "--to", "c", "--precision", "q15", "--out-of-domain", "clamp",
+    ["emit", "{out}/reg.ncast", "--to", "c", "--precision", "float32", "-o", "{out}/c32"],
+    ["emit", "{out}/cls.ncast", "--to", "c", "--precision", "q15", "--out-of-domain", "clamp",
      "--prefix", "fan", "-o", "{out}/cq15"],
 ]
 CHILD = """
@@ -78,11 +80,12 @@ def _outputs(folder):
     return sorted(p.relative_to(folder).as_posix() for p in folder.rglob("*") if p.is_file())
 
 
+@pytest.mark.slow
 def test_every_output_is_byte_identical_across_processes(two_runs):
     first, second = two_runs
     names = _outputs(first)
     assert names == _outputs(second)
-    assert {"reg.ncz", "cls.ncz", "sel.ncz", "reg32.onnx", "cls64.onnx", "reg.py",
+    assert {"reg.ncast", "cls.ncast", "sel.ncast", "reg32.onnx", "cls64.onnx", "reg.py",
             "cls.py"} <= set(names)
     for name in names:
         assert (first / name).read_bytes() == (second / name).read_bytes(), name
@@ -96,7 +99,7 @@ def test_outputs_hold_no_paths_or_timestamps(two_runs):
         data = (first / name).read_bytes()
         assert str(first).encode() not in data and b"data.csv" not in data, name
         assert not stamp.search(data), name
-    for bundle in ("reg.ncz", "cls.ncz", "sel.ncz"):
+    for bundle in ("reg.ncast", "cls.ncast", "sel.ncast"):
         with zipfile.ZipFile(first / bundle) as archive:
             assert {info.date_time for info in archive.infolist()} == {(1980, 1, 1, 0, 0, 0)}
 
@@ -107,10 +110,10 @@ def test_bundle_id_is_what_the_artifacts_quote(two_runs):
     from nodecast.compiler.bundle import load
 
     first, _ = two_runs
-    bundle_id = load(first / "reg.ncz").bundle_id
+    bundle_id = load(first / "reg.ncast").bundle_id
     model = onnx.load(str(first / "reg32.onnx"))
     assert {p.key: p.value for p in model.metadata_props}["nodecast.bundle_id"] == bundle_id
     assert bundle_id.encode() in (first / "reg.py").read_bytes()
-    manifest = json.loads(zipfile.ZipFile(io.BytesIO((first / "reg.ncz").read_bytes()))
+    manifest = json.loads(zipfile.ZipFile(io.BytesIO((first / "reg.ncast").read_bytes()))
                           .read("manifest.json"))
     assert manifest["bundle_id"] == bundle_id

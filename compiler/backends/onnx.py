@@ -59,7 +59,6 @@ def needed_opset(flag_out_of_domain: bool, categorical: bool = False) -> int:
     if flag_out_of_domain:
         return FLAG_OPSET
     return LEVELS_OPSET if categorical else OLDEST_OPSET
-PRECISIONS = ("float32", "float64")
 INPUT_NAME = "features"
 LEVELS_NAME = "levels"
 OUTPUT_NAME = "outputs"
@@ -70,8 +69,6 @@ _ACTIVATION_OP = {"logistic": "Sigmoid", "tanh": "Tanh"}
 
 def render(bundle, precision: str = "float32", opset: int | None = None,
            out_of_domain: str = "pass", flag_out_of_domain: bool = False) -> Artifact:
-    if precision not in PRECISIONS:
-        raise NodecastError(f"ONNX takes precision float32 or float64, not {precision!r}")
     needed = needed_opset(flag_out_of_domain, bundle.network.n_categorical > 0)
     opset = needed if opset is None else opset
     if opset not in SUPPORTED_OPSETS:
@@ -81,9 +78,6 @@ def render(bundle, precision: str = "float32", opset: int | None = None,
         raise NodecastError(f"opset {opset} is too old for this graph: it needs opset {needed} or "
                             "newer (--flag-out-of-domain: ReduceMin with its axes as an input; "
                             "categorical inputs: GreaterOrEqual)")
-    if out_of_domain not in ("pass", "clamp"):
-        raise NodecastError(f"ONNX takes out-of-domain policy 'pass' or 'clamp', not {out_of_domain!r}"
-                            " (a graph cannot refuse a row; use --flag-out-of-domain to mark them)")
     model, summary = build_model(bundle, precision, opset, out_of_domain, flag_out_of_domain)
     return Artifact("onnx", {"model.onnx": model.SerializeToString(deterministic=True)}, True, summary)
 

@@ -18,19 +18,15 @@ layout only.
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 
 from nodecast.compiler.backends import Artifact
 from nodecast.compiler.bounds import certify
-from nodecast.compiler.errors import NodecastError
-from nodecast.compiler.ir import OUT_OF_DOMAIN_POLICIES
+from nodecast.compiler.passes.half_tanh import logistic_as_tanh
 from nodecast.compiler.typical_error import estimate
 from nodecast.compiler.version import __version__
 from nodecast.templates import render as render_template
 
-PRECISIONS = ("float64",)
 FILE_NAME = "predictor.py"
 TEMPLATE = "predictor.py.j2"
 LINE_LIMIT = 100  # pyproject [tool.ruff] line-length: the generated file passes ruff as it is
@@ -47,12 +43,6 @@ def render(bundle, precision: str = "float64", out_of_domain: str = "pass") -> A
     out_of_domain : "clamp", "pass" or "reject", what the predictor does with inputs outside
         the declared domain.
     """
-    if precision not in PRECISIONS:
-        raise NodecastError(f"Python floats are IEEE 754 binary64: the python target takes "
-                            f"precision float64 only, not {precision!r}")
-    if out_of_domain not in OUT_OF_DOMAIN_POLICIES:
-        raise NodecastError(f"out-of-domain policy must be one of "
-                            f"{', '.join(OUT_OF_DOMAIN_POLICIES)}, not {out_of_domain!r}")
     net = bundle.network
     error = estimate(net, precision)
     certificate = certify(net, "python", precision)
@@ -68,20 +58,15 @@ def render(bundle, precision: str = "float64", out_of_domain: str = "pass") -> A
 def _context(bundle, error, out_of_domain: str, certificate) -> dict:
     net = bundle.network
     logistic = net.activation == "logistic"
-    halving = 0.5 if logistic else 1.0
-    hidden = np.column_stack([net.hidden_weights, net.hidden_biases]) * halving
-    output_weights = net.output_weights.T * halving
-    output_bias = net.output_bias
-    if logistic:  # sum_j beta_j (1/2 + t_j / 2) = sum_j beta_j / 2 + sum_j (beta_j / 2) t_j
-        output_bias = [math.fsum([c, *row]) for c, row in zip(output_bias, output_weights.tolist(),
-                                                             strict=True)]
+    lowered = logistic_as_tanh(net)
+    hidden = np.column_stack([lowered.hidden_weights, lowered.hidden_biases])
     context = {
         "tool_version": repr(__version__), "bundle_id": repr(bundle.bundle_id),
         "out_of_domain": repr(out_of_domain), "policy": out_of_domain, "task": repr(net.task),
         "classifier": net.task == "classification", "activation": repr(net.activation),
         "logistic": logistic, "n_features": net.n_features, "n_outputs": net.n_outputs,
-        "hidden": float_rows(hidden), "output_weights": float_rows(output_weights),
-        "output_bias": float_tuple(output_bias),
+        "hidden": float_rows(hidden), "output_weights": float_rows(lowered.output_weights.T),
+        "output_bias": float_tuple(lowered.output_bias),
         "error_estimate": float_tuple(error.per_output),
         "certified_bound": float_tuple(certificate.per_output),
         "bound_assumes": repr(certificate.assumption),
@@ -89,22 +74,22 @@ def _context(bundle, error, out_of_domain: str, certificate) -> dict:
     }
     for name in ("feature_names", "feature_units", "target_names", "target_units", "class_labels"):
         context[name] = text_tuple(getattr(net, name))
-    context.update(_categorical_context(net, halving))
+    context.update(_categorical_context(lowered))
     for name in ("domain_low", "domain_high", "input_offset", "input_scale", "output_offset",
                  "output_scale"):
         context[name] = float_tuple(getattr(net, name))
     return context
 
 
-def _categorical_context(net, halving: float) -> dict:
-    """The categorical constants: names, levels, and each level's vector (scaled like the nodes)."""
+def _categorical_context(net) -> dict:
+    """The categorical constants of the lowered network: names, levels, each level's vector."""
     if not net.n_categorical:
         return {"categorical": False}
     groups = []
     for c, levels in enumerate(net.categorical_levels):
         start = net.level_start(c)
         rows = [f"        {float_tuple(vector, indent=12)}," for vector in
-                net.level_weights[start : start + len(levels)] * halving]
+                net.level_weights[start : start + len(levels)]]
         groups.append("    (\n" + "\n".join(rows) + "\n    ),")
     levels = [f"    {text_tuple(group).replace(chr(10), chr(10) + '    ')}," for group in
               net.categorical_levels]

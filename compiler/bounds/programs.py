@@ -6,13 +6,12 @@ so the bound follows the generated code, never a description of it.
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 
 from nodecast.compiler.bounds import activations as proven
 from nodecast.compiler.bounds.floating import FloatProgram
 from nodecast.compiler.ir import Network
+from nodecast.compiler.passes.half_tanh import logistic_as_tanh
 from nodecast.compiler.targets import UNIT_ROUNDOFF
 
 
@@ -117,16 +116,14 @@ def _unfolded(net: Network, hidden_weights, hidden_biases, output_weights, outpu
 
 
 def python_program(net: Network) -> FloatProgram:
-    """The standalone predictor: float64, explicit scaling, logistic folded into tanh exactly
-    (halvings) with the constant halves summed into the bias by math.fsum (one rounding)."""
-    if net.activation == "logistic":
-        bias = np.array([math.fsum([c, *(0.5 * net.output_weights[:, o])])
-                         for o, c in enumerate(net.output_bias)])
-        return _unfolded(net, 0.5 * net.hidden_weights, 0.5 * net.hidden_biases,
-                         0.5 * net.output_weights, bias, UNIT_ROUNDOFF["float64"] * np.abs(bias),
-                         proven.LIBM_ULPS, "tanh", "tanh")
-    return _unfolded(net, net.hidden_weights, net.hidden_biases, net.output_weights,
-                     net.output_bias, np.zeros(net.n_outputs), proven.LIBM_ULPS, "tanh", "tanh")
+    """The standalone predictor: float64, explicit scaling, lowered through
+    :func:`~nodecast.compiler.passes.half_tanh.logistic_as_tanh` as the back-end lowers it (exact
+    halvings; the constant halves summed into the bias by math.fsum, one rounding)."""
+    lowered = logistic_as_tanh(net)
+    slack = UNIT_ROUNDOFF["float64"] * np.abs(lowered.output_bias) if lowered is not net \
+        else np.zeros(net.n_outputs)
+    return _unfolded(net, lowered.hidden_weights, lowered.hidden_biases, lowered.output_weights,
+                     lowered.output_bias, slack, proven.LIBM_ULPS, "tanh", "tanh")
 
 
 def reference_program(net: Network) -> FloatProgram:

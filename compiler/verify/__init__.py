@@ -269,7 +269,7 @@ def check(bundle, artifact, data=None, **options) -> dict:
     """For users' own test suites: verify ``artifact`` and raise AssertionError carrying the report
     table when it fails; return the report document when it passes.
 
-    ``bundle`` is a Bundle or the path of a .ncz; ``data`` an array of rows in feature order or the
+    ``bundle`` is a Bundle or the path of a .ncast; ``data`` an array of rows in feature order or the
     path of a CSV (features found by header name); other options as for :func:`verify`.
     """
     if isinstance(bundle, (str, os.PathLike)):

@@ -1,5 +1,5 @@
 """Compare the emulated Cortex-M4's results with the trained model (float64 reference).
-Usage: python3 compare.py MODEL.ncz DATA.csv RESULTS.txt FIRMWARE_FOLDER
+Usage: python3 compare.py MODEL.ncast DATA.csv RESULTS.txt FIRMWARE_FOLDER
 Exit 1 when a result differs from the model by more than the certified bound the header states."""
 
 import re

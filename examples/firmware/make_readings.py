@@ -1,5 +1,5 @@
 """Write readings.h: the first rows of a CSV as a C table, in the model's input order.
-Usage: python3 make_readings.py MODEL.ncz DATA.csv readings.h [ROWS]"""
+Usage: python3 make_readings.py MODEL.ncast DATA.csv readings.h [ROWS]"""
 
 import sys
 

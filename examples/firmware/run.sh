@@ -15,19 +15,19 @@ nodecast select "$out/readings.csv" --target heatsink_temp \
   --domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,supply_voltage=22:26 \
   --units ambient_temp=degC,fan_speed=rpm,load_current=A,supply_voltage=V,heatsink_temp=degC \
   --nodes 50,100,200 --neighbors 10,20 --ridge 1e-6,1e-4,1e-2 --folds 5 \
-  --precision q15 --tolerance 0.3 -o "$out/fan.ncz" --overwrite
+  --precision q15 --tolerance 0.3 -o "$out/fan.ncast" --overwrite
 # The footprint table (host, Cortex-M0, Cortex-M4F) is printed here.
-nodecast emit "$out/fan.ncz" --to c --precision q15 --out-of-domain reject --prefix fan \
+nodecast emit "$out/fan.ncast" --to c --precision q15 --out-of-domain reject --prefix fan \
   --bare-metal -o "$fw" --overwrite
 # The accuracy budget is the one chosen above (0.3 degC), not verify's default of 5% of the model's
 # validation RMSE, which no q15 artifact of this model can be proven to meet.
-nodecast verify "$out/fan.ncz" "$fw" --emulate cortex-m4 --probes 512 --abs-tol 0.3 \
+nodecast verify "$out/fan.ncast" "$fw" --emulate cortex-m4 --probes 512 --abs-tol 0.3 \
   --report "$out/verify_m4.json" --overwrite
 
 # The firmware engineer's side: an ordinary Makefile and main.c around the generated files.
 cp "$here/Makefile" "$here/main.c" "$fw/"
-python3 "$here/make_readings.py" "$out/fan.ncz" "$out/held_out.csv" "$fw/readings.h" 16
+python3 "$here/make_readings.py" "$out/fan.ncast" "$out/held_out.csv" "$fw/readings.h" 16
 make -s -C "$fw" clean all
 make -s -C "$fw" size
 make -s -C "$fw" run
-python3 "$here/compare.py" "$out/fan.ncz" "$out/held_out.csv" "$fw/results.txt" "$fw"
+python3 "$here/compare.py" "$out/fan.ncast" "$out/held_out.csv" "$fw/results.txt" "$fw"

@@ -10,5 +10,5 @@ mkdir -p "$out"
 nodecast demo --data-only -o "$out"
 nodecast train "$out/readings.csv" --target heatsink_temp \
   --domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,supply_voltage=22:26 \
-  --units heatsink_temp=degC --nodes 200 -o "$out/fan.ncz" --overwrite
-nodecast inspect "$out/fan.ncz" --plot "$out" --data "$out/held_out.csv" --overwrite
+  --units heatsink_temp=degC --nodes 200 -o "$out/fan.ncast" --overwrite
+nodecast inspect "$out/fan.ncast" --plot "$out" --data "$out/held_out.csv" --overwrite

@@ -37,7 +37,7 @@ bundle = to_bundle(
                    "supply_voltage": "V"}, target_units=["degC"],
     domain={"ambient_temp": (10, 45), "fan_speed": (800, 4000), "load_current": (0, 30),
             "supply_voltage": (22, 26)})
-save(bundle, out / "fan.ncz", overwrite=True)
+save(bundle, out / "fan.ncast", overwrite=True)
 
 artifacts = {
     "python": (out / "fan_predictor.py", {"out_of_domain": "reject"}),

@@ -10,9 +10,9 @@ mkdir -p "$out"
 nodecast demo --data-only -o "$out"
 nodecast train "$out/readings.csv" --target heatsink_temp \
   --domain ambient_temp=10:45,fan_speed=800:4000,load_current=0:30,supply_voltage=22:26 \
-  --nodes 200 -o "$out/fan.ncz" --overwrite
-nodecast emit "$out/fan.ncz" --to python --out-of-domain reject -o "$out/fan_predictor.py" --overwrite
-nodecast verify "$out/fan.ncz" "$out/fan_predictor.py" --report "$out/verify.json" --overwrite
+  --nodes 200 -o "$out/fan.ncast" --overwrite
+nodecast emit "$out/fan.ncast" --to python --out-of-domain reject -o "$out/fan_predictor.py" --overwrite
+nodecast verify "$out/fan.ncast" "$out/fan_predictor.py" --report "$out/verify.json" --overwrite
 
 # On the target machine: only this file and a Python 3.8+ interpreter.
 python3 -I -S "$out/fan_predictor.py" "$out/held_out.csv" > "$out/predictions.csv"

@@ -30,7 +30,7 @@ def demo_bundles(folder: Path):
     main(["demo", "--data-only", "-o", str(folder)])
     bundles = {}
     for name, extra in (("demo-default", []), ("demo-ridge0-800", ["--ridge", "0", "--nodes", "800"])):
-        path = folder / f"{name}.ncz"
+        path = folder / f"{name}.ncast"
         try:
             main(["train", str(folder / "readings.csv"), "--target", "heatsink_temp", "-o", str(path),
                   *extra])

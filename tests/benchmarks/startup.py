@@ -42,16 +42,16 @@ def main() -> None:
         rows = (out / "readings.csv").read_text().splitlines()[:51]
         (out / "tiny.csv").write_text("\n".join(rows) + "\n")
         train = nodecast + ["train", str(out / "tiny.csv"), "--target", "heatsink_temp",
-                            "--nodes", "20", "-o", str(out / "m.ncz"), "--overwrite"]
+                            "--nodes", "20", "-o", str(out / "m.ncast"), "--overwrite"]
         subprocess.run(train, check=True, capture_output=True)
         commands = {
             "python -c pass": [sys.executable, "-c", "pass"],
             "nodecast --help": nodecast + ["--help"],
-            "emit --to c": nodecast + ["emit", str(out / "m.ncz"), "--to", "c", "-o",
+            "emit --to c": nodecast + ["emit", str(out / "m.ncast"), "--to", "c", "-o",
                                        str(out / "c"), "--overwrite"],
-            "emit --to python": nodecast + ["emit", str(out / "m.ncz"), "--to", "python", "-o",
+            "emit --to python": nodecast + ["emit", str(out / "m.ncast"), "--to", "python", "-o",
                                             str(out / "m.py"), "--overwrite"],
-            "emit --to onnx": nodecast + ["emit", str(out / "m.ncz"), "--to", "onnx", "-o",
+            "emit --to onnx": nodecast + ["emit", str(out / "m.ncast"), "--to", "onnx", "-o",
                                           str(out / "m.onnx"), "--overwrite"],
             "train (50 rows, 20 nodes)": train,
         }

@@ -12,6 +12,7 @@ import copy
 import os
 
 import numpy as np
+import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -50,7 +51,7 @@ def batches(strategy):
 def load_or_refuse(data: bytes):
     """The loaded bundle, or None when refused; any other exception fails the test."""
     try:
-        return bundle_io.from_bytes(data, "fuzzed.ncz")
+        return bundle_io.from_bytes(data, "fuzzed.ncast")
     except BundleError as exc:
         assert "\n" not in str(exc)
         return None
@@ -83,6 +84,7 @@ damage = st.tuples(
 
 @fuzz_settings(400)
 @given(batches(damage))
+@pytest.mark.slow
 def test_random_byte_damage_is_refused_or_harmless(cases):
     for changes, cut, inserted in cases:
         data = bytearray(DATA)
@@ -97,6 +99,7 @@ def test_random_byte_damage_is_refused_or_harmless(cases):
 
 @fuzz_settings(300)
 @given(batches(st.tuples(st.sampled_from(MANIFEST_PATHS), json_values, st.booleans())))
+@pytest.mark.slow
 def test_any_manifest_value_anywhere_is_refused_or_sound(cases):
     for path, value, rehash_arrays in cases:
         manifest = copy.deepcopy(MANIFEST)
@@ -121,6 +124,7 @@ headers = st.tuples(descriptors, st.sampled_from(["False", "True", "0", "None"])
 
 @fuzz_settings(200)
 @given(batches(headers))
+@pytest.mark.slow
 def test_random_npy_headers_are_refused_or_honest(cases):
     for descr, fortran, shape, n_values, version in cases:
         payload = npy_with_header(HEADER % (descr, fortran, shape), bytes(8 * n_values), version)
@@ -139,6 +143,7 @@ finite_or_not = st.floats(allow_nan=True, allow_infinity=True, allow_subnormal=T
 @fuzz_settings(150)
 @given(batches(st.tuples(st.lists(finite_or_not, min_size=2, max_size=2), st.sampled_from(
     ["hidden_weights", "hidden_biases", "input_scale", "domain_low"]))))
+@pytest.mark.slow
 def test_any_float_values_are_refused_unless_finite_and_valid(cases):
     for values, field in cases:
         _check_float_case(values, field)

@@ -136,9 +136,9 @@ def patch_central_sizes(data: bytes, entry: str, compressed: int, uncompressed: 
 
 def refused(data: bytes) -> str:
     with pytest.raises(BundleError) as info:
-        bundle_io.from_bytes(data, "bad.ncz")
+        bundle_io.from_bytes(data, "bad.ncast")
     message = str(info.value)
-    assert "\n" not in message and message.startswith("bad.ncz")
+    assert "\n" not in message and message.startswith("bad.ncast")
     return message
 
 
@@ -463,10 +463,10 @@ def test_encrypted_flag_is_refused():
 
 def test_load_refuses_missing_files_folders_and_oversized_files(tmp_path, monkeypatch):
     with pytest.raises(BundleError, match="cannot read bundle"):
-        bundle_io.load(tmp_path / "absent.ncz")
+        bundle_io.load(tmp_path / "absent.ncast")
     with pytest.raises(BundleError, match="is not a regular file"):
         bundle_io.load(tmp_path)
-    path = tmp_path / "big.ncz"
+    path = tmp_path / "big.ncast"
     path.write_bytes(bundle_io.to_bytes(tiny_bundle()))
     monkeypatch.setattr(bundle_io, "MAX_BUNDLE_BYTES", 1000)
     with pytest.raises(BundleError, match="over the bundle size limit 1000"):
@@ -481,9 +481,9 @@ def test_load_refuses_missing_files_folders_and_oversized_files(tmp_path, monkey
 ])
 def test_save_refuses_metadata_that_json_cannot_hold(metadata, where, tmp_path):
     with pytest.raises(BundleError, match="cannot store the bundle") as info:
-        bundle_io.save(Bundle(tiny_network(), metadata), tmp_path / "m.ncz")
+        bundle_io.save(Bundle(tiny_network(), metadata), tmp_path / "m.ncast")
     assert where in str(info.value)
-    assert not (tmp_path / "m.ncz").exists()
+    assert not (tmp_path / "m.ncast").exists()
 
 
 
@@ -512,7 +512,7 @@ def _cli_cases():
 @pytest.mark.parametrize("case", sorted(_cli_cases()))
 def test_cli_inspect_refuses_bad_bundles_with_exit_2_and_one_line(case, tmp_path, capsys):
     data, expected = _cli_cases()[case]
-    path = tmp_path / "bad.ncz"
+    path = tmp_path / "bad.ncast"
     path.write_bytes(data)
     code, _, err = run_cli(capsys, *["inspect", str(path)])
     assert code == 2

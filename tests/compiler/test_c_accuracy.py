@@ -53,6 +53,7 @@ def fixed_point_models(friedman_bundle, classifier_bundle, friedman_bundle_facto
 
 @pytest.mark.parametrize("precision", ["q15", "q31"])
 @pytest.mark.parametrize("model", ["friedman-logistic", "friedman-tanh", "iris-classifier"])
+@pytest.mark.slow
 def test_fixed_point_estimate_is_not_below_the_measured_error(fixed_point_models, tmp_path,
                                                              precision, model, request):
     need("gcc")

@@ -45,7 +45,7 @@ def test_good_prefixes_name_files_and_macros(friedman_bundle, prefix):
     ({"precision": "q31", "out_of_domain": "pass"}, "clamp or reject"),
     ({"activation_impl": "libm", "table_size": 64}, "table-size"),
     ({"activation_impl": "table", "table_size": 8}, "table-size"),
-    ({"precision": "q15", "table_size": 10**6, "out_of_domain": "reject"}, "table size"),
+    ({"precision": "q15", "table_size": 10**6, "out_of_domain": "reject"}, "--table-size an integer"),
     ({"out_of_domain": "wrap"}, "out-of-domain"),
 ])
 def test_bad_options_are_one_line_errors(friedman_bundle, options, message):

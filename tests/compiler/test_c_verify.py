@@ -114,8 +114,8 @@ def _emit_cli(bundle_path, folder, capsys, *extra) -> str:
 
 def test_emit_prints_the_footprint(friedman_bundle, tmp_path, capsys):
     need("gcc", "arm-none-eabi-gcc")
-    save(friedman_bundle, tmp_path / "m.ncz")
-    err = _emit_cli(tmp_path / "m.ncz", tmp_path / "out", capsys, "--precision", "q15",
+    save(friedman_bundle, tmp_path / "m.ncast")
+    err = _emit_cli(tmp_path / "m.ncast", tmp_path / "out", capsys, "--precision", "q15",
                     "--out-of-domain", "clamp")
     assert "footprint: weights and tables" in err
     for build in ("host (-O2)", "cortex-m0 (", "cortex-m4f ("):
@@ -124,19 +124,19 @@ def test_emit_prints_the_footprint(friedman_bundle, tmp_path, capsys):
 
 
 def test_emit_works_without_any_compiler(friedman_bundle, tmp_path, capsys, monkeypatch):
-    save(friedman_bundle, tmp_path / "m.ncz")
+    save(friedman_bundle, tmp_path / "m.ncast")
     monkeypatch.setenv("PATH", str(tmp_path))  # no compiler on this PATH
     monkeypatch.delenv("CC", raising=False)
-    err = _emit_cli(tmp_path / "m.ncz", tmp_path / "out", capsys, "--activation-impl", "rational")
-    assert (tmp_path / "out" / "model.c").is_file()
+    err = _emit_cli(tmp_path / "m.ncast", tmp_path / "out", capsys, "--activation-impl", "rational")
+    assert (tmp_path / "out" / "m.c").is_file()
     assert "host: skipped (gcc not found)" in err
     assert "cortex-m0: skipped (arm-none-eabi-gcc not found)" in err
 
 
 def test_emit_refuses_c_options_for_other_targets(friedman_bundle, tmp_path, capsys):
-    save(friedman_bundle, tmp_path / "m.ncz")
+    save(friedman_bundle, tmp_path / "m.ncast")
     with pytest.raises(SystemExit) as caught:
-        main(["emit", str(tmp_path / "m.ncz"), "--to", "onnx", "--table-size", "64", "-o",
+        main(["emit", str(tmp_path / "m.ncast"), "--to", "onnx", "--table-size", "64", "-o",
               str(tmp_path / "m.onnx")])
     assert caught.value.code == 2 and "--to c only" in capsys.readouterr().err
 

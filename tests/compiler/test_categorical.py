@@ -59,8 +59,8 @@ def synthetic(tmp_path_factory):
     _write_synthetic(folder / "motor.csv", 1500, 0)
     _write_synthetic(folder / "held_out.csv", 300, 1)
     _train(folder / "motor.csv", "--target", "power", "--categorical", "programme", "--nodes", 120,
-           "-o", folder / "motor.ncz")
-    return folder, load(folder / "motor.ncz")
+           "-o", folder / "motor.ncast")
+    return folder, load(folder / "motor.ncast")
 
 
 @pytest.fixture(scope="module")
@@ -71,8 +71,8 @@ def diabetes(tmp_path_factory):
     frame = load_diabetes(as_frame=True, scaled=False).frame
     frame.to_csv(folder / "diabetes.csv", index=False)
     _train(folder / "diabetes.csv", "--target", "target", "--categorical", "sex", "--nodes", 80,
-           "-o", folder / "diabetes.ncz")
-    return folder, load(folder / "diabetes.ncz")
+           "-o", folder / "diabetes.ncast")
+    return folder, load(folder / "diabetes.ncast")
 
 
 def test_levels_are_listed_in_a_fixed_order_and_survive_the_bundle(synthetic, diabetes):
@@ -83,7 +83,7 @@ def test_levels_are_listed_in_a_fixed_order_and_survive_the_bundle(synthetic, di
     assert net.level_weights.shape == (4, net.n_nodes) and not net.level_weights.flags.writeable
     # numbers as levels are ordered by value and spelled without a fraction (the CSV says 1.0, 2.0)
     assert diabetes[1].network.categorical_levels == (("1", "2"),)
-    again = load(synthetic[0] / "motor.ncz")
+    again = load(synthetic[0] / "motor.ncast")
     assert np.array_equal(again.network.level_weights, net.level_weights)
 
 
@@ -129,6 +129,7 @@ def _artifacts(bundle, folder):
 
 
 @pytest.mark.parametrize("model", ["synthetic", "diabetes"])
+@pytest.mark.slow
 def test_every_artifact_agrees_with_the_reference_on_every_level(request, model, tmp_path):
     folder, bundle = request.getfixturevalue(model)
     net = bundle.network
@@ -237,10 +238,10 @@ def test_fixed_point_is_refused_for_categorical_inputs(synthetic, tmp_path):
 def test_same_data_and_seed_give_the_same_bundle_bytes(synthetic, tmp_path):
     folder, bundle = synthetic
     _train(folder / "motor.csv", "--target", "power", "--categorical", "programme", "--nodes", 120,
-           "-o", tmp_path / "again.ncz")
-    assert (tmp_path / "again.ncz").read_bytes() == (folder / "motor.ncz").read_bytes()
-    save(bundle, tmp_path / "saved.ncz")
-    assert (tmp_path / "saved.ncz").read_bytes() == (folder / "motor.ncz").read_bytes()
+           "-o", tmp_path / "again.ncast")
+    assert (tmp_path / "again.ncast").read_bytes() == (folder / "motor.ncast").read_bytes()
+    save(bundle, tmp_path / "saved.ncast")
+    assert (tmp_path / "saved.ncast").read_bytes() == (folder / "motor.ncast").read_bytes()
 
 
 HOSTILE = ('*/ int x; /*', '"""; import os; """', "\\\\", "new\nline", "??/", "caf\u00e9 \u2603")

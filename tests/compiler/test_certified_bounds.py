@@ -22,6 +22,7 @@ from nodecast.compiler.bounds.branch import refine
 from nodecast.compiler.bounds.certificate import round_up
 from nodecast.compiler.bounds.ranges import preactivation_ranges
 from nodecast.compiler.bounds.search import find_worst
+from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.reference import hidden_layer, predict
 from nodecast.compiler.verify.runners import runner
 from tests.helpers import run_cli
@@ -138,6 +139,7 @@ CONFIGS = [
 
 
 @pytest.mark.parametrize(("target", "options"), CONFIGS)
+@pytest.mark.slow
 def test_adversarial_search_never_beats_the_bound(friedman_bundle, tmp_path, target, options):
     """Seeded random points of the domain, then local maximisation from the worst: the measured
     error of the real artifact (its own runtime) never exceeds its certified bound."""
@@ -173,12 +175,12 @@ def test_adversarial_search_on_hard_models(request, friedman_bundle_factory, tmp
 @pytest.mark.skipif(not HAS_GCC, reason="no C compiler")
 def test_emit_and_verify_state_the_same_bound_for_a_64_entry_table(friedman_bundle, tmp_path,
                                                                    capsys):
-    model = save(friedman_bundle, tmp_path / "m.ncz")
+    model = save(friedman_bundle, tmp_path / "m.ncast")
     status, _, _ = run_cli(capsys, "emit", model, "--to", "c", "--activation-impl", "table",
                            "--table-size", "64", "-o", tmp_path / "c")
     assert status == 0
-    header = (tmp_path / "c" / "model.h").read_text()
-    stated = float(header.split("MODEL_ERROR_BOUND_0 ")[1].split()[0])
+    header = (tmp_path / "c" / "m.h").read_text()
+    stated = float(header.split("M_ERROR_BOUND_0 ")[1].split()[0])
     status, _, _ = run_cli(capsys, "verify", model, tmp_path / "c", "--abs-tol", "1e9",
                            "--report", tmp_path / "r.json")
     report = json.loads((tmp_path / "r.json").read_text())
@@ -192,7 +194,7 @@ def test_emit_and_verify_state_the_same_bound_for_a_64_entry_table(friedman_bund
                                               ("ACTIVATION_ERROR", "activation_error")])
 def test_verify_refuses_a_header_that_claims_a_wider_bound(friedman_bundle, tmp_path, capsys,
                                                            macro, field):
-    model = save(friedman_bundle, tmp_path / "m.ncz")
+    model = save(friedman_bundle, tmp_path / "m.ncast")
     emit(friedman_bundle, "c", tmp_path / "c")
     header = tmp_path / "c" / "model.h"
     text = header.read_text()
@@ -205,7 +207,7 @@ def test_verify_refuses_a_header_that_claims_a_wider_bound(friedman_bundle, tmp_
 
 def test_verify_refuses_a_python_predictor_that_claims_another_precision(friedman_bundle, tmp_path,
                                                                         capsys):
-    model = save(friedman_bundle, tmp_path / "m.ncz")
+    model = save(friedman_bundle, tmp_path / "m.ncast")
     path = tmp_path / "p.py"
     emit(friedman_bundle, "python", path)
     path.write_text(path.read_text().replace("PRECISION = 'float64'", "PRECISION = 'q15'"))
@@ -214,7 +216,7 @@ def test_verify_refuses_a_python_predictor_that_claims_another_precision(friedma
 
 
 def test_a_changed_weight_is_a_soundness_failure(friedman_bundle, tmp_path, capsys):
-    model = save(friedman_bundle, tmp_path / "m.ncz")
+    model = save(friedman_bundle, tmp_path / "m.ncast")
     path = tmp_path / "p.py"
     emit(friedman_bundle, "python", path)
     text = path.read_text()
@@ -229,11 +231,12 @@ def test_a_changed_weight_is_a_soundness_failure(friedman_bundle, tmp_path, caps
 
 
 @pytest.mark.skipif(not HAS_GCC, reason="no C compiler")
+@pytest.mark.slow
 def test_an_ill_conditioned_q15_artifact_fails_verify_by_default(tmp_path, capsys):
     """ridge 0 and 800 nodes on the demo data: the q15 artifact cannot be proven as good as the
     model, so emit warns and verify fails it with the accuracy message (the old rule passed it)."""
     assert run_cli(capsys, "demo", "--data-only", "-o", tmp_path)[0] == 0
-    model = tmp_path / "m.ncz"
+    model = tmp_path / "m.ncast"
     status, _, err = run_cli(capsys, "train", tmp_path / "readings.csv", "--target",
                              "heatsink_temp", "--ridge", "0", "--nodes", "800", "-o", model)
     assert status == 0, err
@@ -246,7 +249,7 @@ def test_an_ill_conditioned_q15_artifact_fails_verify_by_default(tmp_path, capsy
 
 
 def test_inspect_prints_the_certified_bound(friedman_bundle, tmp_path, capsys):
-    model = save(friedman_bundle, tmp_path / "m.ncz")
+    model = save(friedman_bundle, tmp_path / "m.ncast")
     status, out, _ = run_cli(capsys, "inspect", model, "--precision", "float32", "--json")
     assert status == 0
     document = json.loads(out)
@@ -254,3 +257,12 @@ def test_inspect_prints_the_certified_bound(friedman_bundle, tmp_path, capsys):
     assert document["certified_bound"] == list(expected)
     status, out, _ = run_cli(capsys, "inspect", model, "--precision", "float32")
     assert f"{expected[0]:.3g}" in out and "certified" in out
+
+
+def test_unboundable_fixed_point_export_is_refused(friedman_bundle):
+    net = friedman_bundle.network
+    # since the IR's content limits (docs/reliability.md), such a network cannot even be built
+    with pytest.raises(NodecastError, match="cannot|fit|bounded|beyond"):
+        huge = friedman_bundle.__class__(net.replace(hidden_weights=net.hidden_weights * 1e300),
+                                         friedman_bundle.metadata)
+        emit(huge, "c", precision="q15", out_of_domain="clamp")

@@ -141,6 +141,7 @@ def test_labels_are_stripped_and_empty_labels_refused():
 
 @settings(max_examples=300, deadline=None, derandomize=True, database=None)
 @given(st.lists(st.floats(allow_nan=False, allow_infinity=False, width=64), min_size=1, max_size=5))
+@pytest.mark.slow
 def test_written_numbers_read_back_bit_exactly(values):
     # Python's repr is the shortest string that round-trips (common practice since Python 3.1)
     text = write_table(["v"], [[value] for value in values])
@@ -173,7 +174,7 @@ def test_cli_trains_on_bom_crlf_data_and_predicts_nan_rows(tmp_path, capsys):
     X, y = _readings()
     rows = np.column_stack([X, y]).tolist()
     data = _write(tmp_path / "d.csv", ["u", "v", "y"], rows, ending="\r\n", bom=True)
-    model = tmp_path / "m.ncz"
+    model = tmp_path / "m.ncast"
     code, _, err = run_cli(capsys, *["train", data, "--target", "y", "--nodes", "10", "-o", model])
     assert code == 0, err
     rows = _write(tmp_path / "p.csv", ["v", "u"], [[0.5, 0.5], ["nan", 0.2], [0.1, "inf"]])
@@ -196,19 +197,19 @@ def test_cli_train_refuses_bad_cells_with_line_and_column(cell, expected, tmp_pa
     rows[2][0] = cell  # data row 3 is line 4 of the file
     data = _write(tmp_path / "d.csv", ["u", "v", "y"], rows)
     code, _, err = run_cli(capsys, *["train", data, "--target", "y", "--nodes", "10", "-o",
-                            tmp_path / "m.ncz"])
+                            tmp_path / "m.ncast"])
     assert code == 2 and expected in err and "Traceback" not in err
-    assert not (tmp_path / "m.ncz").exists()
+    assert not (tmp_path / "m.ncast").exists()
 
 
 def test_cli_refuses_duplicate_feature_names_and_duplicated_headers(tmp_path, capsys):
     X, y = _readings()
     data = _write(tmp_path / "d.csv", ["u", "v", "y"], np.column_stack([X, y]).tolist())
     code, _, err = run_cli(capsys, *["train", data, "--target", "y", "--features", "u,u", "--nodes", "5",
-                            "-o", tmp_path / "m.ncz"])
+                            "-o", tmp_path / "m.ncast"])
     assert code == 2 and "feature_names repeats 'u'" in err
     dup = _write(tmp_path / "dup.csv", ["u", "u", "y"], np.column_stack([X, y]).tolist())
-    code, _, err = run_cli(capsys, *["train", dup, "--target", "y", "-o", tmp_path / "m.ncz"])
+    code, _, err = run_cli(capsys, *["train", dup, "--target", "y", "-o", tmp_path / "m.ncast"])
     assert code == 2 and "duplicated column name 'u' (columns 1, 2)" in err
 
 
@@ -221,7 +222,7 @@ def test_cli_classifier_round_trips_hostile_label_text(tmp_path, capsys):
         [repr(float(a)), repr(float(b)), label] for (a, b), label in zip(X, labels, strict=True)])
     data = tmp_path / "d.csv"
     data.write_text(buffer.getvalue(), encoding="utf-8")
-    model = tmp_path / "m.ncz"
+    model = tmp_path / "m.ncast"
     code, _, err = run_cli(capsys, *["train", data, "--target", "kind", "--task", "classification",
                             "--nodes", "30", "-o", model])
     assert code == 0, err
@@ -250,5 +251,5 @@ def test_cli_trains_on_a_yes_no_feature(tmp_path, capsys):
     rows = [[u, "yes" if v > 0.5 else "no", t] for (u, v), t in zip(X, y, strict=True)]
     data = _write(tmp_path / "d.csv", ["u", "fan_on", "y"], rows)
     code, _, err = run_cli(capsys, *["train", data, "--target", "y", "--nodes", "10", "-o",
-                            tmp_path / "m.ncz"])
+                            tmp_path / "m.ncast"])
     assert code == 0, err

@@ -32,13 +32,13 @@ def models(tmp_path_factory):
     held = _write(folder / "held.csv", ["p", "q", "z"], rows(200))
     for seed in (1, 2):
         code = cli_status("train", data, "--target", "z", "--nodes", "40", "--seed", seed,
-                             "--domain", "p=-2:2,q=-1:1", "-o", folder / f"s{seed}.ncz")
+                             "--domain", "p=-2:2,q=-1:1", "-o", folder / f"s{seed}.ncast")
         assert code == 0
     code = cli_status("train", data, "--target", "z", "--nodes", "40", "--seed", 1,
-                         "--domain", "p=-2:2.5,q=-1:1", "-o", folder / "wider.ncz")
+                         "--domain", "p=-2:2.5,q=-1:1", "-o", folder / "wider.ncast")
     assert code == 0
-    return {"folder": folder, "data": data, "held": held, "s1": folder / "s1.ncz",
-            "s2": folder / "s2.ncz", "wider": folder / "wider.ncz"}
+    return {"folder": folder, "data": data, "held": held, "s1": folder / "s1.ncast",
+            "s2": folder / "s2.ncast", "wider": folder / "wider.ncast"}
 
 
 
@@ -107,9 +107,9 @@ def test_a_changed_domain_is_reported_first_and_fails_the_gate(capsys, models):
 def test_models_of_different_inputs_are_refused_in_one_line(capsys, models, tmp_path):
     rows = [[float(a), float(a) ** 2] for a in np.linspace(0, 1, 30)]
     data = _write(tmp_path / "o.csv", ["r", "z"], rows)
-    assert cli_status("train", data, "--target", "z", "--nodes", "5", "-o", tmp_path / "o.ncz") == 0
+    assert cli_status("train", data, "--target", "z", "--nodes", "5", "-o", tmp_path / "o.ncast") == 0
     capsys.readouterr()
-    status, out, err = run_cli(capsys, "diff", models["s1"], tmp_path / "o.ncz")
+    status, out, err = run_cli(capsys, "diff", models["s1"], tmp_path / "o.ncast")
     assert status == 2 and out == "" and len(err.strip().splitlines()) == 1
     assert "different inputs" in err
     status, _, err = run_cli(capsys, "diff", models["s1"], models["s2"], "--max-change", "-1")

@@ -27,7 +27,7 @@ class _Boom(Exception):
 
 
 def test_exception_half_way_through_the_data_keeps_the_old_file(tmp_path, monkeypatch):
-    target = tmp_path / "model.ncz"
+    target = tmp_path / "model.ncast"
     target.write_bytes(b"old model")
     real_fdopen = os.fdopen
 
@@ -96,7 +96,7 @@ def test_multi_file_artifact_is_replaced_all_or_nothing(tmp_path, monkeypatch):
 
 
 def test_existing_outputs_are_refused_without_overwrite(tmp_path):
-    target = tmp_path / "m.ncz"
+    target = tmp_path / "m.ncast"
     target.write_bytes(b"keep me")
     with pytest.raises(NodecastError, match="already exists; pass --overwrite to replace it"):
         files.write_atomic(target, b"new")
@@ -113,7 +113,7 @@ def test_bad_destinations_are_clear_errors(tmp_path):
     with pytest.raises(NodecastError, match="is a folder; give a file name"):
         files.write_atomic(tmp_path, b"x", overwrite=True)
     with pytest.raises(NodecastError, match="does not exist"):
-        files.write_atomic(tmp_path / "absent" / "m.ncz", b"x")
+        files.write_atomic(tmp_path / "absent" / "m.ncast", b"x")
     (tmp_path / "plain").write_bytes(b"")
     with pytest.raises(NodecastError, match="exists and is not a folder"):
         files.write_files(tmp_path / "plain", {"a.c": b""})
@@ -129,7 +129,7 @@ def test_read_only_folder_is_a_clear_error(tmp_path):
     folder.chmod(0o500)
     try:
         with pytest.raises(NodecastError, match="cannot write .*Permission denied"):
-            files.write_atomic(folder / "m.ncz", b"x")
+            files.write_atomic(folder / "m.ncast", b"x")
     finally:
         folder.chmod(0o700)
 
@@ -137,7 +137,7 @@ def test_read_only_folder_is_a_clear_error(tmp_path):
 def test_written_files_get_ordinary_permissions(tmp_path):
     umask = os.umask(0o022)
     try:
-        path = files.write_atomic(tmp_path / "m.ncz", b"x")
+        path = files.write_atomic(tmp_path / "m.ncast", b"x")
     finally:
         os.umask(umask)
     assert path.stat().st_mode & 0o777 == 0o644  # what open(path, "w") gives under umask 022
@@ -149,7 +149,7 @@ def test_written_files_get_ordinary_permissions(tmp_path):
 def bundle_file(tmp_path_factory):
     from tests.compiler.test_bundle_integrity import tiny_bundle
 
-    path = tmp_path_factory.mktemp("bundle") / "tiny.ncz"
+    path = tmp_path_factory.mktemp("bundle") / "tiny.ncast"
     bundle_io.save(tiny_bundle(), path)
     return path
 
@@ -195,6 +195,7 @@ CHILD = textwrap.dedent("""
 
 
 @pytest.mark.parametrize("sig", [signal.SIGTERM, signal.SIGKILL])
+@pytest.mark.slow
 def test_killed_emit_never_leaves_a_half_written_artifact(bundle_file, tmp_path, sig):
     existing = tmp_path / "out.onnx"
     existing.write_bytes(b"precious")

@@ -72,6 +72,7 @@ def _median_counts(bundle, core, **options):
     return ic.count_instructions(artifact.files, info, X, core)
 
 
+@pytest.mark.slow
 def test_counts_repeat_across_runs_and_grow_linearly_with_nodes(ten_input_bundles):
     need(*TOOLS)
     options = {"precision": "q15", "out_of_domain": "clamp"}
@@ -101,7 +102,7 @@ def test_parse_counts_refuses_broken_or_wrapped_output():
 
 def test_emit_and_inspect_print_instruction_counts(ten_input_bundles, tmp_path):
     need("gcc", *TOOLS)
-    model = tmp_path / "m.ncz"
+    model = tmp_path / "m.ncast"
     save(ten_input_bundles[25], model)
     runner = CliRunner()
     result = runner.invoke(cli, ["emit", str(model), "--to", "c", "--precision", "q15",

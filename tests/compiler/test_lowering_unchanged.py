@@ -21,6 +21,7 @@ RECORDED = json.loads((DATA / "demo_fan_outputs.json").read_text())
 
 @pytest.mark.parametrize("target,options", record.CONFIGS,
                          ids=[record.config_name(t, o) for t, o in record.CONFIGS])
+@pytest.mark.slow
 def test_artifact_computes_what_it_computed_before(target, options, tmp_path):
     if target == "c" and shutil.which("cc") is None and shutil.which("gcc") is None:
         pytest.skip("no C compiler")

@@ -74,9 +74,9 @@ def test_default_opset_model_computes_the_reference(friedman_bundle):
 def test_graph_and_input_doc_strings_give_the_input_order(capsys, friedman_bundle, tmp_path):
     from nodecast.compiler import save
 
-    save(friedman_bundle, tmp_path / "m.ncz")
+    save(friedman_bundle, tmp_path / "m.ncast")
     try:
-        main(["emit", str(tmp_path / "m.ncz"), "--to", "onnx", "-o", str(tmp_path / "m.onnx")])
+        main(["emit", str(tmp_path / "m.ncast"), "--to", "onnx", "-o", str(tmp_path / "m.onnx")])
     except SystemExit as exc:
         assert exc.code in (0, None)
     model = onnx.load(tmp_path / "m.onnx")

@@ -82,15 +82,15 @@ def test_only_float64_is_accepted(friedman_bundle, precision):
 
 
 def test_unknown_policy_is_refused(friedman_bundle):
-    with pytest.raises(NodecastError, match="out-of-domain policy"):
+    with pytest.raises(NodecastError, match="--out-of-domain clamp, pass, reject"):
         emit(friedman_bundle, "python", out_of_domain="ignore")
 
 
 def test_cli_refuses_float32_with_one_line_and_exit_2(friedman_bundle, tmp_path):
     from nodecast.compiler import save
 
-    save(friedman_bundle, tmp_path / "m.ncz")
-    command = ["emit", str(tmp_path / "m.ncz"), "--to", "python", "--precision", "float32",
+    save(friedman_bundle, tmp_path / "m.ncast")
+    command = ["emit", str(tmp_path / "m.ncast"), "--to", "python", "--precision", "float32",
                "-o", str(tmp_path / "p.py")]
     done = subprocess.run([sys.executable, "-m", "nodecast.cli", *command],
                           capture_output=True, text=True)

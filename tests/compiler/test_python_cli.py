@@ -96,8 +96,8 @@ def test_values_equal_the_reference_and_nodecast_predict(friedman_bundle, files,
     got = np.array([[float(cell) for cell in record] for record in body])
     span = np.ptp(reference.predict(net, rows(net, 2000, seed=4)))
     assert np.max(np.abs(got - reference.predict(net, X))) <= 1e-10 * span  # SPEC "Numerics"
-    save(friedman_bundle, tmp_path / "m.ncz")
-    main(["predict", str(tmp_path / "m.ncz"), str(tmp_path / "in.csv"), "-o",
+    save(friedman_bundle, tmp_path / "m.ncast")
+    main(["predict", str(tmp_path / "m.ncast"), str(tmp_path / "in.csv"), "-o",
           str(tmp_path / "ref.csv")])
     ref_header, ref_body = parse((tmp_path / "ref.csv").read_bytes())
     ref = np.array([[float(cell) for cell in record] for record in ref_body])

@@ -187,6 +187,7 @@ def test_multi_output_networks_match_reference(activation, tmp_path):
     assert_matches_reference(bundle.network, probes, got, "pass")
 
 
+@pytest.mark.slow
 def test_every_interpreter_on_the_machine_passes_verify(friedman_bundle, predictors):
     found = runner.find_interpreters()
     assert (sys.version_info[0], sys.version_info[1]) in found

@@ -43,9 +43,9 @@ def files(friedman_bundle, friedman_bundle_factory, classifier_bundle, friedman_
     tagged = Bundle(classifier_bundle.network,
                     {**classifier_bundle.metadata, "targets": ["species"]})
     weak = friedman_bundle_factory(n_nodes=8, rows=2000, seed=0)
-    return {"folder": folder, "good": save(friedman_bundle, folder / "good.ncz"),
-            "weak": save(weak, folder / "weak.ncz"), "iris": save(tagged, folder / "iris.ncz"),
-            "iris_untagged": save(classifier_bundle, folder / "iris0.ncz"),
+    return {"folder": folder, "good": save(friedman_bundle, folder / "good.ncast"),
+            "weak": save(weak, folder / "weak.ncast"), "iris": save(tagged, folder / "iris.ncast"),
+            "iris_untagged": save(classifier_bundle, folder / "iris0.ncast"),
             "data": folder / "data.csv", "iris_data": folder / "iris.csv", "weak_bundle": weak}
 
 
@@ -154,12 +154,12 @@ def test_accuracy_baseline_margin_is_an_absolute_drop(classifier_bundle, files):
 def test_bad_input_is_exit_2_with_one_line(capsys, files, friedman_bundle_factory):
     other_target = Bundle(files["weak_bundle"].network.replace(target_names=("z",)),
                           files["weak_bundle"].metadata)
-    save(other_target, files["folder"] / "z.ncz", overwrite=True)
+    save(other_target, files["folder"] / "z.ncast", overwrite=True)
     no_target = files["folder"] / "features-only.csv"
     no_target.write_text("x0,x1,x2,x3,x4\n0.1,0.2,0.3,0.4,0.5\n")
     cases = [
         (("score", files["good"], files["data"], "--min-accuracy", "0.5"), "--min-accuracy"),
-        (("score", files["good"], files["data"], "--baseline", files["folder"] / "z.ncz"),
+        (("score", files["good"], files["data"], "--baseline", files["folder"] / "z.ncast"),
          "same targets"),
         (("score", files["good"], no_target), "'y'"),
         (("score", files["iris_untagged"], files["iris_data"]), "--label-column"),

@@ -32,13 +32,14 @@ def readings(tmp_path_factory):
 
 
 def _select(readings, tmp_path, *options):
-    out = tmp_path / "chosen.ncz"
+    out = tmp_path / "chosen.ncast"
     args = ["select", str(readings), "--target", "heatsink_temp", "--nodes", "20,60",
             "--ridge", "1e-6", "--folds", "3", "-o", str(out), "--report",
             str(tmp_path / "cv.json"), *options]
     return CliRunner().invoke(cli, args), out
 
 
+@pytest.mark.slow
 def test_a_flash_budget_below_the_full_model_picks_one_that_fits(readings, tmp_path):
     need(*TOOLS)
     result, out = _select(readings, tmp_path, "--max-flash", "1800")
@@ -53,6 +54,7 @@ def test_a_flash_budget_below_the_full_model_picks_one_that_fits(readings, tmp_p
     assert frontier[0]["cv_rmse"] > frontier[1]["cv_rmse"]  # the budget costs accuracy
 
 
+@pytest.mark.slow
 def test_a_cycle_budget_is_met_by_the_chosen_model_on_its_own_weights(readings, tmp_path):
     need(*TOOLS)
     result, out = _select(readings, tmp_path, "--max-cycles", "6000", "--core", "cortex-m0",
@@ -66,9 +68,10 @@ def test_a_cycle_budget_is_met_by_the_chosen_model_on_its_own_weights(readings, 
     assert np.median(counts) * ASSUMED_CPI["cortex-m0"] <= 6000 * 1.02  # weights move counts ~1%
 
 
+@pytest.mark.slow
 def test_an_impossible_budget_exits_2_naming_the_smallest_achievable_size(readings, tmp_path):
     need(*TOOLS)
-    out = tmp_path / "chosen.ncz"
+    out = tmp_path / "chosen.ncast"
     result = subprocess.run([sys.executable, "-m", "nodecast.cli", "select", str(readings),
                              "--target", "heatsink_temp", "--nodes", "20,60", "--folds", "3",
                              "--max-flash", "300", "-o", str(out)],

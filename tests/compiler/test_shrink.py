@@ -133,7 +133,7 @@ def test_a_zero_budget_removes_nothing_that_changes_outputs_and_bad_budgets_are_
 
 def test_shrink_cli_records_what_it_did_and_inspect_lists_planted_nodes(friedman_bundle, tmp_path):
     planted, extra = _planted(friedman_bundle.network)
-    source = tmp_path / "planted.ncz"
+    source = tmp_path / "planted.ncast"
     save(Bundle(planted, {"metrics": {"validation": {"rmse": [1.0]}}}), source)
     runner = CliRunner()
     shown = runner.invoke(cli, ["inspect", str(source), "--json"])
@@ -143,7 +143,7 @@ def test_shrink_cli_records_what_it_did_and_inspect_lists_planted_nodes(friedman
     assert {j for j, _ in pairs} >= extra - set(range(200, 200 + CONSTANT))
     assert sum(s == -1 for _, s in pairs) >= NEGATED
     assert "near-duplicate node pairs" in runner.invoke(cli, ["inspect", str(source)]).output
-    small = tmp_path / "small.ncz"
+    small = tmp_path / "small.ncast"
     result = runner.invoke(cli, ["shrink", str(source), "--max-error", "1e-6", "-o", str(small)])
     assert result.exit_code == 0, result.output
     record = load(small).metadata["shrink"]
@@ -173,12 +173,12 @@ def test_data_re_solves_the_output_layer_and_reports_it(tmp_path):
 
     X, y = make_friedman1(600, n_features=5, noise=0.5, random_state=2)
     model = RandomNodeRegressor(n_nodes=60, ridge=1e-3, random_state=2).fit(X, y)
-    source = tmp_path / "m.ncz"
+    source = tmp_path / "m.ncast"
     save(to_bundle(model, feature_names=[f"x{i}" for i in range(5)], target_names=["y"]), source)
     data = tmp_path / "rows.csv"
     data.write_text("x0,x1,x2,x3,x4,y\n" + "".join(
         ",".join(repr(float(v)) for v in (*row, t)) + "\n" for row, t in zip(X, y, strict=True)))
-    out = tmp_path / "small.ncz"
+    out = tmp_path / "small.ncast"
     result = CliRunner().invoke(cli, ["shrink", str(source), "--max-error", "0.3", "--data",
                                       str(data), "-o", str(out)])
     assert result.exit_code == 0, result.output

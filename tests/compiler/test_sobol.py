@@ -33,12 +33,13 @@ def _modules_after(args: list[str]) -> set[str]:
     return set(result.stdout.split())
 
 
+@pytest.mark.slow
 def test_help_imports_no_numpy_and_emit_no_scipy_stats(tmp_path, friedman_bundle):
     from nodecast.compiler import save
 
     assert "numpy" not in _modules_after(["--help"])
-    save(friedman_bundle, tmp_path / "m.ncz")
+    save(friedman_bundle, tmp_path / "m.ncast")
     for target, out in (("python", "m.py"), ("c", "c")):
-        loaded = _modules_after(["emit", str(tmp_path / "m.ncz"), "--to", target,
+        loaded = _modules_after(["emit", str(tmp_path / "m.ncast"), "--to", target,
                                  "-o", str(tmp_path / out)])
         assert "scipy.stats" not in loaded and "sklearn" not in loaded, target

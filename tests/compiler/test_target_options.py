@@ -61,6 +61,7 @@ def test_values_outside_the_spec_are_refused(demo_bundle, target, options, messa
         emit(demo_bundle, target, **options)
 
 
+@pytest.mark.slow
 def test_fixed_point_defaults_to_clamp(demo_bundle):
     """`emit --to c --precision q15` works as typed: fixed point cannot pass inputs outside the
     domain, so its default policy is clamp (the float default stays pass)."""

@@ -27,7 +27,7 @@ SCHEMA_KEYS = {"passed", "bundle_id", "task", "artifact", "outputs", "max_abs_er
 @pytest.fixture(scope="module")
 def onnx_files(friedman_bundle, tmp_path_factory):
     folder = tmp_path_factory.mktemp("verify")
-    paths = {"bundle": save(friedman_bundle, folder / "m.ncz")}
+    paths = {"bundle": save(friedman_bundle, folder / "m.ncast")}
     for precision in ("float32", "float64"):
         paths[precision] = folder / "m32.onnx" if precision == "float32" else folder / "m64.onnx"
         emit(friedman_bundle, "onnx", paths[precision], precision=precision)
@@ -37,6 +37,7 @@ def onnx_files(friedman_bundle, tmp_path_factory):
 
 
 @pytest.mark.parametrize("precision", ["float32", "float64"])
+@pytest.mark.slow
 def test_default_model_passes_in_both_engines_with_the_documented_schema(
         friedman_bundle, onnx_files, precision):
     report = verify(friedman_bundle, onnx_files[precision], count=2048)

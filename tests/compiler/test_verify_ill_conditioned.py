@@ -11,6 +11,8 @@ from nodecast.compiler import emit
 from nodecast.compiler.typical_error import UNIT_ROUNDOFF
 from nodecast.compiler.verify import format_table, verify
 
+pytestmark = pytest.mark.slow  # the 1,500-node ridge-0 fixture takes 20 s to fit
+
 
 @pytest.fixture(scope="module")
 def reports(ill_conditioned_bundle, tmp_path_factory):

@@ -102,6 +102,7 @@ def models(friedman_bundle_factory):
 
 @pytest.mark.parametrize("kind, precision", CASES)
 @pytest.mark.parametrize("seed", SEEDS)
+@pytest.mark.slow
 def test_one_ulp_passes_and_one_percent_fails(models, tmp_path, kind, precision, seed):
     bundle = models[seed]
     path = tmp_path / SUFFIX[kind]

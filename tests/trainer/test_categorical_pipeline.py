@@ -132,10 +132,10 @@ def test_select_takes_categorical_columns(tmp_path):
     try:
         main(["select", str(tmp_path / "data.csv"), "--target", "y", "--categorical", "level",
               "--nodes", "20,40", "--ridge", "1e-6", "--folds", "3", "-o",
-              str(tmp_path / "m.ncz")])
+              str(tmp_path / "m.ncast")])
     except SystemExit as exc:
         assert exc.code in (0, None)
-    net = load(tmp_path / "m.ncz").network
+    net = load(tmp_path / "m.ncast").network
     assert net.categorical_levels == (("a", "b", "c"),)
     got = reference.predict(net, [[0.5, 0], [0.5, 1], [0.5, 2]])[:, 0]
     assert abs((got[1] - got[0]) - 2.0) < 0.2 and abs((got[2] - got[0]) + 1.0) < 0.2

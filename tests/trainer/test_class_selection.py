@@ -88,6 +88,7 @@ def test_chosen_model_classifies_held_out_rows(loader, floor):
     assert accuracy >= floor, (accuracy, result.chosen)
 
 
+@pytest.mark.slow
 def test_results_do_not_depend_on_jobs():
     from sklearn.datasets import load_breast_cancer
 
@@ -123,7 +124,7 @@ def test_cli_select_classification_refit_equals_train_with_the_chosen_options(tm
     (tmp_path / "d.csv").write_text(write_table(header, rows))
     args = ["select", str(tmp_path / "d.csv"), "--target", "diagnosis", "--task", "classification",
             "--score", "log-loss", "--nodes", "20,60", "--ridge", "1e-6,1e-2", "--folds", "3",
-            "-o", str(tmp_path / "s.ncz"), "--report", str(tmp_path / "r.json")]
+            "-o", str(tmp_path / "s.ncast"), "--report", str(tmp_path / "r.json")]
     assert main(args) in (0, None)
     report = json.loads((tmp_path / "r.json").read_text())
     chosen = report["chosen"]
@@ -131,8 +132,8 @@ def test_cli_select_classification_refit_equals_train_with_the_chosen_options(tm
     assert main(["train", str(tmp_path / "d.csv"), "--target", "diagnosis", "--task",
                  "classification", "--nodes", str(chosen["n_nodes"]), "--ridge",
                  repr(chosen["ridge"]), "--neighbors", "default", "--slope-scale",
-                 repr(chosen["slope_scale"]), "-o", str(tmp_path / "t.ncz")]) in (0, None)
-    selected, trained = load(tmp_path / "s.ncz"), load(tmp_path / "t.ncz")
+                 repr(chosen["slope_scale"]), "-o", str(tmp_path / "t.ncast")]) in (0, None)
+    selected, trained = load(tmp_path / "s.ncast"), load(tmp_path / "t.ncast")
     assert np.array_equal(selected.network.output_weights, trained.network.output_weights)
     assert selected.network.target_names == ("benign", "malignant")
     assert selected.metadata["metrics"]["cross_validation"]["mean"] == pytest.approx(chosen["mean"])
@@ -144,5 +145,5 @@ def test_cli_select_classification_refuses_a_precision_budget(tmp_path, capsys):
     (tmp_path / "d.csv").write_text("a,b\n" + "".join(f"{i},{i % 2}\n" for i in range(30)))
     with pytest.raises(SystemExit) as done:
         main(["select", str(tmp_path / "d.csv"), "--target", "b", "--task", "classification",
-              "--precision", "float32", "-o", str(tmp_path / "s.ncz")])
+              "--precision", "float32", "-o", str(tmp_path / "s.ncast")])
     assert done.value.code == 2 and "are for regression" in capsys.readouterr().err

@@ -124,7 +124,7 @@ def test_killed_worker_gives_one_line_and_no_bundle(cluster, tmp_path, monkeypat
     header = ("flow", "load", "drift", "rise", "grade")
     rows = ClusterRows([delayed(_die)(None)], [200])
     monkeypatch.setattr(frames, "file_partitions", lambda *args: (header, rows))
-    out = tmp_path / "model.ncz"
+    out = tmp_path / "model.ncast"
     with pytest.raises(SystemExit) as stop:
         main(["train", str(path), "--target", "rise", "--features", "flow,load,drift",
               "--cluster", cluster.scheduler.address, "-o", str(out)])

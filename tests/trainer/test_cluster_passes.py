@@ -64,7 +64,7 @@ def test_partition_passes_give_the_single_process_model(tmp_path, synchronous, c
 
 def test_a_bad_cell_read_on_the_cluster_is_one_line(tmp_path, synchronous, capsys):
     path = _log(tmp_path / "pump.csv", bad=700)
-    out = tmp_path / "pump.ncz"
+    out = tmp_path / "pump.ncast"
     with pytest.raises(SystemExit) as stop:
         main(["train", str(path), "--target", "power", "--cluster", "sync", "-o", str(out)])
     err = capsys.readouterr().err.strip().splitlines()

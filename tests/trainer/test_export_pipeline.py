@@ -122,6 +122,7 @@ def test_classifier_pipeline_keeps_its_labels():
 @pytest.mark.parametrize("to,options", [("python", {}), ("onnx", {"precision": "float32"}),
                                         ("onnx", {"precision": "float64"}),
                                         ("c", {"precision": "float32"}), ("c", {"precision": "float64"})])
+@pytest.mark.slow
 def test_every_artifact_agrees_with_pipeline_predict(scaled_pipeline, diabetes, tmp_path, to, options):
     if to == "c":
         import shutil

@@ -96,12 +96,12 @@ def test_cli_grow_writes_the_curve(friedman, tmp_path):
     (tmp_path / "d.csv").write_text("\n".join(lines) + "\n")
     main(["select", str(tmp_path / "d.csv"), "--target", "out", "--nodes", "10,20",
           "--neighbors", "15", "--ridge", "1e-6", "--folds", "3", "--grow", "--grow-batch", "10",
-          "--grow-pool", "60", "-o", str(tmp_path / "g.ncz"), "--report", str(tmp_path / "g.json"),
+          "--grow-pool", "60", "-o", str(tmp_path / "g.ncast"), "--report", str(tmp_path / "g.json"),
           "--plot", str(tmp_path / "g.png")])
     report = json.loads((tmp_path / "g.json").read_text())
     assert report["growth"]["curve"] and report["growth"]["pool"] == 60
     from nodecast.compiler import load
 
-    bundle = load(tmp_path / "g.ncz")
+    bundle = load(tmp_path / "g.ncast")
     assert bundle.network.n_nodes == report["growth"]["nodes"]
     assert bundle.metadata["selection"]["grown"] is True

@@ -92,7 +92,7 @@ def test_counts_are_in_the_bundle_and_shown_by_inspect(tmp_path, capsys):
     lines += [",".join([*(repr(float(v)) for v in row[:6]), "yes" if row[6] else "no",
                         repr(float(row[7])), repr(float(t))]) for row, t in zip(X, y, strict=True)]
     data.write_text("\n".join(lines) + "\n")
-    model = tmp_path / "wear.ncz"
+    model = tmp_path / "wear.ncast"
     assert main(["train", str(data), "--target", "wear", "-o", str(model)]) in (0, None)
     diagnostics = load(model).metadata["diagnostics"]
     for key in ("rank_deficient_fits", "damped_fits", "capped_slopes"):

@@ -99,7 +99,7 @@ def test_train_notes_heavy_tailed_inputs_in_one_line(tmp_path, capsys):
     rows = np.column_stack([flow, level, np.log(flow) + level]).tolist()
     (tmp_path / "pump.csv").write_text(write_table(["flow", "level", "y"], rows))
     assert main(["train", str(tmp_path / "pump.csv"), "--target", "y", "--nodes", "30", "-o",
-                 str(tmp_path / "m.ncz")]) in (0, None)
+                 str(tmp_path / "m.ncast")]) in (0, None)
     lines = capsys.readouterr().err.splitlines()
     notes = [line for line in lines if line.startswith("note: heavy-tailed")]
     assert len(notes) == 1 and "'flow'" in notes[0] and "'level'" not in notes[0]

@@ -120,6 +120,7 @@ def test_validation_rows_never_shape_their_own_model(friedman):
     assert unit.rmse[0, 1, 0] == pytest.approx(expected, rel=1e-9)
 
 
+@pytest.mark.slow
 def test_result_does_not_depend_on_n_jobs(friedman):
     X, y = friedman
     small = dict(nodes=[10, 30], neighbors=[12, 20], ridges=[0.0, 1e-6])

@@ -32,7 +32,7 @@ def selected(table):
     out = table.parent
     code = cli_status("select", table, "--target", "torque", *SEARCH, "--seed", 5,
                "--domain", "speed=0:1", "--units", "torque=N*m",
-               "-o", out / "m.ncz", "--report", out / "cv.json", "--plot", out / "cv.png")
+               "-o", out / "m.ncast", "--report", out / "cv.json", "--plot", out / "cv.png")
     assert code == 0
     return out
 
@@ -44,8 +44,8 @@ def test_train_with_the_chosen_options_reproduces_the_arrays(table, selected):
                chosen["method"], "--slope-scale", repr(settings["slope_scale"]),
                "--neighbors", settings["n_neighbors"] or "default"]
     assert cli_status("train", table, "--target", "torque", *options, "--seed", 5,
-               "--domain", "speed=0:1", "--units", "torque=N*m", "-o", selected / "t.ncz") == 0
-    ours, theirs = load(selected / "m.ncz"), load(selected / "t.ncz")
+               "--domain", "speed=0:1", "--units", "torque=N*m", "-o", selected / "t.ncast") == 0
+    ours, theirs = load(selected / "m.ncast"), load(selected / "t.ncast")
     for name, array in theirs.network.arrays().items():
         assert np.array_equal(ours.network.arrays()[name], array), name
     assert ours.metadata["settings"] == theirs.metadata["settings"]
@@ -60,10 +60,10 @@ def test_report_holds_every_point_and_is_reproducible(table, selected):
     best = min(report["points"], key=lambda p: p["score"])
     assert best["rmse_mean"] == report["chosen"]["rmse_mean"]
     assert cli_status("select", table, "--target", "torque", *SEARCH, "--seed", 5, "--domain",
-               "speed=0:1", "--units", "torque=N*m", "-o", selected / "again.ncz",
+               "speed=0:1", "--units", "torque=N*m", "-o", selected / "again.ncast",
                "--report", selected / "again.json") == 0
     assert (selected / "again.json").read_bytes() == (selected / "cv.json").read_bytes()
-    assert (selected / "again.ncz").read_bytes() == (selected / "m.ncz").read_bytes()
+    assert (selected / "again.ncast").read_bytes() == (selected / "m.ncast").read_bytes()
 
 
 def test_plot_is_a_png(selected):
@@ -73,20 +73,20 @@ def test_plot_is_a_png(selected):
 
 def test_budget_reports_the_estimate(table, selected, capsys):
     code = cli_status("select", table, "--target", "torque", *SEARCH, "--precision", "float32",
-               "--tolerance", "0.5", "-o", selected / "b.ncz", "--report", selected / "b.json")
+               "--tolerance", "0.5", "-o", selected / "b.ncast", "--report", selected / "b.json")
     assert code == 0
     report = json.loads((selected / "b.json").read_text())
     assert max(report["final_estimate"]["certified_bound"]) <= 0.5
     assert "certified float32 export error" in capsys.readouterr().err
-    assert load(selected / "b.ncz").metadata["selection"]["tolerance"] == 0.5
+    assert load(selected / "b.ncast").metadata["selection"]["tolerance"] == 0.5
 
 
 def test_no_point_meeting_the_tolerance_is_exit_2(table, selected, capsys):
     code = cli_status("select", table, "--target", "torque", *SEARCH, "--precision", "float32",
-               "--tolerance", "1e-12", "-o", selected / "none.ncz")
+               "--tolerance", "1e-12", "-o", selected / "none.ncast")
     err = capsys.readouterr().err.strip()
     assert code == 2 and "best estimated export error is" in err and len(err.splitlines()) == 1
-    assert not (selected / "none.ncz").exists()
+    assert not (selected / "none.ncast").exists()
 
 
 @pytest.mark.parametrize("args, words", [
@@ -104,7 +104,7 @@ def test_bad_input_is_one_line_and_exit_2(table, tmp_path, capsys, args, words):
     for key, value in zip(args[::2], args[1::2], strict=True):
         base[key] = value
     flat = [item for pair in base.items() for item in pair]
-    code = cli_status("select", table, *flat, "-o", tmp_path / "x.ncz")
+    code = cli_status("select", table, *flat, "-o", tmp_path / "x.ncast")
     err = capsys.readouterr().err.strip()
     assert code == 2 and words in err and len(err.splitlines()) == 1, err
 

@@ -40,7 +40,7 @@ def test_train_reproduces_the_chosen_generator(rig, method, grid, train_option):
     out = rig.parent / method
     assert cli_status("select", rig, "--target", "torque", "--method", f"{method},data-driven", *grid,
                "--nodes", "20,60", "--ridge", "1e-6,1e-2", "--folds", 3, "--seed", 2,
-               "--report", f"{out}.json", "-o", f"{out}.ncz") == 0
+               "--report", f"{out}.json", "-o", f"{out}.ncast") == 0
     report = json.loads(open(f"{out}.json").read())
     assert {p["method"] for p in report["points"]} == {method, "data-driven"}
     assert len(report["points"]) == 2 * 2 * (2 + 1)  # nodes x ridges x layers
@@ -54,16 +54,16 @@ def test_train_reproduces_the_chosen_generator(rig, method, grid, train_option):
     assert cli_status("select", rig, "--target", "torque", "--method", method,
                f"--{param.replace('_', '-')}s", text, "--nodes",
                best[method]["nodes"], "--ridge", repr(best[method]["ridge"]), "--folds", 3,
-               "--seed", 2, "-o", f"{out}-one.ncz") == 0
+               "--seed", 2, "-o", f"{out}-one.ncast") == 0
     assert cli_status("train", rig, "--target", "torque", "--method", method, option, text, "--nodes",
                best[method]["nodes"], "--ridge", repr(best[method]["ridge"]), "--seed", 2,
-               "-o", f"{out}-train.ncz") == 0
-    selected, trained = load(f"{out}-one.ncz"), load(f"{out}-train.ncz")
+               "-o", f"{out}-train.ncast") == 0
+    selected, trained = load(f"{out}-one.ncast"), load(f"{out}-train.ncast")
     for name, array in trained.network.arrays().items():
         assert np.array_equal(selected.network.arrays()[name], array), name
     assert selected.metadata["settings"]["method"] == method
     assert selected.metadata["selection"]["chosen"]["method"] == method
-    chosen = load(f"{out}.ncz").metadata["selection"]["chosen"]
+    chosen = load(f"{out}.ncast").metadata["selection"]["chosen"]
     assert chosen["method"] == report["chosen"]["method"]
 
 
@@ -98,9 +98,9 @@ def test_default_k_and_s_are_the_gcv_best_candidate_and_reproducible():
 
 
 def test_train_says_what_it_picked(rig, capsys):
-    assert cli_status("train", rig, "--target", "torque", "--nodes", 40, "-o", rig.parent / "d.ncz") == 0
+    assert cli_status("train", rig, "--target", "torque", "--nodes", 40, "-o", rig.parent / "d.ncast") == 0
     err = capsys.readouterr().err
-    bundle = load(rig.parent / "d.ncz")
+    bundle = load(rig.parent / "d.ncast")
     k, s = bundle.metadata["diagnostics"]["neighbors"], bundle.metadata["layer_choice"]["slope_scale"]
     assert f"chose neighbors={k} slope_scale={s:g}" in err
     assert bundle.metadata["settings"]["n_neighbors"] == "auto"

@@ -83,7 +83,7 @@ def test_any_chunk_size_and_parquet_give_the_same_bundle(tmp_path, bench_csv):
 def test_cli_chunked_and_whole_reads_write_the_same_file(tmp_path, bench_csv):
     outputs = []
     for extra in ([], ["--chunk-rows", "100"]):
-        out = tmp_path / f"model{len(extra)}.ncz"
+        out = tmp_path / f"model{len(extra)}.ncast"
         main(["train", str(bench_csv), "--target", "rise", "--features", "flow,stage,drift",
               "--nodes", "30", "-o", str(out)] + extra)
         outputs.append(out.read_bytes())
@@ -133,7 +133,7 @@ def test_bad_cell_in_a_late_chunk_names_its_line_and_writes_nothing(tmp_path, ca
     lines = path.read_text().splitlines()
     lines[500] = lines[500].replace(lines[500].split(",")[1], "", 1)  # an empty cell, file line 501
     path.write_text("\n".join(lines) + "\n")
-    out = tmp_path / "model.ncz"
+    out = tmp_path / "model.ncast"
     with pytest.raises(SystemExit) as stop:
         main(["train", str(path), "--target", "rise", "--features", "flow,stage,drift",
               "--chunk-rows", "64", "-o", str(out)])

@@ -41,11 +41,11 @@ def good_rows():
 ])
 def test_bad_data_is_exit_2_with_one_line(tmp_path, capsys, good_rows, case, edit, words):
     data = write_csv(tmp_path / "d.csv", ["a", "b", "y"], edit(good_rows))
-    code, err = _run(capsys, "train", data, "--target", "y", "-o", tmp_path / "m.ncz")
+    code, err = _run(capsys, "train", data, "--target", "y", "-o", tmp_path / "m.ncast")
     assert code == 2, err
     assert len(err.strip().splitlines()) == 1 and "Traceback" not in err
     assert all(word in err for word in words), err
-    assert not (tmp_path / "m.ncz").exists()
+    assert not (tmp_path / "m.ncast").exists()
 
 
 @pytest.mark.parametrize("domain, words", [
@@ -57,7 +57,7 @@ def test_bad_data_is_exit_2_with_one_line(tmp_path, capsys, good_rows, case, edi
 def test_a_domain_that_cannot_hold_the_data_is_exit_2(tmp_path, capsys, good_rows, domain, words):
     data = write_csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
     code, err = _run(capsys, "train", data, "--target", "y", "--domain", domain,
-                     "-o", tmp_path / "m.ncz")
+                     "-o", tmp_path / "m.ncast")
     assert code == 2, err
     assert len(err.strip().splitlines()) == 1 and all(word in err for word in words), err
 
@@ -70,16 +70,16 @@ def test_a_box_that_holds_no_row_is_exit_2_even_if_each_range_holds_some(tmp_pat
     domain = f"a=0:{float(rows[first_a, 0])!r},b=0:{float(rows[first_b, 1])!r}"
     data = write_csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
     code, err = _run(capsys, "train", data, "--target", "y", "--domain", domain,
-                     "-o", tmp_path / "m.ncz")
+                     "-o", tmp_path / "m.ncast")
     assert code == 2 and "contains none of the 120 rows" in err, err
 
 
 def test_rows_outside_a_declared_domain_are_reported_not_dropped(tmp_path, capsys, good_rows):
     data = write_csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
     code, err = _run(capsys, "train", data, "--target", "y", "--domain", "a=0:0.5",
-                     "--units", "a=m,y=K", "-o", tmp_path / "m.ncz")
+                     "--units", "a=m,y=K", "-o", tmp_path / "m.ncast")
     assert code == 0, err
-    bundle = load(tmp_path / "m.ncz")
+    bundle = load(tmp_path / "m.ncast")
     beyond = sum(1 for a, _, _ in good_rows if a > 0.5)
     assert bundle.metadata["rows_outside_domain"] == beyond > 0
     assert bundle.metadata["diagnostics"]["rows_outside_domain"] == beyond
@@ -90,7 +90,7 @@ def test_rows_outside_a_declared_domain_are_reported_not_dropped(tmp_path, capsy
 def test_more_nodes_than_memory_allows_is_refused_with_the_estimate(tmp_path, capsys, good_rows):
     data = write_csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
     code, err = _run(capsys, "train", data, "--target", "y", "--nodes", 3_000_000,
-                     "-o", tmp_path / "m.ncz")
+                     "-o", tmp_path / "m.ncast")
     assert code == 2 and "GiB" in err and "use fewer nodes" in err, err
     assert len(err.strip().splitlines()) == 1
 
@@ -98,14 +98,14 @@ def test_more_nodes_than_memory_allows_is_refused_with_the_estimate(tmp_path, ca
 @pytest.mark.parametrize("value", ["-1", "lots", "nan"])
 def test_a_bad_ridge_is_exit_2(tmp_path, capsys, good_rows, value):
     data = write_csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
-    code, err = _run(capsys, "train", data, "--target", "y", "--ridge", value, "-o", tmp_path / "m.ncz")
+    code, err = _run(capsys, "train", data, "--target", "y", "--ridge", value, "-o", tmp_path / "m.ncast")
     assert code == 2 and "--ridge" in err, err
 
 
 def test_a_classifier_needs_two_classes(tmp_path, capsys, good_rows):
     data = write_csv(tmp_path / "d.csv", ["a", "b", "label"], [[a, b, "cold"] for a, b, _ in good_rows])
     code, err = _run(capsys, "train", data, "--target", "label", "--task", "classification",
-                     "-o", tmp_path / "m.ncz")
+                     "-o", tmp_path / "m.ncast")
     assert code == 2 and "single class" in err, err
 
 
@@ -117,10 +117,10 @@ def test_inspect_shows_saturation_over_the_training_data(tmp_path, capsys, good_
 
     data = write_csv(tmp_path / "d.csv", ["a", "b", "y"], good_rows)
     assert _run(capsys, "train", data, "--target", "y", "--method", "interval", "--interval", 40,
-                "--nodes", 60, "-o", tmp_path / "m.ncz")[0] == 0
-    main(["inspect", str(tmp_path / "m.ncz"), "--json"])
+                "--nodes", 60, "-o", tmp_path / "m.ncast")[0] == 0
+    main(["inspect", str(tmp_path / "m.ncast"), "--json"])
     description = json.loads(capsys.readouterr().out)
-    net = load(tmp_path / "m.ncz").network
+    net = load(tmp_path / "m.ncast").network
     Z = reference.hidden_layer(net, np.array(good_rows)[:, :2])
     act = get_activation("logistic")
     peak = act.derivative(np.clip(0.0, Z.min(axis=0), Z.max(axis=0)))
@@ -128,5 +128,5 @@ def test_inspect_shows_saturation_over_the_training_data(tmp_path, capsys, good_
     assert description["saturated_nodes_on_training_data"] == expected > 0
     assert description["saturated_nodes_on_domain"] <= expected
     assert description["node_z_range_on_training_data"]["max_high"] == pytest.approx(Z.max())
-    main(["inspect", str(tmp_path / "m.ncz")])
+    main(["inspect", str(tmp_path / "m.ncast")])
     assert f"nodes saturated over the training data: {expected} of 60" in capsys.readouterr().out

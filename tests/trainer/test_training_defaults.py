@@ -37,13 +37,14 @@ def _onnxruntime(artifact, X):
 
 
 @pytest.mark.parametrize("make, rmse_bound", [(_friedman, 0.6), (_demo, 1.0)])
+@pytest.mark.slow
 def test_default_model_is_sensible_and_its_float32_export_keeps_its_accuracy(tmp_path, make,
                                                                               rmse_bound):
     table = make(2000, True, 1)
     header = [f"x{i}" for i in range(table.shape[1] - 1)] + ["y"]
     (tmp_path / "d.csv").write_text(write_table(header, table.tolist()), encoding="utf-8")
-    main(["train", str(tmp_path / "d.csv"), "--target", "y", "-o", str(tmp_path / "m.ncz")])
-    bundle = load(tmp_path / "m.ncz")
+    main(["train", str(tmp_path / "d.csv"), "--target", "y", "-o", str(tmp_path / "m.ncast")])
+    bundle = load(tmp_path / "m.ncast")
     test = make(3000, False, 2)
     X, y = test[:, :-1], test[:, -1]
     fitted = reference.predict(bundle.network, X)[:, 0]

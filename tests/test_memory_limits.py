@@ -31,7 +31,7 @@ def two_gib(monkeypatch):
 
 @pytest.fixture(scope="module")
 def million_nodes(tmp_path_factory):
-    path = tmp_path_factory.mktemp("big") / "big.ncz"
+    path = tmp_path_factory.mktemp("big") / "big.ncast"
     save(Bundle(network(10**6, 2), {}), path)
     return path
 
@@ -61,22 +61,23 @@ def test_inspect_of_a_million_node_model(million_nodes, capsys, two_gib):
     assert _refused(code, err, "error estimate of 1000000 nodes", "GiB of memory")
 
 
+@pytest.mark.slow
 def test_verify_with_too_many_probes_or_features_is_refused_up_front(tmp_path, capsys, two_gib,
                                                                      monkeypatch):
     from nodecast.compiler.verify import probes
 
-    save(Bundle(network(50, 3), {}), tmp_path / "m.ncz")
-    code, _, _ = run_cli(capsys, *["emit", tmp_path / "m.ncz", "--to", "onnx", "-o", tmp_path / "m.onnx"])
+    save(Bundle(network(50, 3), {}), tmp_path / "m.ncast")
+    code, _, _ = run_cli(capsys, *["emit", tmp_path / "m.ncast", "--to", "onnx", "-o", tmp_path / "m.onnx"])
     assert code == 0
     monkeypatch.setattr(probes, "sobol", lambda *a: pytest.fail("allocated the probes"))
-    code, _, err = run_cli(capsys, *["verify", tmp_path / "m.ncz", tmp_path / "m.onnx", "--probes",
+    code, _, err = run_cli(capsys, *["verify", tmp_path / "m.ncast", tmp_path / "m.onnx", "--probes",
                             "100000000"])
     assert _refused(code, err, "on 100000034 probe rows", "lower --probes")
-    save(Bundle(network(20, 20_000), {}), tmp_path / "wide.ncz")
-    code, _, _ = run_cli(capsys, *["emit", tmp_path / "wide.ncz", "--to", "onnx", "-o",
+    save(Bundle(network(20, 20_000), {}), tmp_path / "wide.ncast")
+    code, _, _ = run_cli(capsys, *["emit", tmp_path / "wide.ncast", "--to", "onnx", "-o",
                           tmp_path / "wide.onnx"])
     assert code == 0
-    code, _, err = run_cli(capsys, *["verify", tmp_path / "wide.ncz", tmp_path / "wide.onnx"])
+    code, _, err = run_cli(capsys, *["verify", tmp_path / "wide.ncast", tmp_path / "wide.onnx"])
     assert _refused(code, err, "20000 features", "GiB of memory")
 
 

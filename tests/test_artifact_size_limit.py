@@ -48,7 +48,7 @@ def test_emit_refuses_an_artifact_over_the_limit_and_writes_nothing(kind, tmp_pa
 
 
 def test_default_limit_applies_without_the_option(tmp_path, monkeypatch, capsys):
-    path = tmp_path / "m.ncz"
+    path = tmp_path / "m.ncast"
     save(_bundle(), path)
     monkeypatch.setattr(files, "MAX_ARTIFACT_BYTES", 10_000)
     code, _, err = run_cli(capsys, *["emit", path, "--to", "onnx", "-o", tmp_path / "m.onnx"])
@@ -70,7 +70,7 @@ def test_sizes_are_read_in_binary_units(text, size):
 
 @pytest.mark.parametrize("text", ["", "-1", "1.5M", "64T", "lots", "\u0663K"])
 def test_bad_sizes_are_refused_through_the_cli(text, tmp_path, capsys):
-    path = tmp_path / "m.ncz"
+    path = tmp_path / "m.ncast"
     save(_bundle(n_nodes=5), path)
     code, _, err = run_cli(capsys, *["emit", path, "--to", "onnx", "-o", tmp_path / "m.onnx",
                          "--max-artifact-size", text])
@@ -83,6 +83,7 @@ def _limit_address_space():  # a wrong guess must fail fast here, never swap the
     resource.setrlimit(resource.RLIMIT_AS, (4 * 2**30, 4 * 2**30))
 
 
+@pytest.mark.slow
 def test_training_refuses_a_model_that_cannot_fit_in_memory_with_an_estimate(tmp_path):
     import subprocess
     import sys
@@ -93,9 +94,9 @@ def test_training_refuses_a_model_that_cannot_fit_in_memory_with_an_estimate(tmp
     # 100,000 nodes: the M x M factor alone is 100000^2 x 8 bytes = 80 GB (74.5 GiB)
     result = subprocess.run([sys.executable, "-m", "nodecast.cli", "train", "d.csv",
                              "--target", "y", "--nodes", "100000", "--method", "interval",
-                             "-o", "m.ncz"], cwd=tmp_path,
+                             "-o", "m.ncast"], cwd=tmp_path,
                             capture_output=True, text=True, timeout=300,
                             preexec_fn=_limit_address_space)
     assert result.returncode == 2 and "Traceback" not in result.stderr
     assert re.search(r"\d+(\.\d+)? ?(GB|GiB|TB|TiB)", result.stderr)
-    assert len(result.stderr.strip().splitlines()) == 1 and not (tmp_path / "m.ncz").exists()
+    assert len(result.stderr.strip().splitlines()) == 1 and not (tmp_path / "m.ncast").exists()

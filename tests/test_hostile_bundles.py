@@ -143,7 +143,7 @@ def _commands(path, tmp):
 @pytest.mark.slow
 @pytest.mark.parametrize("name", sorted(CASES) + sorted(METADATA))
 def test_every_command_on_a_crafted_bundle_is_exit_0_or_one_line(name, tmp_path):
-    path = tmp_path / "crafted.ncz"
+    path = tmp_path / "crafted.ncast"
     path.write_bytes(crafted(name))
     (tmp_path / "rows.csv").write_text("x0,x1,y0\n0.1,0.2,0.3\n0.5,0.5,0.5\n0.9,0.1,0.7\n")
     problems = []
@@ -169,17 +169,17 @@ def test_the_loader_refuses_absurd_values_with_one_line(tmp_path):
     """Fast subset: one command per kind of hostile value."""
     for name in ("weights 1e300", "domain +-1.7e308", "subnormal input scale", "one class",
                  "lone surrogate in a metrics key", "NaN bias"):
-        path = tmp_path / "crafted.ncz"
+        path = tmp_path / "crafted.ncast"
         path.write_bytes(crafted(name))
         for args in (["inspect", path, "--precision", "q15"], ["emit", path, "--to", "c",
                      "--precision", "float64", "-o", tmp_path / "c"]):
             code, err = run(args)
             assert code == 2 and acceptable(code, err), (name, args, err)
-            assert "crafted.ncz" in err and not (tmp_path / "c").exists()
+            assert "crafted.ncast" in err and not (tmp_path / "c").exists()
 
 
 def test_float32_targets_refuse_what_float32_cannot_hold(tmp_path):
-    path = tmp_path / "crafted.ncz"
+    path = tmp_path / "crafted.ncast"
     path.write_bytes(crafted("output weights 2e99"))
     for kind in ("onnx", "c"):
         code, err = run(["emit", path, "--to", kind, "-o", tmp_path / f"out-{kind}"])
@@ -192,7 +192,7 @@ def test_float32_targets_refuse_what_float32_cannot_hold(tmp_path):
 
 @pytest.mark.skipif(not HAS_GCC, reason="needs gcc")
 def test_long_class_label_is_refused_for_c_only(tmp_path):
-    path = tmp_path / "crafted.ncz"
+    path = tmp_path / "crafted.ncast"
     path.write_bytes(crafted("5000-byte class label"))
     code, err = run(["emit", path, "--to", "c", "-o", tmp_path / "c"])
     assert acceptable(code, err) and code == 2 and "at most 4095" in err
@@ -201,7 +201,7 @@ def test_long_class_label_is_refused_for_c_only(tmp_path):
 
 def test_printed_text_never_carries_terminal_controls(tmp_path):
     """Through a real pipe (not a terminal): an OSC sequence in a unit retitled the terminal."""
-    path = tmp_path / "crafted.ncz"
+    path = tmp_path / "crafted.ncast"
     path.write_bytes(crafted("escape sequences in names"))
     done = subprocess.run([sys.executable, "-m", "nodecast.cli", "inspect", str(path)],
                           capture_output=True, timeout=120, check=True)
@@ -212,8 +212,8 @@ def test_printed_text_never_carries_terminal_controls(tmp_path):
     assert run(["emit", path, "--to", "python", "-o", emitted])[0] == 0
     net = network()
     forged_text(net, feature_names=("\x1b]0;t\x07", "load%"))
-    (tmp_path / "n.ncz").write_bytes(to_bytes(Bundle(net, {})))
-    assert run(["emit", tmp_path / "n.ncz", "--to", "python", "-o", tmp_path / "n.py"])[0] == 0
+    (tmp_path / "n.ncast").write_bytes(to_bytes(Bundle(net, {})))
+    assert run(["emit", tmp_path / "n.ncast", "--to", "python", "-o", tmp_path / "n.py"])[0] == 0
     helped = subprocess.run([sys.executable, str(tmp_path / "n.py"), "--help"],
                             capture_output=True, timeout=60, check=True).stdout
     assert b"\x1b" not in helped and b"\x07" not in helped
@@ -227,9 +227,9 @@ def test_ctrl_c_exits_130(monkeypatch, tmp_path, capsys):
         raise KeyboardInterrupt
 
     monkeypatch.setattr(inspection, "describe_bundle", interrupted)
-    (tmp_path / "m.ncz").write_bytes(to_bytes(Bundle(network(), {})))
+    (tmp_path / "m.ncast").write_bytes(to_bytes(Bundle(network(), {})))
     with pytest.raises(SystemExit) as info:
-        main(["inspect", str(tmp_path / "m.ncz")])
+        main(["inspect", str(tmp_path / "m.ncast")])
     assert info.value.code == 130
     assert capsys.readouterr().err.strip() == "nodecast: interrupted"
 
@@ -242,8 +242,8 @@ def test_error_messages_show_numbers_not_numpy_reprs(monkeypatch, tmp_path, caps
         raise NodecastError(f"value {np.float64(0.0099)!r} and {np.int64(3)!r} out of range")
 
     monkeypatch.setattr(inspection, "describe_bundle", refuse)
-    (tmp_path / "m.ncz").write_bytes(to_bytes(Bundle(network(), {})))
+    (tmp_path / "m.ncast").write_bytes(to_bytes(Bundle(network(), {})))
     with pytest.raises(SystemExit) as info:
-        main(["inspect", str(tmp_path / "m.ncz")])
+        main(["inspect", str(tmp_path / "m.ncast")])
     assert info.value.code == 2
     assert capsys.readouterr().err == "nodecast: error: value 0.0099 and 3 out of range\n"

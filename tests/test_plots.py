@@ -21,7 +21,7 @@ def fan(tmp_path_factory):
     rows = (folder / "readings.csv").read_text().splitlines()[:301]
     (folder / "r.csv").write_text("\n".join(rows) + "\n")
     assert run_plain("train", folder / "r.csv", "--target", "heatsink_temp", "--nodes", "40",
-                     "--units", "heatsink_temp=degC", "-o", folder / "fan.ncz") == 0
+                     "--units", "heatsink_temp=degC", "-o", folder / "fan.ncast") == 0
     return folder
 
 
@@ -35,17 +35,17 @@ def run_plain(*args) -> int:
 
 def test_inspect_plot_draws_both_pictures_and_keeps_existing_files(capsys, fan, tmp_path):
     out = tmp_path / "pictures"
-    status, text, err = run_cli(capsys, "inspect", fan / "fan.ncz", "--plot", out,
+    status, text, err = run_cli(capsys, "inspect", fan / "fan.ncast", "--plot", out,
                                 "--data", fan / "held_out.csv")
     assert status == 0, err
     assert "bundle " in text  # the description is still printed
     for name in ("nodes.png", "predicted_vs_actual.png"):
         assert (out / name).read_bytes().startswith(PNG_SIGNATURE)
     before = (out / "nodes.png").read_bytes()
-    status, _, err = run_cli(capsys, "inspect", fan / "fan.ncz", "--plot", out)
+    status, _, err = run_cli(capsys, "inspect", fan / "fan.ncast", "--plot", out)
     assert status == 2 and "already exists" in err and (out / "nodes.png").read_bytes() == before
-    assert run_cli(capsys, "inspect", fan / "fan.ncz", "--plot", out, "--overwrite")[0] == 0
-    status, _, err = run_cli(capsys, "inspect", fan / "fan.ncz", "--data", fan / "held_out.csv")
+    assert run_cli(capsys, "inspect", fan / "fan.ncast", "--plot", out, "--overwrite")[0] == 0
+    status, _, err = run_cli(capsys, "inspect", fan / "fan.ncast", "--data", fan / "held_out.csv")
     assert status == 2 and "--plot" in err
 
 
@@ -61,7 +61,7 @@ def test_predicted_vs_actual_title_names_the_target_and_its_unit(fan, monkeypatc
         return path
 
     monkeypatch.setattr(plots, "_save", keep_titles)
-    bundle = load(fan / "fan.ncz")
+    bundle = load(fan / "fan.ncast")
     X = np.random.default_rng(0).random((20, 4)) * [35, 3200, 30, 4] + [10, 800, 0, 22]
     plots.plot_predicted_vs_actual(bundle, X, np.full(20, 30.0), fan / "unused.png")
     (title,) = titles
@@ -97,7 +97,7 @@ def test_cv_plot_shows_the_actual_k_units_and_an_edge_hint(capsys, fan, tmp_path
     plt.close(figure)
     # through the CLI: the same hint on stderr
     status, _, err = run_cli(capsys, "select", fan / "r.csv", "--target", "heatsink_temp",
-                             "--nodes", "5,10", "--folds", "3", "-o", tmp_path / "s.ncz",
+                             "--nodes", "5,10", "--folds", "3", "-o", tmp_path / "s.ncast",
                              "--plot", tmp_path / "cv.png")
     assert status == 0, err
     assert (tmp_path / "cv.png").read_bytes().startswith(PNG_SIGNATURE)

@@ -11,7 +11,9 @@ import shutil
 import numpy as np
 import pytest
 
+from nodecast.compiler import emit
 from nodecast.compiler.bundle import Bundle, save
+from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import Network
 from tests.helpers import run_cli
 
@@ -31,7 +33,7 @@ def work(tmp_path):
                   input_offset=np.zeros(2), input_scale=np.ones(2), output_offset=[0.0],
                   output_scale=[1.0], domain_low=-np.ones(2), domain_high=np.ones(2),
                   feature_names=("load", "speed"), target_names=("temp",))
-    save(Bundle(net, {"seed": 0}), tmp_path / "m.ncz")
+    save(Bundle(net, {"seed": 0}), tmp_path / "m.ncast")
     rows = rng.random((30, 2))
     lines = ["load,speed,temp"] + [f"{a!r},{b!r},{a - b!r}" for a, b in rows.tolist()]
     (tmp_path / "d.csv").write_text("\n".join(lines) + "\n")
@@ -50,30 +52,30 @@ def work(tmp_path):
     (["trian", "{d}"], "No such command"),
 ])
 def test_options_that_cannot_be_honoured_are_one_line_refusals(work, capsys, args, message):
-    args = [a.format(d=work / "d.csv", m=work / "m.ncz") for a in args]
+    args = [a.format(d=work / "d.csv", m=work / "m.ncast") for a in args]
     if args[0] in ("train", "select", "emit"):
-        args += ["-o", str(work / ("out.py" if args[0] == "emit" else "out.ncz"))]
+        args += ["-o", str(work / ("out.py" if args[0] == "emit" else "out.ncast"))]
     code, _, err = run_cli(capsys, *args)
     assert one_line_refusal(code, err) and message in err, err
-    assert not (work / "out.ncz").exists() and not (work / "out.py").exists()
+    assert not (work / "out.ncast").exists() and not (work / "out.py").exists()
 
 
 def _emit(work, capsys, kind, name):
-    code, _, err = run_cli(capsys, *["emit", work / "m.ncz", "--to", kind, "-o", work / name])
+    code, _, err = run_cli(capsys, *["emit", work / "m.ncast", "--to", kind, "-o", work / name])
     assert code == 0, err
     return work / name
 
 
 def test_generated_files_carry_their_sha256_and_verify_reports_an_edit(work, capsys):
     predictor = _emit(work, capsys, "python", "p.py")
-    code, _, _ = run_cli(capsys, *["verify", work / "m.ncz", predictor, "--probes", "32", "--report",
+    code, _, _ = run_cli(capsys, *["verify", work / "m.ncast", predictor, "--probes", "32", "--report",
                           work / "r.json"])
     assert code == 0
     assert json.loads((work / "r.json").read_text())["artifact"]["files"] == {"p.py": "unchanged"}
     source = predictor.read_text()
     assert re.search(r"^# nodecast-sha256:[0-9a-f]{64}$", source, re.M)
     predictor.write_text(source.replace("import sys", "import sys  # edited", 1))
-    code, out, _ = run_cli(capsys, *["verify", work / "m.ncz", predictor, "--probes", "32", "--report",
+    code, out, _ = run_cli(capsys, *["verify", work / "m.ncast", predictor, "--probes", "32", "--report",
                             work / "r2.json"])
     report = json.loads((work / "r2.json").read_text())
     assert report["artifact"]["files"] == {"p.py": "changed"}
@@ -87,7 +89,7 @@ def test_onnx_records_its_sha256_in_the_metadata(work, capsys):
     path = _emit(work, capsys, "onnx", "m.onnx")
     props = {p.key: p.value for p in onnx.load(str(path)).metadata_props}
     assert re.fullmatch(r"nodecast-sha256:[0-9a-f]{64}", props["nodecast.sha256"])
-    code, _, _ = run_cli(capsys, *["verify", work / "m.ncz", path, "--probes", "16", "--report",
+    code, _, _ = run_cli(capsys, *["verify", work / "m.ncast", path, "--probes", "16", "--report",
                           work / "r.json"])
     assert code == 0
     assert json.loads((work / "r.json").read_text())["artifact"]["files"] == {"m.onnx": "unchanged"}
@@ -102,7 +104,7 @@ def test_the_predictor_runs_with_an_empty_environment(work, capsys, monkeypatch)
         "import sys", f"import sys, os, json; json.dump(dict(os.environ), open({str(dump)!r}, 'w'))",
         1))
     monkeypatch.setenv("NODECAST_TEST_SECRET", "hunter2")
-    run_cli(capsys, *["verify", work / "m.ncz", predictor, "--probes", "16"])
+    run_cli(capsys, *["verify", work / "m.ncast", predictor, "--probes", "16"])
     seen = json.loads(dump.read_text())
     assert "NODECAST_TEST_SECRET" not in seen and set(seen) <= {"PATH", "LC_ALL", "LC_CTYPE"}
 
@@ -112,13 +114,13 @@ def test_c_verify_builds_only_the_generated_files_and_refuses_edited_sizes(work,
     folder = work / "fw"
     _emit(work, capsys, "c", "fw")
     (folder / "main.c").write_text("int main(void) { return 0; }\n")  # the user's own firmware
-    code, out, err = run_cli(capsys, *["verify", work / "m.ncz", folder, "--probes", "32"])
+    code, out, err = run_cli(capsys, *["verify", work / "m.ncast", folder, "--probes", "32"])
     assert code == 0, out + err
-    header = (folder / "model.h").read_text()
-    for macro in ("MODEL_N_INPUTS", "MODEL_N_OUTPUTS"):
-        (folder / "model.h").write_text(re.sub(rf"#define {macro} \d+", f"#define {macro} 99999",
+    header = (folder / "m.h").read_text()
+    for macro in ("M_N_INPUTS", "M_N_OUTPUTS"):  # the prefix is the bundle's name, m
+        (folder / "m.h").write_text(re.sub(rf"#define {macro} \d+", f"#define {macro} 99999",
                                                header))
-        code, _, err = run_cli(capsys, *["verify", work / "m.ncz", folder, "--probes", "32"])
+        code, _, err = run_cli(capsys, *["verify", work / "m.ncast", folder, "--probes", "32"])
         assert one_line_refusal(code, err) and "the artifact was edited" in err
 
 
@@ -128,10 +130,10 @@ def test_python_predictor_with_edited_declarations_is_one_line(work, capsys):
     for edit in (("FEATURE_NAMES = (", "FEATURE_NAMES = ('x',) + ("),
                  ("N_OUTPUTS = ", "N_OUTPUTS = 7 #")):
         predictor.write_text(source.replace(*edit, 1))
-        code, _, err = run_cli(capsys, *["verify", work / "m.ncz", predictor, "--probes", "16"])
+        code, _, err = run_cli(capsys, *["verify", work / "m.ncast", predictor, "--probes", "16"])
         assert one_line_refusal(code, err), err
     predictor.write_bytes(source.encode().replace(b"FEATURE_NAMES", b"\xff", 1))
-    code, _, err = run_cli(capsys, *["verify", work / "m.ncz", predictor, "--probes", "16"])
+    code, _, err = run_cli(capsys, *["verify", work / "m.ncast", predictor, "--probes", "16"])
     assert one_line_refusal(code, err), err
 
 
@@ -153,3 +155,11 @@ def test_predictor_reads_a_header_of_40000_extra_columns(work, capsys):
     done = subprocess.run([sys.executable, "-I", "-S", str(predictor)], input=doubled,
                           capture_output=True, text=True, timeout=600, check=False)
     assert done.returncode == 2 and "duplicated column name(s) 'c17'" in done.stderr
+
+
+def test_emulate_is_refused_for_artifacts_that_are_not_c(friedman_bundle, tmp_path):
+    from nodecast.compiler.verify import verify
+
+    emit(friedman_bundle, "onnx", tmp_path / "m.onnx")
+    with pytest.raises(NodecastError, match="emulate"):
+        verify(friedman_bundle, tmp_path / "m.onnx", emulate="cortex-m4")

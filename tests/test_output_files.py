@@ -39,7 +39,7 @@ def one_line_refusal(code, err) -> bool:
 
 @pytest.fixture()
 def work(tmp_path):
-    save(Bundle(network(), {"seed": 0}), tmp_path / "fan.ncz")
+    save(Bundle(network(), {"seed": 0}), tmp_path / "fan.ncast")
     rows = np.random.default_rng(1).random((40, 2))
     lines = ["x0,x1,y"] + [f"{a!r},{b!r},{a + b * b!r}" for a, b in rows.tolist()]
     (tmp_path / "readings.csv").write_text("\n".join(lines) + "\n")
@@ -47,30 +47,30 @@ def work(tmp_path):
 
 
 def test_verify_report_may_not_replace_the_bundle_or_an_existing_file(work, capsys):
-    bundle = (work / "fan.ncz").read_bytes()
-    code, _, _ = run_cli(capsys, *["emit", work / "fan.ncz", "--to", "python", "-o", work / "p.py"])
+    bundle = (work / "fan.ncast").read_bytes()
+    code, _, _ = run_cli(capsys, *["emit", work / "fan.ncast", "--to", "python", "-o", work / "p.py"])
     assert code == 0
-    code, _, err = run_cli(capsys, *["verify", work / "fan.ncz", work / "p.py", "--probes", "16",
-                         "--report", work / "fan.ncz"])
+    code, _, err = run_cli(capsys, *["verify", work / "fan.ncast", work / "p.py", "--probes", "16",
+                         "--report", work / "fan.ncast"])
     assert one_line_refusal(code, err) and "same file as MODEL" in err
-    assert (work / "fan.ncz").read_bytes() == bundle
+    assert (work / "fan.ncast").read_bytes() == bundle
     (work / "old.json").write_text("keep")
-    code, _, err = run_cli(capsys, *["verify", work / "fan.ncz", work / "p.py", "--probes", "16",
+    code, _, err = run_cli(capsys, *["verify", work / "fan.ncast", work / "p.py", "--probes", "16",
                          "--junit", work / "old.json"])
     assert one_line_refusal(code, err) and "--overwrite" in err
     assert (work / "old.json").read_text() == "keep"
-    code, _, _ = run_cli(capsys, *["verify", work / "fan.ncz", work / "p.py", "--probes", "16",
+    code, _, _ = run_cli(capsys, *["verify", work / "fan.ncast", work / "p.py", "--probes", "16",
                        "--junit", work / "old.json", "--overwrite"])
     assert code == 0 and (work / "old.json").read_text().startswith("<?xml")
 
 
 def test_score_junit_may_not_replace_the_data(work, capsys):
     data = (work / "readings.csv").read_bytes()
-    code, _, err = run_cli(capsys, *["score", work / "fan.ncz", work / "readings.csv", "--junit",
+    code, _, err = run_cli(capsys, *["score", work / "fan.ncast", work / "readings.csv", "--junit",
                          work / "readings.csv"])
     assert one_line_refusal(code, err) and "same file as DATA" in err
     assert (work / "readings.csv").read_bytes() == data
-    code, _, err = run_cli(capsys, *["score", work / "fan.ncz", work / "readings.csv", "--report",
+    code, _, err = run_cli(capsys, *["score", work / "fan.ncast", work / "readings.csv", "--report",
                          work / "r.json", "--junit", work / "r.json"])
     assert one_line_refusal(code, err) and "same file as --report" in err
     assert not (work / "r.json").exists()
@@ -80,14 +80,14 @@ def test_select_refuses_one_file_for_two_outputs_before_the_search(work, capsys,
     from nodecast.trainer import selection_run
 
     monkeypatch.setattr(selection_run, "run_selection", lambda *a, **k: pytest.fail("searched"))
-    code, _, err = run_cli(capsys, *["select", work / "readings.csv", "--target", "y", "-o", work / "s.ncz",
-                         "--report", work / "s.ncz"])
+    code, _, err = run_cli(capsys, *["select", work / "readings.csv", "--target", "y", "-o", work / "s.ncast",
+                         "--report", work / "s.ncast"])
     assert one_line_refusal(code, err) and "same file as -o" in err
     (work / "cv.json").write_text("keep")
-    code, _, err = run_cli(capsys, *["select", work / "readings.csv", "--target", "y", "-o", work / "s.ncz",
+    code, _, err = run_cli(capsys, *["select", work / "readings.csv", "--target", "y", "-o", work / "s.ncast",
                          "--report", work / "cv.json"])
     assert one_line_refusal(code, err) and "cv.json already exists" in err
-    assert (work / "cv.json").read_text() == "keep" and not (work / "s.ncz").exists()
+    assert (work / "cv.json").read_text() == "keep" and not (work / "s.ncast").exists()
 
 
 def test_train_checks_the_output_before_training(work, capsys, monkeypatch):
@@ -95,10 +95,10 @@ def test_train_checks_the_output_before_training(work, capsys, monkeypatch):
 
     monkeypatch.setattr(training, "train", lambda *a, **k: pytest.fail("trained"))
     code, _, err = run_cli(capsys, *["train", work / "readings.csv", "--target", "y", "-o",
-                         work / "missing" / "x.ncz"])
+                         work / "missing" / "x.ncast"])
     assert one_line_refusal(code, err) and "does not exist" in err
     code, _, err = run_cli(capsys, *["train", work / "readings.csv", "--target", "y", "-o",
-                         work / ("n" * 300 + ".ncz")])
+                         work / ("n" * 300 + ".ncast")])
     assert one_line_refusal(code, err) and "the file system allows 255" in err
     code, _, err = run_cli(capsys, *["train", work / "readings.csv", "--target", "y", "-o",
                          work / "readings.csv", "--overwrite"])
@@ -106,7 +106,7 @@ def test_train_checks_the_output_before_training(work, capsys, monkeypatch):
 
 
 def test_a_long_output_name_within_the_limit_is_written(work, capsys):
-    name = "n" * 250 + ".ncz"  # 254 bytes: fits; the temporary name must fit as well
+    name = "n" * 248 + ".ncast"  # 254 bytes: fits; the temporary name must fit as well
     code, _, err = run_cli(capsys, *["train", work / "readings.csv", "--target", "y", "--nodes", "5",
                          "-o", work / name])
     assert code == 0, err
@@ -118,7 +118,7 @@ def test_a_long_output_name_within_the_limit_is_written(work, capsys):
 def test_dangling_symlink_at_the_output_is_refused(work, capsys, overwrite):
     link = work / "out.onnx"
     link.symlink_to(work / "nowhere" / "target.onnx")
-    code, _, err = run_cli(capsys, *["emit", work / "fan.ncz", "--to", "onnx", "-o", link, *overwrite])
+    code, _, err = run_cli(capsys, *["emit", work / "fan.ncast", "--to", "onnx", "-o", link, *overwrite])
     assert one_line_refusal(code, err) and "symbolic link to a missing file" in err
     assert link.is_symlink() and not (work / "nowhere").exists()
 
@@ -126,9 +126,9 @@ def test_dangling_symlink_at_the_output_is_refused(work, capsys, overwrite):
 def test_symlink_to_a_file_is_written_through_with_overwrite(work, capsys):
     (work / "real.onnx").write_bytes(b"old")
     (work / "link.onnx").symlink_to(work / "real.onnx")
-    code, _, err = run_cli(capsys, *["emit", work / "fan.ncz", "--to", "onnx", "-o", work / "link.onnx"])
+    code, _, err = run_cli(capsys, *["emit", work / "fan.ncast", "--to", "onnx", "-o", work / "link.onnx"])
     assert one_line_refusal(code, err) and (work / "real.onnx").read_bytes() == b"old"
-    code, _, _ = run_cli(capsys, *["emit", work / "fan.ncz", "--to", "onnx", "-o", work / "link.onnx",
+    code, _, _ = run_cli(capsys, *["emit", work / "fan.ncast", "--to", "onnx", "-o", work / "link.onnx",
                        "--overwrite"])
     assert code == 0 and (work / "link.onnx").is_symlink()
     assert (work / "real.onnx").read_bytes().startswith(b"\x08")
@@ -137,7 +137,7 @@ def test_symlink_to_a_file_is_written_through_with_overwrite(work, capsys):
 def test_fifo_at_the_output_is_never_replaced(work, capsys):
     fifo = work / "pipe.csv"
     os.mkfifo(fifo)
-    code, _, err = run_cli(capsys, *["predict", work / "fan.ncz", work / "readings.csv", "-o", fifo,
+    code, _, err = run_cli(capsys, *["predict", work / "fan.ncast", work / "readings.csv", "-o", fifo,
                          "--overwrite"])
     assert one_line_refusal(code, err) and "is a FIFO" in err
     assert fifo.is_fifo()
@@ -153,7 +153,7 @@ def test_character_device_is_refused_even_with_overwrite(work, capsys):
         os.mknod(device, stat.S_IFCHR | 0o666, os.makedev(1, 3))
     except (PermissionError, OSError):
         pytest.skip("cannot make a device node here (needs root)")
-    code, _, err = run_cli(capsys, *["predict", work / "fan.ncz", work / "readings.csv", "-o", device,
+    code, _, err = run_cli(capsys, *["predict", work / "fan.ncast", work / "readings.csv", "-o", device,
                          "--overwrite"])
     assert one_line_refusal(code, err) and "is a device" in err
     assert stat.S_ISCHR(device.lstat().st_mode)
@@ -232,16 +232,17 @@ def test_a_new_artifact_folder_appears_whole(tmp_path, monkeypatch):
 
 
 @pytest.mark.skipif(not HAS_GCC, reason="needs gcc to emit C with a footprint")
+@pytest.mark.slow
 def test_concurrent_c_emits_through_the_cli(work):
     """Two emit processes into one new folder without --overwrite: one writes it, one is refused;
     the folder holds one run's header and source."""
-    save(Bundle(network(seed=5), {"seed": 5}), work / "other.ncz")
+    save(Bundle(network(seed=5), {"seed": 5}), work / "other.ncast")
     for round_ in range(3):
         out = work / f"c{round_}"
         procs = [subprocess.Popen([sys.executable, "-m", "nodecast.cli", "emit",
                                    str(work / name), "--to", "c", "--prefix", "model", "-o", str(out)],
                                   stderr=subprocess.PIPE, text=True)
-                 for name in ("fan.ncz", "other.ncz")]
+                 for name in ("fan.ncast", "other.ncast")]
         codes = [(p.wait(timeout=300), p.stderr.read()) for p in procs]
         assert sorted(code for code, _ in codes) == [0, 2], codes
         header, source = (out / "model.h").read_text(), (out / "model.c").read_text()
@@ -250,10 +251,10 @@ def test_concurrent_c_emits_through_the_cli(work):
 
 
 def test_c_prefix_clashing_with_the_board_file_is_refused(work, capsys):
-    code, _, err = run_cli(capsys, *["emit", work / "fan.ncz", "--to", "c", "--prefix", "startup",
+    code, _, err = run_cli(capsys, *["emit", work / "fan.ncast", "--to", "c", "--prefix", "startup",
                          "--bare-metal", "-o", work / "c"])
     assert one_line_refusal(code, err) and "startup.c" in err and not (work / "c").exists()
-    code, _, err = run_cli(capsys, *["emit", work / "fan.ncz", "--to", "c", "--prefix", "_", "-o",
+    code, _, err = run_cli(capsys, *["emit", work / "fan.ncast", "--to", "c", "--prefix", "_", "-o",
                          work / "c"])
     assert one_line_refusal(code, err) and "reserved identifiers" in err
 

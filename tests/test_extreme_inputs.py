@@ -212,9 +212,9 @@ def test_c_fixed_point_conversion_macro_is_defined_for_nan(artifact_folder):
 def test_cli_predict_writes_nan_for_nan_rows_and_stays_quiet(tmp_path):
     from nodecast.compiler.bundle import save
 
-    save(BUNDLE, tmp_path / "m.ncz")
+    save(BUNDLE, tmp_path / "m.ncast")
     (tmp_path / "rows.csv").write_text("temp,load\n1e308,1e308\nnan,0\ninf,-inf\n5e-324,0\n")
-    result = subprocess.run([sys.executable, "-m", "nodecast.cli", "predict", "m.ncz",
+    result = subprocess.run([sys.executable, "-m", "nodecast.cli", "predict", "m.ncast",
                              "rows.csv"], cwd=tmp_path, capture_output=True, text=True, timeout=120)
     assert result.returncode == 0 and result.stderr == ""
     lines = result.stdout.splitlines()

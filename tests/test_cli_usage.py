@@ -28,12 +28,12 @@ def small(tmp_path_factory):
     X = rng.random((60, 2))
     data = write_csv(folder / "d.csv", ["a", "b", "y"],
                 [[float(a), float(b), float(np.sin(3 * a) + b)] for a, b in X])
-    main_args = ["train", str(data), "--target", "y", "--nodes", "20", "-o", str(folder / "m.ncz")]
+    main_args = ["train", str(data), "--target", "y", "--nodes", "20", "-o", str(folder / "m.ncast")]
     try:
         main(main_args)
     except SystemExit as exc:
         assert exc.code == 0
-    return {"folder": folder, "data": data, "bundle": folder / "m.ncz"}
+    return {"folder": folder, "data": data, "bundle": folder / "m.ncast"}
 
 
 def _readme_commands(name: str) -> list[list[str]]:
@@ -66,20 +66,20 @@ def test_readme_firmware_domain_lets_a_cold_idle_machine_through(capsys, tmp_pat
     domain = words[words.index("--domain") + 1]
     assert run_cli(capsys, "demo", "--data-only", "-o", tmp_path)[0] == 0
     status, _, err = run_cli(capsys, "train", tmp_path / "readings.csv", "--target", "heatsink_temp",
-                             "--domain", domain, "--nodes", "30", "-o", tmp_path / "fan.ncz")
+                             "--domain", domain, "--nodes", "30", "-o", tmp_path / "fan.ncast")
     assert status == 0, err
     from nodecast.compiler import load
 
-    net = load(tmp_path / "fan.ncz").network
+    net = load(tmp_path / "fan.ncast").network
     data_min = np.loadtxt(tmp_path / "readings.csv", delimiter=",", skiprows=1)[:, 0].min()
     assert data_min > 10.0 and net.domain_low[0] == 10.0
 
 
 @pytest.mark.parametrize("args, words", [
-    (["train", "x.csv", "-o", "m.ncz"], ["Missing option '--target'", "nodecast train --help"]),
-    (["train", "x.csv", "--target", "y", "--nodes", "0", "-o", "m.ncz"], ["--nodes", "0"]),
+    (["train", "x.csv", "-o", "m.ncast"], ["Missing option '--target'", "nodecast train --help"]),
+    (["train", "x.csv", "--target", "y", "--nodes", "0", "-o", "m.ncast"], ["--nodes", "0"]),
     (["frobnicate"], ["No such command 'frobnicate'"]),
-    (["emit", "m.ncz", "--to", "java", "-o", "x"], ["--to", "'java'"]),
+    (["emit", "m.ncast", "--to", "java", "-o", "x"], ["--to", "'java'"]),
 ])
 def test_usage_errors_are_one_line_with_exit_2(capsys, args, words):
     status, out, err = run_cli(capsys, *args)
@@ -101,18 +101,18 @@ def test_select_refuses_existing_outputs_before_searching(capsys, small, monkeyp
     existing = folder / "old.json"
     existing.write_text("{}")
     base = ["select", small["data"], "--target", "y", "--nodes", "10", "--folds", "2"]
-    for extra in (["-o", small["bundle"]], ["-o", folder / "new.ncz", "--report", existing],
-                  ["-o", folder / "new.ncz", "--plot", existing]):
+    for extra in (["-o", small["bundle"]], ["-o", folder / "new.ncast", "--report", existing],
+                  ["-o", folder / "new.ncast", "--plot", existing]):
         status, _, err = run_cli(capsys, *base, *extra)
         assert status == 2 and "already exists" in err and "--overwrite" in err, err
-    assert existing.read_text() == "{}" and not (folder / "new.ncz").exists()
+    assert existing.read_text() == "{}" and not (folder / "new.ncast").exists()
 
 
 def test_select_report_is_replaced_only_with_overwrite(capsys, small, tmp_path):
     report = tmp_path / "cv.json"
     report.write_text("old")
     args = ["select", small["data"], "--target", "y", "--nodes", "10", "--folds", "2",
-            "-o", tmp_path / "s.ncz", "--report", report]
+            "-o", tmp_path / "s.ncast", "--report", report]
     assert run_cli(capsys, *args)[0] == 2 and report.read_text() == "old"
     status, _, err = run_cli(capsys, *args, "--overwrite")
     assert status == 0, err
@@ -141,8 +141,8 @@ def test_verify_and_score_reports_need_overwrite_to_replace_a_file(capsys, small
 
 def test_classification_of_a_continuous_target_is_refused_in_one_line(capsys, small, tmp_path):
     status, out, err = run_cli(capsys, "train", small["data"], "--target", "y", "--task",
-                               "classification", "-o", tmp_path / "c.ncz")
-    assert status == 2 and not (tmp_path / "c.ncz").exists()
+                               "classification", "-o", tmp_path / "c.ncast")
+    assert status == 2 and not (tmp_path / "c.ncast").exists()
     assert len(err.strip().splitlines()) == 1 and "Warning" not in err and ".py:" not in err
     assert "60 distinct labels in 60 rows" in err and "--task regression" in err
 
@@ -154,7 +154,7 @@ def test_classification_with_two_rows_per_class_still_trains(capsys, tmp_path):
     rows = [[float(a), float(b), float(i % 20)] for i, (a, b) in enumerate(X)]  # 20 classes x 2
     data = write_csv(tmp_path / "c.csv", ["a", "b", "label"], rows)
     status, _, err = run_cli(capsys, "train", data, "--target", "label", "--task", "classification",
-                             "--nodes", "10", "-o", tmp_path / "c.ncz")
+                             "--nodes", "10", "-o", tmp_path / "c.ncast")
     assert status == 0, err
 
 
@@ -163,8 +163,8 @@ def test_fixed_point_header_names_the_real_function(capsys, tmp_path):
 
     assert run_cli(capsys, "demo", "--data-only", "-o", tmp_path)[0] == 0
     assert run_cli(capsys, "train", tmp_path / "readings.csv", "--target", "heatsink_temp",
-                   "--nodes", "20", "-o", tmp_path / "fan.ncz")[0] == 0
-    artifact = emit(load(tmp_path / "fan.ncz"), "c", precision="q15", prefix="fan",
+                   "--nodes", "20", "-o", tmp_path / "fan.ncast")[0] == 0
+    artifact = emit(load(tmp_path / "fan.ncast"), "c", precision="q15", prefix="fan",
                     out_of_domain="reject")
     header = artifact.files["fan.h"].decode()
     assert "fan_predict returns FAN_ERROR_OUT_OF_DOMAIN" in header
@@ -192,25 +192,25 @@ def test_inspect_shows_what_was_chosen_and_the_training_datas_sha256(capsys, tmp
     data = write_csv(tmp_path / "d.csv", ["a", "b", "y"], [[float(a), float(b), float(a - b)] for a, b in X])
     status, _, err = run_cli(capsys, "train", data, "--target", "y", "--nodes", "12", "--seed", "7",
                              "--slope-scale", "0.5", "--ridge", "1e-3", "--units", "a=m",
-                             "-o", tmp_path / "m.ncz")
+                             "-o", tmp_path / "m.ncast")
     assert status == 0, err
-    status, text, _ = run_cli(capsys, "inspect", tmp_path / "m.ncz")
+    status, text, _ = run_cli(capsys, "inspect", tmp_path / "m.ncast")
     assert status == 0
     sha = hashlib.sha256(data.read_bytes()).hexdigest()  # hashlib: FIPS 180-4 SHA-256
     from nodecast.compiler import load
 
-    chosen = load(tmp_path / "m.ncz").metadata["diagnostics"]["neighbors"]  # k searched (auto)
+    chosen = load(tmp_path / "m.ncast").metadata["diagnostics"]["neighbors"]  # k searched (auto)
     assert (f"made with: method data-driven, neighbours {chosen}, slope scale 0.5, ridge 0.001 "
             "(given), seed 7") in text
     assert f"training data: 80 rows, SHA-256 {sha}" in text
     assert "  a [m]: domain" in text and "  b: domain" in text  # no empty unit as []
     assert "[]" not in text and "[0." not in text  # no raw lists
-    status, doc, _ = run_cli(capsys, "inspect", tmp_path / "m.ncz", "--json")
+    status, doc, _ = run_cli(capsys, "inspect", tmp_path / "m.ncast", "--json")
     assert json.loads(doc)["metadata"]["training_data"] == {"sha256": sha, "bytes": data.stat().st_size}
     # automatic ridge says so
     status, _, _ = run_cli(capsys, "train", data, "--target", "y", "--nodes", "12",
-                           "-o", tmp_path / "auto.ncz")
-    status, text, _ = run_cli(capsys, "inspect", tmp_path / "auto.ncz")
+                           "-o", tmp_path / "auto.ncast")
+    status, text, _ = run_cli(capsys, "inspect", tmp_path / "auto.ncast")
     assert "(automatic, " in text and "seed 0" in text
 
 
@@ -261,3 +261,16 @@ def test_standalone_predictor_keeps_chosen_columns(capsys, small, tmp_path):
                              "--keep", "missing"], capture_output=True, text=True)
     assert result.returncode == 2 and "'missing'" in result.stderr
     assert len(result.stderr.strip().splitlines()) == 1
+
+
+def test_a_target_cannot_also_be_a_feature(tmp_path, capsys):
+    write_csv(tmp_path / "d.csv", ["a", "y"], np.random.default_rng(2).random((30, 2)))
+    result = run_cli(capsys, "train", tmp_path / "d.csv", "--target", "y", "--features", "a,y",
+                     "-o", tmp_path / "m.ncast")
+    assert result.status == 2 and "both a feature and a target" in result.err
+
+
+def test_demo_into_an_impossible_folder_is_a_one_line_error(tmp_path, capsys):
+    (tmp_path / "file").write_text("x")
+    result = run_cli(capsys, "demo", "-o", tmp_path / "file" / "sub")
+    assert result.status == 2 and result.err.count("\n") == 1 and "Traceback" not in result.err

@@ -43,5 +43,5 @@ def _run(args, threads: int, tmp_path):
 def test_bundle_bytes_do_not_depend_on_blas_threads(tmp_path, command):
     _data(tmp_path / "data.csv")
     for threads in (1, 2):
-        _run(command + ["-o", f"t{threads}.ncz"], threads, tmp_path)
-    assert (tmp_path / "t1.ncz").read_bytes() == (tmp_path / "t2.ncz").read_bytes()
+        _run(command + ["-o", f"t{threads}.ncast"], threads, tmp_path)
+    assert (tmp_path / "t1.ncast").read_bytes() == (tmp_path / "t2.ncast").read_bytes()

@@ -20,7 +20,7 @@ def _nodecast(*args, cwd=None):
 
 
 def test_bundle_round_trip_is_bit_exact(friedman_bundle, tmp_path):
-    path = bundle_io.save(friedman_bundle, tmp_path / "m.ncz")
+    path = bundle_io.save(friedman_bundle, tmp_path / "m.ncast")
     loaded = bundle_io.load(path)
     for name, array in friedman_bundle.network.arrays().items():
         assert loaded.network.arrays()[name].tobytes() == array.tobytes(), name
@@ -40,7 +40,7 @@ def test_corrupted_bundle_is_refused_with_exit_2(friedman_bundle, tmp_path):
     # header (128 bytes here) and the float64 payload
     offset = info.header_offset + 30 + len(info.filename) + 128 + 8
     data[offset] ^= 0x01
-    bad = tmp_path / "bad.ncz"
+    bad = tmp_path / "bad.ncast"
     bad.write_bytes(bytes(data))
     result = _nodecast("inspect", str(bad))
     assert result.returncode == 2
@@ -106,6 +106,7 @@ def test_version_flag():
     assert result.returncode == 0 and __version__ in result.stdout
 
 
+@pytest.mark.slow
 def test_demo_passes_and_beats_fixed_interval_baseline(tmp_path):
     result = _nodecast("demo", "-o", str(tmp_path / "demo"))
     assert result.returncode == 0, result.stdout + result.stderr
@@ -115,14 +116,15 @@ def test_demo_passes_and_beats_fixed_interval_baseline(tmp_path):
     assert ours < baseline
     report = json.loads((tmp_path / "demo" / "verify_onnx.json").read_text())
     assert report["passed"] is True and report["max_abs_error"] <= max(report["tolerance"]["per_output"])
-    assert (tmp_path / "demo" / "fan.ncz").stat().st_size > 0
+    assert (tmp_path / "demo" / "fan.ncast").stat().st_size > 0
 
 
 @pytest.mark.parametrize("args, needle", [
-    (["train", "missing.csv", "--target", "y", "-o", "m.ncz"], "cannot read"),
-    (["inspect", "missing.ncz"], "cannot read bundle"),
-    (["emit", "missing.ncz", "--to", "onnx", "-o", "m.onnx"], "cannot read bundle"),
+    (["train", "missing.csv", "--target", "y", "-o", "m.ncast"], "cannot read"),
+    (["inspect", "missing.ncast"], "cannot read bundle"),
+    (["emit", "missing.ncast", "--to", "onnx", "-o", "m.onnx"], "cannot read bundle"),
 ])
+@pytest.mark.slow
 def test_bad_input_is_one_line_and_exit_2(tmp_path, args, needle):
     result = _nodecast(*args, cwd=tmp_path)
     assert result.returncode == 2

@@ -27,13 +27,13 @@ def rows40(tmp_path):
 
 def test_more_nodes_than_rows_warns_before_training(capsys, rows40, tmp_path):
     code, _, err = run_cli(capsys, "train", rows40, "--target", "y", "--nodes", "80",
-                        "-o", tmp_path / "m.ncz")
+                        "-o", tmp_path / "m.ncast")
     assert code == 0
     lines = err.strip().splitlines()
     assert lines[0].startswith("nodecast: warning: 80 nodes for 40 rows") and "select" in lines[0]
     assert lines[-1].startswith("wrote ")  # the warning comes first, the result last
     # the default M is ours to choose: no warning for it, even on 40 rows
-    code, _, err = run_cli(capsys, "train", rows40, "--target", "y", "-o", tmp_path / "d.ncz")
+    code, _, err = run_cli(capsys, "train", rows40, "--target", "y", "-o", tmp_path / "d.ncast")
     assert code == 0 and "warning" not in err
 
 
@@ -42,11 +42,11 @@ def test_rows_outside_a_declared_domain_are_counted(capsys, rows40, tmp_path):
     expected = int(np.sum((a < 0.2) | (a > 0.7)))
     assert expected > 0
     code, _, err = run_cli(capsys, "train", rows40, "--target", "y", "--domain", "a=0.2:0.7",
-                        "-o", tmp_path / "m.ncz")
+                        "-o", tmp_path / "m.ncast")
     assert code == 0
     assert f"warning: {expected} of 40 training rows lie outside the declared --domain" in err
     code, _, err = run_cli(capsys, "train", rows40, "--target", "y", "--domain", "a=0:1",
-                        "-o", tmp_path / "all.ncz")
+                        "-o", tmp_path / "all.ncast")
     assert code == 0 and "warning" not in err
 
 
@@ -118,13 +118,14 @@ def test_run_interruptible_returns_results_and_raises_errors_of_the_child():
 
 
 @pytest.mark.skipif(not hasattr(os, "fork"), reason="prompt Ctrl-C needs fork")
+@pytest.mark.slow
 def test_ctrl_c_stops_a_long_fit_at_once_with_status_130(tmp_path):
     from nodecast.cli.demo_scenario import write_data
 
     write_data(tmp_path)
     lines = (tmp_path / "readings.csv").read_text().splitlines()[:601]
     (tmp_path / "r.csv").write_text("\n".join(lines) + "\n")
-    out = tmp_path / "big.ncz"
+    out = tmp_path / "big.ncast"
     # 3000 nodes on 600 rows takes minutes; the progress line says the fit has started
     child = subprocess.Popen([sys.executable, "-m", "nodecast.cli", "train",
                               str(tmp_path / "r.csv"), "--target", "heatsink_temp", "--nodes",
