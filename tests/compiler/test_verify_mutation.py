@@ -115,7 +115,7 @@ def test_one_ulp_passes_and_one_percent_fails(models, tmp_path, kind, precision,
     assert ulp_shift < 0.1 * tolerance  # the tolerance allows it: an ulp is far below it
     assert ulp is not None and ulp.passed
     percent, shift = mutant_report(bundle, kind, precision, tmp_path, lambda b: 1.01 * b, "pct")
-    assert shift > 5 * tolerance  # a 1% change is far above the tolerance ...
+    assert shift > 10 * tolerance  # a 1% change is far above the tolerance ...
     if percent is None:  # ... refused for its stated bound, or measured and failed as unsound
         return
     assert not percent.passed and not percent.document["sound"]
