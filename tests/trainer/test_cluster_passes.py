@@ -76,3 +76,18 @@ def test_the_small_file_is_split_into_several_partitions(tmp_path, synchronous):
     job = TrainingJob(targets=("power",))
     _, rows = frames.file_partitions(_log(tmp_path / "pump.csv"), job)
     assert len(rows.parts) >= 4 and sum(rows.counts()) == 900
+
+
+def test_small_data_take_the_second_fit_for_validation_on_partitions_too(tmp_path, synchronous,
+                                                                        monkeypatch):
+    # 90 rows: no check set, so the validation figures come from a fit on the rows not held out
+    monkeypatch.setattr(frames, "BLOCK_BYTES", 1_000)  # several partitions of a tiny file
+    path = _log(tmp_path / "pump.csv", rows=90)
+    job = TrainingJob(targets=("power",), params={"n_nodes": 12}, seed=3)
+    single = train(read_table(path), job)
+    clustered = cluster_training.train_on_cluster(path, job, "sync")
+    assert single.metadata["ridge"]["rule"] == clustered.metadata["ridge"]["rule"] == "gcv+float32"
+    a, b = (bundle.metadata["metrics"]["validation"] for bundle in (single, clustered))
+    assert a["rows"] == b["rows"] > 0
+    assert np.allclose(a["rmse"], b["rmse"], rtol=1e-9)
+    assert np.array_equal(single.network.hidden_weights, clustered.network.hidden_weights)

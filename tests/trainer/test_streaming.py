@@ -120,6 +120,27 @@ def test_above_20000_rows_the_strided_trend_rows_are_gathered_from_the_chunks(tm
     assert to_bytes(streamed) == to_bytes(reference)
 
 
+@pytest.mark.parametrize("rows, fraction", [(90, 0.2), (600, 0.0), (600, 0.5)])
+def test_validation_figures_from_the_check_rows_or_a_small_second_fit(tmp_path, rows, fraction):
+    # 90 rows: too few for a check set (18 < 20 rows), so the figures come from a second fit on
+    # the rows not held out, streamed as well; fraction 0: no check and no figures; 0.5: the check
+    # (and the figures) take about half of the rows
+    path = _write_csv(tmp_path / "bench.csv", *_table(rows, seed=4))
+    job = TrainingJob(targets=("rise",), features=("flow", "stage", "drift"), seed=2,
+                      params={"n_nodes": 12}, validation_fraction=fraction)
+    reference = train(read_table(path), job)
+    metrics, ridge = reference.metadata["metrics"], reference.metadata["ridge"]
+    if fraction == 0.0:
+        assert "validation" not in metrics and ridge["rule"] == "gcv+float32"
+    elif rows == 90:
+        assert ridge["rule"] == "gcv+float32" and 5 <= metrics["validation"]["rows"] <= 35
+    else:
+        assert metrics["validation"]["rows"] == ridge["check_rows"]
+        assert abs(ridge["check_rows"] - fraction * rows) <= 4 * np.sqrt(rows * 0.25)  # binomial
+    for size in (7, 64):
+        assert to_bytes(train_streaming(CsvSource(path, size), job)) == to_bytes(reference), size
+
+
 def test_categorical_inputs_are_refused_in_one_line_when_streamed(bench_csv):
     job = TrainingJob(targets=("rise",), features=("flow", "stage", "drift"),
                       categorical=("stage",), params={"n_nodes": 10})
