@@ -2,36 +2,45 @@
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 
 import click
 
-from nodecast.cli.messages import budget_warning, emitted_line
+from nodecast.cli.messages import budget_warning, emitted_line, warn
 from nodecast.cli.parsing import example, load_bundle
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.targets import TARGETS, all_choices, foreign_option_error
+
+C, ONNX = TARGETS["c"], TARGETS["onnx"]
+
+
+def _default(spec, name: str) -> str:
+    return f"default: {spec.default_text(spec.option(name))}"
 
 
 @click.command(epilog=example("emit"))
 @click.argument("model", type=click.Path(dir_okay=False))
 @click.option("--to", "target", required=True, type=click.Choice(list(TARGETS)))
 @click.option("--precision", type=click.Choice(all_choices("precision")),
-              help="Arithmetic of the artifact (default: float32 for onnx and c, float64 for python).")
+              help="Arithmetic of the artifact (default: "
+                   + "; ".join(f"{s.default_precision} for {n}" for n, s in TARGETS.items()) + ").")
 @click.option("--out-of-domain", type=click.Choice(all_choices("out_of_domain")),
-              help="What the artifact does with inputs outside the declared domain (default: pass; "
-                   "clamp for q31/q15, whose integers hold the declared domain only).")
+              help="What the artifact does with inputs outside the declared domain ("
+                   + _default(C, "out_of_domain") + "; q31/q15 integers hold the declared domain "
+                   "only).")
 @click.option("--flag-out-of-domain", is_flag=True, default=None,
               help="ONNX: add a boolean output per row.")
-@click.option("--opset", type=int,
-              help="ONNX operator set version (default: the oldest this graph needs, 9, or 18 with "
-                   "--flag-out-of-domain; see docs/onnx.md).")
-@click.option("--prefix", help="C: file and identifier prefix (default: the bundle's file name when "
-                               "it is a C identifier, else 'model').")
-@click.option("--activation-impl", type=click.Choice(TARGETS["c"].option("activation_impl").choices),
-              help="C: how tanh is evaluated (default: rational for float32, libm for float64, "
-                   "table for q31/q15).")
-@click.option("--table-size", type=click.IntRange(*TARGETS["c"].option("table_size").value_range),
-              help="C, --activation-impl table: table intervals (default 512; q31 2048).")
+@click.option("--opset", type=click.IntRange(*ONNX.option("opset").value_range),
+              help="ONNX operator set version (default: the oldest this graph needs: 9, or 18 with "
+                   "--flag-out-of-domain or categorical inputs; see docs/onnx.md).")
+@click.option("--prefix", help="C: file and identifier prefix (default: the bundle's file name, "
+                               "lower-cased, other characters as '_', when that makes a C "
+                               "identifier, else 'model').")
+@click.option("--activation-impl", type=click.Choice(C.option("activation_impl").choices),
+              help="C: how tanh is evaluated (" + _default(C, "activation_impl") + ").")
+@click.option("--table-size", type=click.IntRange(*C.option("table_size").value_range),
+              help="C, --activation-impl table: table intervals (" + _default(C, "table_size") + ").")
 @click.option("--bare-metal", is_flag=True, default=None,
               help="C: also write startup.c and mps2.ld, to run your own main.c bare metal on "
                    "QEMU's MPS2 Cortex-M3/M4 boards (the board support verify --emulate uses).")
@@ -52,12 +61,15 @@ def emit(model, target, output, overwrite, max_size, **given):
     check_outputs({"-o": output}, {"MODEL": model}, overwrite, folders=("-o",) if target == "c" else ())
     options = target_options(target, model, {k: v for k, v in given.items() if v is not None})
     max_bytes = None if max_size is None else parse_size(max_size)
-    artifact = emit_artifact(load_bundle(model), target, output, overwrite=overwrite,
-                             max_bytes=max_bytes, **options)
+    bundle = load_bundle(model)
+    artifact = emit_artifact(bundle, target, output, overwrite=overwrite, max_bytes=max_bytes,
+                             **options)
     click.echo(emitted_line(output, target, artifact.summary), err=True)
-    warning = budget_warning(load_bundle(model), artifact.summary)
+    warning = budget_warning(bundle, artifact.summary)
     if warning:
-        click.echo(f"warning: {warning}", err=True)
+        warn(warning)
+    if target == "c":
+        warn_other_c_models(Path(output), options["prefix"])
     if "footprint" in artifact.summary:
         from nodecast.compiler.toolchain import format_footprint
 
@@ -71,23 +83,41 @@ def emit(model, target, output, overwrite, max_size, **given):
 
 def target_options(target: str, model: str, given: dict) -> dict:
     """The options given on the command line, refused when ``target`` does not take them, with the
-    command line's own defaults for C (a prefix from the bundle's name, instruction counts on)."""
+    command line's own defaults for C (a prefix from the bundle's name, instruction counts on,
+    the footprint always measured)."""
     spec = TARGETS[target]
     for name in given:
         if name not in spec.names:
             raise foreign_option_error(target, name)
     if target == "c":
-        given = {"prefix": default_prefix(model), "instruction_count": True, **given,
-                 "footprint": True}
+        given = {"prefix": given.get("prefix") or default_prefix(model), "instruction_count": True,
+                 **given, "footprint": True}
     return given
 
 
 def default_prefix(model: str) -> str:
-    """The bundle's file name without its extension when it is a valid C identifier (so that two
-    models link into one firmware without clashes), else ``model``."""
+    """The bundle's file name without its last extension, lower-cased, other characters as '_'
+    (``Fan-v2.ncast`` gives ``fan_v2``), so that two models link into one firmware without
+    clashes; ``model``, said in a warning, when that is not a valid C identifier."""
     from nodecast.compiler.backends.c_format import check_prefix
 
+    stem = Path(model).name.rsplit(".", 1)[0] if "." in Path(model).name else Path(model).name
+    tidy = re.sub(r"_+", "_", re.sub(r"[^a-z0-9_]", "_", stem.lower())).strip("_")
     try:
-        return check_prefix(Path(model).name.split(".")[0])
+        return check_prefix(tidy)
     except NodecastError:
+        warn(f"the C prefix is 'model': the bundle's name {stem!r} makes no valid C identifier "
+             "(give --prefix to name the files and functions)")
         return "model"
+
+
+def warn_other_c_models(folder: Path, prefix: str) -> None:
+    """A warning when the folder also holds another model's generated C (an earlier emit under
+    another prefix, such as the 'model' default of earlier versions): a build that lists those
+    files would go on compiling the old model."""
+    others = sorted(path.name for path in folder.glob("*.h") if path.stem != prefix
+                    and (folder / f"{path.stem}.c").is_file()
+                    and "Generated by nodecast" in path.read_text(errors="replace")[:2000])
+    if others:
+        warn(f"{folder} also holds {', '.join(others)} from another emit; remove it if your "
+             f"build should compile {prefix}.c instead")

@@ -18,9 +18,6 @@ EXAMPLES = {  # shown under each command's --help
 }
 
 
-def _epilog(name: str) -> str:
-    return f"\b\nExample:\n  {EXAMPLES[name]}"
-
 
 def example(name: str) -> str:
     return f"\b\nExample:\n  {EXAMPLES[name]}"

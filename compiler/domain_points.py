@@ -33,9 +33,21 @@ def sobol(net: Network, count: int, seed: int) -> np.ndarray:
 
 
 def domain_probes(net: Network, count: int = 2048, seed: int = 0) -> np.ndarray:
-    """Deterministic points of the declared domain: scrambled Sobol points and the corners, with
-    categorical levels cycled through them."""
-    return with_levels(net, np.vstack([sobol(net, count, seed), corners(net, seed)]))
+    """Deterministic points of the declared domain for the typical error estimate, the
+    fixed-point plan's output range and the input-folding decision: scrambled Sobol points and
+    corners (beyond ALL_CORNERS_UP_TO features, a sample drawn from ``seed`` itself, not from
+    verify's stream), all mapped as ``low + unit (high - low)``, with categorical levels cycled
+    through them. These are the points those decisions were always made on; changing them would
+    change artifacts."""
+    from nodecast.compiler.sobol import sobol as sobol_points  # scipy's sequence, 0.6 s faster
+
+    n = net.n_features
+    if n <= ALL_CORNERS_UP_TO:
+        corner_bits = unit_corners(n, seed).astype(float)
+    else:
+        corner_bits = np.random.default_rng(seed).integers(0, 2, size=(MAX_CORNERS, n)).astype(float)
+    unit = np.vstack([sobol_points(n, count, seed), corner_bits])
+    return with_levels(net, net.domain_low + unit * (net.domain_high - net.domain_low))
 
 
 def with_levels(net: Network, X: np.ndarray, shift: int = 0) -> np.ndarray:

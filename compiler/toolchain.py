@@ -16,9 +16,6 @@ from pathlib import Path
 from nodecast.compiler.errors import NodecastError
 
 ARM_CC = "arm-none-eabi-gcc"
-WARNINGS = ("-Wall", "-Wextra", "-Wpedantic", "-Wconversion", "-Wshadow", "-Wdouble-promotion",
-            "-Werror")
-STRICT_C99 = ("-std=c99",) + WARNINGS
 REPRODUCIBLE = ("-ffp-contract=off",)  # no fused multiply-add: the same bits on every target
 ARM_CPU_FLAGS = {
     "cortex-m0": ("-mcpu=cortex-m0", "-mthumb", "-mfloat-abi=soft"),

@@ -39,30 +39,20 @@ def target_options() -> list[str]:
     command and ``nodecast.compiler.emit``) accepts; any other option is refused."""
     lines = ["", "## Options per target", "",
              "What `nodecast emit --to T` and `nodecast.compiler.emit(bundle, T, **options)` accept "
-             "(from `compiler/targets.py`); any other option is refused, never dropped."]
+             "(from `compiler/targets.py`); any other option is refused, never dropped. The command "
+             "line names them as flags (`out_of_domain` is `--out-of-domain`) and sets three C "
+             "options itself: `prefix` defaults to the bundle's file name when that makes a C "
+             "identifier, `instruction_count` is on unless `--no-instruction-count`, and "
+             "`footprint` (Python API only) is always measured."]
     for name, spec in TARGETS.items():
         lines += ["", f"### {name}", "", "| option | values | default |", "| --- | --- | --- |",
                   f"| precision | {', '.join(spec.precisions)} | {spec.default_precision} |"]
         for option in spec.options:
-            if option.choices is not None:
-                values = ", ".join(map(str, option.choices))
-            elif option.value_range is not None:
-                values = "integer {}..{}".format(*option.value_range)
-            else:
-                values = "see the command's help"
-            default = _default_text(spec, option)
-            lines.append(f"| {option.name} | {values} | {default} |")
+            default = spec.default_text(option)
+            if option.name == "opset":
+                default = "the oldest the graph needs"
+            lines.append(f"| {option.name} | {spec.values_text(option)} | {default} |")
     return lines
-
-
-def _default_text(spec, option) -> str:
-    """The default, or one per group of precisions when it follows the precision."""
-    by_value: dict = {}
-    for precision in spec.precisions:
-        by_value.setdefault(spec.default(option, precision), []).append(precision)
-    if len(by_value) == 1:
-        return str(next(iter(by_value)))
-    return "; ".join(f"{value} ({', '.join(precisions)})" for value, precisions in by_value.items())
 
 
 if __name__ == "__main__":

@@ -163,3 +163,19 @@ def test_emulate_is_refused_for_artifacts_that_are_not_c(friedman_bundle, tmp_pa
     emit(friedman_bundle, "onnx", tmp_path / "m.onnx")
     with pytest.raises(NodecastError, match="emulate"):
         verify(friedman_bundle, tmp_path / "m.onnx", emulate="cortex-m4")
+
+
+@pytest.mark.skipif(not HAS_GCC, reason="needs gcc")
+def test_two_models_in_one_folder_are_verified_by_naming_a_header(work, capsys):
+    """The default C prefix is the bundle's name, so two models can share a firmware folder;
+    verify then takes the header of the one to check."""
+    (work / "pump.ncast").write_bytes((work / "m.ncast").read_bytes())
+    for model in ("m", "pump"):
+        assert run_cli(capsys, "emit", work / f"{model}.ncast", "--to", "c",
+                       "--no-instruction-count", "-o", work / "fw").status == 0
+    assert sorted(p.name for p in (work / "fw").iterdir()) == ["m.c", "m.h", "pump.c", "pump.h"]
+    code, _, err = run_cli(capsys, "verify", work / "m.ncast", work / "fw", "--probes", "32")
+    assert one_line_refusal(code, err) and "pump.h" in err and "naming its header" in err
+    code, out, err = run_cli(capsys, "verify", work / "m.ncast", work / "fw" / "pump.h",
+                             "--probes", "32")
+    assert code == 0, out + err

@@ -71,9 +71,6 @@ def render(bundle, precision: str = "float32", opset: int | None = None,
            out_of_domain: str = "pass", flag_out_of_domain: bool = False) -> Artifact:
     needed = needed_opset(flag_out_of_domain, bundle.network.n_categorical > 0)
     opset = needed if opset is None else opset
-    if opset not in SUPPORTED_OPSETS:
-        raise NodecastError(f"opset {opset!r} is not supported; choose one of "
-                            f"{SUPPORTED_OPSETS[0]}..{SUPPORTED_OPSETS[-1]}")
     if opset < needed:
         raise NodecastError(f"opset {opset} is too old for this graph: it needs opset {needed} or "
                             "newer (--flag-out-of-domain: ReduceMin with its axes as an input; "

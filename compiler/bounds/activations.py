@@ -143,7 +143,7 @@ def exhaustive_rational_float32_error(limit: float = 20.0) -> float:
 
 
 # Result of exhaustive_rational_float32_error() (every float32 in [0, 20]; beyond, the clip makes
-# the value constant and tanh only nearer 1), rounded up; tests/compiler/test_bounds_activations.py
+# the value constant and tanh only nearer 1), rounded up; tests/compiler/test_certified_bounds.py
 # re-runs it.
 RATIONAL_FLOAT32_ERROR = 3.73e-7  # measured 3.7274e-07 (52 s of CPU)
 

@@ -64,26 +64,10 @@ def _peak_slope(net: Network, lo, hi) -> np.ndarray:
     return act.derivative(np.clip(act.inflection, lo, hi))
 
 
-def fold_cost(net: Network, lo, hi) -> tuple[np.ndarray, np.ndarray]:
-    """Per node, the fold constant (M,) and the bound per output (M, t) in target units."""
-    g_lo, g_hi = _g(net, lo), _g(net, hi)
-    return 0.5 * (g_lo + g_hi), _in_targets(net, _half_width(g_lo, g_hi))
-
-
 def _half_width(g_lo, g_hi):
     """Half of g's range, widened by a few units of float64 roundoff of the evaluated g (NumPy's
     tanh is within a few ulp), so a computed 0 for a saturated node is never an understatement."""
     return 0.5 * (g_hi - g_lo) + G_ROUNDING * np.maximum(np.abs(g_lo), np.abs(g_hi))
-
-
-def drop_cost(net: Network, lo, hi) -> np.ndarray:
-    """Per node, the bound per output (M, t) of dropping it."""
-    return _in_targets(net, (1 + G_ROUNDING) * np.maximum(np.abs(_g(net, lo)), np.abs(_g(net, hi))))
-
-
-def _in_targets(net: Network, size: np.ndarray) -> np.ndarray:
-    # widened by a few float64 roundings of the product, so the stated bound is never beaten
-    return size[:, None] * np.abs(net.output_weights) * net.output_scale * (1 + 1e-12)
 
 
 def match_factors(net: Network, lo, hi) -> tuple[np.ndarray, np.ndarray]:

@@ -160,7 +160,8 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
     Parameters
     ----------
     bundle : Bundle, the model the artifact was emitted from.
-    artifact : str or path, a .onnx or .py file, or a folder of generated C.
+    artifact : str or path, a .onnx or .py file, a folder of generated C, or the header
+        ``<prefix>.h`` of one model in a folder that holds several.
     data : ndarray of shape (n_rows, n_features) or None, extra probes (the user's rows).
     count, seed : the number of quasi-random probes and the seed of every probe family.
     abs_tol, rel_tol : tolerance overrides (see :mod:`nodecast.compiler.verify.tolerance`).
@@ -168,6 +169,8 @@ def verify(bundle, artifact, data=None, count: int = 4096, seed: int = 0,
     run_options : passed to the runner's ``describe`` (e.g. ``emulate="cortex-m4"`` for C).
     """
     net, path = bundle.network, Path(artifact)
+    if path.suffix == ".h" and path.is_file():  # one model of a folder that holds several
+        run_options, path = {**run_options, "header": path.name}, path.parent
     kind = detect_kind(path)
     if run_options.get("emulate") and kind != "c":
         raise NodecastError(f"--emulate runs C artifacts on an emulated CPU; {path} is a {kind} "

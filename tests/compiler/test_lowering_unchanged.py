@@ -1,6 +1,6 @@
-"""Every artifact of the demo model computes, bit for bit, what it computed before the lowering was
-reorganised into passes (issue: the house redesigned). The digests in tests/data were recorded by
-tests/data/record_lowering_outputs.py at commit 8ff5fd1 from the committed demo bundle."""
+"""Every artifact of the committed test bundles computes, bit for bit, what it computed before the
+lowering was reorganised into passes (issue: the house redesigned). The digests in tests/data were
+recorded by tests/data/record_lowering_outputs.py with the code of commit 8ff5fd1."""
 
 from __future__ import annotations
 
@@ -16,17 +16,27 @@ spec = importlib.util.spec_from_file_location("record_lowering_outputs",
                                               DATA / "record_lowering_outputs.py")
 record = importlib.util.module_from_spec(spec)
 spec.loader.exec_module(record)
-RECORDED = json.loads((DATA / "demo_fan_outputs.json").read_text())
+RECORDED = json.loads(record.DIGESTS.read_text())
 
 
-@pytest.mark.parametrize("target,options", record.CONFIGS,
-                         ids=[record.config_name(t, o) for t, o in record.CONFIGS])
 @pytest.mark.slow
-def test_artifact_computes_what_it_computed_before(target, options, tmp_path):
-    if target == "c" and shutil.which("cc") is None and shutil.which("gcc") is None:
+@pytest.mark.parametrize("bundle_name,target,options", record.CONFIGS,
+                         ids=[record.config_name(*config) for config in record.CONFIGS])
+def test_artifact_computes_what_it_computed_before(bundle_name, target, options, tmp_path):
+    if target == "c" and shutil.which("gcc") is None:
         pytest.skip("no C compiler")
+    if record.depends_on_environment(target, options) \
+            and record.environment() != RECORDED["environment"]:
+        pytest.skip(f"recorded with {RECORDED['environment']}; this machine has "
+                    f"{record.environment()}")
     from nodecast.compiler import load
 
-    bundle = load(record.BUNDLE)
+    bundle = load(DATA / f"{bundle_name}.ncast")
     got = record.digest(bundle, target, options, tmp_path, record.EXTRA.get(target))
-    assert got == RECORDED[record.config_name(target, options)]
+    assert got == RECORDED["digests"][record.config_name(bundle_name, target, options)]
+
+
+def test_every_configuration_has_a_recorded_digest():
+    names = {record.config_name(*config) for config in record.CONFIGS}
+    assert names == set(RECORDED["digests"])
+    assert {"onnxruntime", "libc"} <= set(RECORDED["environment"])

@@ -61,10 +61,52 @@ def test_values_outside_the_spec_are_refused(demo_bundle, target, options, messa
         emit(demo_bundle, target, **options)
 
 
-@pytest.mark.slow
 def test_fixed_point_defaults_to_clamp(demo_bundle):
     """`emit --to c --precision q15` works as typed: fixed point cannot pass inputs outside the
     domain, so its default policy is clamp (the float default stays pass)."""
     artifact = emit(demo_bundle, "c", precision="q15")
     assert artifact.summary["out_of_domain"] == "clamp"
     assert emit(demo_bundle, "c").summary["out_of_domain"] == "pass"
+
+
+@pytest.mark.parametrize("options,message", [
+    ({"precision": ""}, "not ''"),  # a falsy precision is refused, not read as the default
+    ({"precision": "q15", "out_of_domain": "pass"}, "clamp, reject at q15"),
+    ({"precision": "q31", "activation_impl": "rational"}, "table at q31"),
+    ({"table_size": 64}, "--table-size applies to --activation-impl table only"),
+    ({"activation_impl": "table", "table_size": 64.0}, "an integer 16..65536"),
+    ({"bare_metal": 1}, "True or False"),
+])
+def test_the_spec_refuses_what_the_precision_or_another_option_rules_out(options, message):
+    with pytest.raises(NodecastError, match=message):
+        TARGETS["c"].resolve(options)
+
+
+def test_defaults_follow_the_precision_and_numpy_integers_are_integers():
+    import numpy as np
+
+    c = TARGETS["c"]
+    assert c.resolve({"precision": "q31"})["table_size"] == 2048
+    assert c.resolve({"precision": "q15"})["activation_impl"] == "table"
+    assert c.resolve({})["table_size"] is None  # no table, no size
+    size = c.resolve({"activation_impl": "table", "table_size": np.int64(64)})["table_size"]
+    assert size == 64 and type(size) is int
+
+
+def test_onnx_opsets_in_the_spec_are_those_the_back_end_writes():
+    from nodecast.compiler.backends import onnx as onnx_backend
+
+    low, high = TARGETS["onnx"].option("opset").value_range
+    assert onnx_backend.SUPPORTED_OPSETS == tuple(range(low, high + 1))
+
+
+def test_emit_q15_as_typed_on_the_command_line(demo_bundle, tmp_path, capsys):
+    from nodecast.compiler import save
+    from tests.helpers import run_cli
+
+    model = save(demo_bundle, tmp_path / "Fan-V2.ncast")
+    result = run_cli(capsys, "emit", model, "--to", "c", "--precision", "q15",
+                     "--no-instruction-count", "-o", tmp_path / "fw")
+    assert result.status == 0, result.err
+    header = (tmp_path / "fw" / "fan_v2.h").read_text()  # the prefix from the bundle's name
+    assert '#define FAN_V2_OUT_OF_DOMAIN "clamp"' in header

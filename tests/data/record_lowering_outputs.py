@@ -1,14 +1,24 @@
-"""Record what every artifact of the demo model computes on verify's probes, as SHA-256 digests.
+"""Record what every artifact of the committed test bundles computes on verify's probes, as SHA-256
+digests of the outputs.
 
 Run once before a refactoring of the lowering (``python tests/data/record_lowering_outputs.py``);
 tests/compiler/test_lowering_unchanged.py recomputes the digests after it, so an artifact that
-computes anything different, by one bit, fails. The digests were recorded at commit 8ff5fd1.
+computes anything different, by one bit, fails. The digests were recorded at commit 8ff5fd1 (before
+the lowering was reorganised into passes) from these bundles:
+
+* ``demo_fan.ncast``: the built-in demo's model (4 inputs, 200 logistic nodes);
+* ``wide12.ncast``: 12 inputs (more than the 10 whose every corner is probed), 2 outputs, tanh;
+* ``levels.ncast``: a classifier with a categorical input (level tables in every artifact).
+
+ONNX float32 results depend on onnxruntime's kernels and C libm results on the C library, so those
+digests hold for the versions recorded in ``environment``; the test skips them elsewhere.
 """
 
 from __future__ import annotations
 
 import hashlib
 import json
+import platform
 import sys
 import tempfile
 from pathlib import Path
@@ -16,23 +26,45 @@ from pathlib import Path
 import numpy as np
 
 HERE = Path(__file__).parent
-BUNDLE = HERE / "demo_fan.ncast"
-DIGESTS = HERE / "demo_fan_outputs.json"
+DIGESTS = HERE / "recorded_outputs.json"
 
 # (target, options): every precision and activation implementation of every target
-CONFIGS = [("python", {"precision": "float64"})]
-CONFIGS += [("onnx", {"precision": p}) for p in ("float32", "float64")]
-CONFIGS += [("c", {"precision": p, "activation_impl": a}) for p in ("float32", "float64")
-            for a in ("libm", "rational", "table")]
-CONFIGS += [("c", {"precision": p, "out_of_domain": "clamp"}) for p in ("q15", "q31")]
-CONFIGS += [("c", {"precision": "float32", "activation_impl": "table", "table_size": 64})]
+DEMO = [("python", {"precision": "float64"})]
+DEMO += [("onnx", {"precision": p}) for p in ("float32", "float64")]
+DEMO += [("c", {"precision": p, "activation_impl": a}) for p in ("float32", "float64")
+         for a in ("libm", "rational", "table")]
+DEMO += [("c", {"precision": p, "out_of_domain": "clamp"}) for p in ("q15", "q31")]
+DEMO += [("c", {"precision": "float32", "activation_impl": "table", "table_size": 64})]
+WIDE = [("python", {"precision": "float64"}), ("onnx", {"precision": "float32"}),
+        ("c", {"precision": "float32", "activation_impl": "rational"}),
+        ("c", {"precision": "q15", "out_of_domain": "clamp"})]
+LEVELS = [("python", {"precision": "float64", "out_of_domain": "reject"}),
+          ("onnx", {"precision": "float64"}),
+          ("c", {"precision": "float32", "activation_impl": "table"})]
+BUNDLES = {"demo_fan": DEMO, "wide12": WIDE, "levels": LEVELS}
+CONFIGS = [(bundle, target, options) for bundle, configs in BUNDLES.items()
+           for target, options in configs]
 
-# options that select today's behaviour where a later change made another one the default
+# options that select the recorded behaviour where a later change made another one the default
 EXTRA: dict[str, dict] = {}
 
 
-def config_name(target: str, options: dict) -> str:
-    return target + "".join(f" {key}={value}" for key, value in sorted(options.items()))
+def config_name(bundle: str, target: str, options: dict) -> str:
+    prefix = "" if bundle == "demo_fan" else f"{bundle}: "
+    return prefix + target + "".join(f" {key}={value}" for key, value in sorted(options.items()))
+
+
+def depends_on_environment(target: str, options: dict) -> bool:
+    """ONNX float32 (onnxruntime's kernels) and C libm (the C library's tanh)."""
+    return (target == "onnx" and options.get("precision") == "float32") or \
+        options.get("activation_impl") == "libm"
+
+
+def environment() -> dict:
+    import onnxruntime
+
+    return {"onnxruntime": onnxruntime.__version__, "libc": " ".join(platform.libc_ver()),
+            "machine": platform.machine()}
 
 
 def probes(net) -> np.ndarray:
@@ -57,12 +89,16 @@ def digest(bundle, target: str, options: dict, folder: Path, extra: dict | None 
 def main() -> int:
     from nodecast.compiler import load
 
-    bundle = load(BUNDLE)
+    recorded = json.loads(DIGESTS.read_text()) if DIGESTS.is_file() else {}
+    digests = recorded.get("digests", {})
     with tempfile.TemporaryDirectory() as folder:
-        digests = {config_name(t, o): digest(bundle, t, o, Path(folder), EXTRA.get(t))
-                   for t, o in CONFIGS}
-    DIGESTS.write_text(json.dumps(digests, indent=1, sort_keys=True) + "\n")
-    print(json.dumps(digests, indent=1))
+        for name, target, options in CONFIGS:
+            bundle = load(HERE / f"{name}.ncast")
+            digests[config_name(name, target, options)] = digest(
+                bundle, target, options, Path(folder), EXTRA.get(target))
+    document = {"environment": environment(), "digests": digests}
+    DIGESTS.write_text(json.dumps(document, indent=1, sort_keys=True) + "\n")
+    print(json.dumps(document, indent=1))
     return 0
 
 
