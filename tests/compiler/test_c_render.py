@@ -42,7 +42,7 @@ def test_good_prefixes_name_files_and_macros(friedman_bundle, prefix):
     ({"precision": "q7"}, "precision"),
     ({"activation_impl": "cordic"}, "activation-impl"),
     ({"precision": "q15", "activation_impl": "libm", "out_of_domain": "clamp"}, "table"),
-    ({"precision": "q31", "out_of_domain": "pass"}, "clamp, reject at q15"),
+    ({"precision": "q31", "out_of_domain": "pass"}, "clamp, reject at q31"),
     ({"activation_impl": "libm", "table_size": 64}, "table-size"),
     ({"activation_impl": "table", "table_size": 8}, "table-size"),
     ({"precision": "q15", "table_size": 10**6, "out_of_domain": "reject"}, "--table-size an integer"),
