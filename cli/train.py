@@ -53,20 +53,28 @@ from nodecast.cli.parsing import (
               show_default=True)
 @click.option("--seed", type=SEED, default=0, show_default=True)
 @click.option("--validation-fraction", type=click.FloatRange(0, 0.9), default=0.2, show_default=True,
-              help="Share of rows held out for the reported validation error (the bundle's model "
-                   "is fitted on all rows).")
+              help="Share of rows held out (at most about 20,000) for the automatic ridge's check "
+                   "and the reported validation error, from the same fit (the bundle's model is "
+                   "fitted on all rows; 0: none).")
+@click.option("--chunk-rows", type=click.IntRange(min=1),
+              help="Read DATA this many rows at a time, in memory that does not grow with the rows "
+                   "(default: CSV files up to 32 MiB are read whole, larger ones and Parquet in "
+                   "chunks of 50,000 rows; the model is the same).")
+@click.option("--cluster", metavar="ADDRESS|local[:N]",
+              help="Run the passes on a Dask cluster: a scheduler address, or local[:N] for a local "
+                   "cluster of N workers (docs/scale.md).")
 @click.option("-o", "--output", required=True, type=click.Path(dir_okay=False), help="Bundle (.ncast).")
 @click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
 def train(data, target, features, domain, units, categorical, method, nodes, neighbors, slope_scale,
           interval, angle_range, weight_sum, ridge, activation, task, seed, validation_fraction,
-          output, overwrite):
-    """Train a network on DATA.csv and save it as a bundle."""
+          chunk_rows, cluster, output, overwrite):
+    """Train a network on DATA (CSV, or Parquet by its .parquet suffix) and save it as a bundle."""
     from nodecast.cli.progress import Progress, run_interruptible
     from nodecast.compiler.bundle import save
-    from nodecast.compiler.csvio import read_table
     from nodecast.compiler.files import check_outputs
     from nodecast.compiler.provenance import file_record, with_training_data
     from nodecast.trainer.cost import FitClock
+    from nodecast.trainer.sources import MemorySource, open_source
     from nodecast.trainer.training import TrainingJob, heavy_tail_note
     from nodecast.trainer.training import train as run_training
 
@@ -82,12 +90,17 @@ def train(data, target, features, domain, units, categorical, method, nodes, nei
                     angle_range=parse_range(angle_range, "--angle-range"),
                     weight_sum=parse_range(weight_sum, "--weight-sum"),
                     ridge=parse_ridge(ridge), activation=activation))
-    table, record = read_table(data), file_record(data)
-    check_units(job.units, table, job)
-    given = click.get_current_context().get_parameter_source("nodes").name == "COMMANDLINE"
-    with Progress("train") as progress:
-        clock = FitClock(progress, nodes, on_start=warn_more_nodes_than_rows if given else None)
-        bundle = run_interruptible(run_training, table, job, callback=clock, progress=progress)
+    source = None if cluster else open_source(data, chunk_rows)
+    record = file_record(data)
+    if not isinstance(source, MemorySource):
+        bundle = _train_scaled(data, source, job, chunk_rows, cluster)
+    else:
+        table = source.table
+        check_units(job.units, table, job)
+        given = click.get_current_context().get_parameter_source("nodes").name == "COMMANDLINE"
+        with Progress("train") as progress:
+            clock = FitClock(progress, nodes, on_start=warn_more_nodes_than_rows if given else None)
+            bundle = run_interruptible(run_training, table, job, callback=clock, progress=progress)
     bundle = with_training_data(bundle, record)
     save(bundle, output, overwrite=overwrite)
     click.echo(f"wrote {output} (bundle {bundle.bundle_id[:12]}); {choice_line(bundle)}"
@@ -96,3 +109,20 @@ def train(data, target, features, domain, units, categorical, method, nodes, nei
     if note:
         click.echo(note, err=True)
     warn_rows_outside(bundle)
+
+
+def _train_scaled(data, source, job, chunk_rows, cluster):
+    """The bundle of ``train`` streamed from disk (``source``) or on a Dask cluster (docs/scale.md)."""
+    import sys
+
+    from nodecast.trainer.progress import Progress
+
+    progress = Progress(sys.stderr if sys.stderr.isatty() else None)
+    if cluster:
+        from nodecast.trainer.cluster_training import train_on_cluster
+
+        return train_on_cluster(data, job, cluster, chunk_rows, progress)
+    from nodecast.trainer.streaming import train_streaming
+
+    check_units(job.units, source, job)
+    return train_streaming(source, job, progress)

@@ -197,8 +197,11 @@ def test_inspect_shows_what_was_chosen_and_the_training_datas_sha256(capsys, tmp
     status, text, _ = run_cli(capsys, "inspect", tmp_path / "m.ncast")
     assert status == 0
     sha = hashlib.sha256(data.read_bytes()).hexdigest()  # hashlib: FIPS 180-4 SHA-256
-    assert ("made with: method data-driven, neighbours 10, slope scale 0.5, ridge 0.001 (given), "
-            "seed 7") in text
+    from nodecast.compiler import load
+
+    chosen = load(tmp_path / "m.ncast").metadata["diagnostics"]["neighbors"]  # k searched (auto)
+    assert (f"made with: method data-driven, neighbours {chosen}, slope scale 0.5, ridge 0.001 "
+            "(given), seed 7") in text
     assert f"training data: 80 rows, SHA-256 {sha}" in text
     assert "  a [m]: domain" in text and "  b: domain" in text  # no empty unit as []
     assert "[]" not in text and "[0." not in text  # no raw lists

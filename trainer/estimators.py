@@ -16,10 +16,11 @@ from sklearn.utils.validation import check_is_fitted, validate_data
 
 from nodecast.compiler.activations import get_activation
 from nodecast.trainer import layer_choice, ridge_choice, solvers
+from nodecast.trainer.check_fold import fold_blocks
 from nodecast.trainer.generators import GENERATORS
 from nodecast.trainer.generators.slope_angle import DEFAULT_ANGLES
 from nodecast.trainer.generators.weight_sum import DEFAULT_SUMS
-from nodecast.trainer.hidden import PreactivationRange, block_bounds, design_blocks
+from nodecast.trainer.hidden import DesignMaker, PreactivationRange, block_bounds, design_blocks
 from nodecast.trainer.memory import check_fits_in_memory
 from nodecast.trainer.method_grid import valid_angles, valid_sums
 
@@ -30,6 +31,16 @@ def _normaliser(low: np.ndarray, high: np.ndarray) -> tuple[np.ndarray, np.ndarr
     """Offset and scale that map [low, high] onto [0, 1]; a zero-width range keeps scale 1."""
     span = high - low
     return low.copy(), np.where(span > 0, span, 1.0)
+
+
+def _is_dask(value) -> bool:
+    return type(value).__module__.startswith("dask.")
+
+
+def _fit_dask(estimator, X, y, classify: bool):
+    from nodecast.trainer.dask_fit import fit_dask
+
+    return fit_dask(estimator, X, y, classify)
 
 
 def _is_count(value, minimum: int = 1) -> bool:
@@ -43,7 +54,8 @@ def _is_positive(value) -> bool:
 class _RandomNodeBase(BaseEstimator):
     def __init__(self, n_nodes=200, method="data-driven", n_neighbors="auto", slope_scale="auto",
                  ridge=DEFAULT_RIDGE, activation="logistic", interval=1.0, domain=None,
-                 random_state=None, angle_range=DEFAULT_ANGLES, weight_sum=DEFAULT_SUMS):
+                 random_state=None, angle_range=DEFAULT_ANGLES, weight_sum=DEFAULT_SUMS,
+                 check_fraction=ridge_choice.CHECK_FRACTION):
         self.n_nodes = n_nodes
         self.method = method
         self.n_neighbors = n_neighbors
@@ -55,6 +67,7 @@ class _RandomNodeBase(BaseEstimator):
         self.random_state = random_state
         self.angle_range = angle_range
         self.weight_sum = weight_sum
+        self.check_fraction = check_fraction
 
     def _check_params(self) -> None:
         if self.method not in GENERATORS:
@@ -71,6 +84,10 @@ class _RandomNodeBase(BaseEstimator):
         if not (self.slope_scale == "auto" or _is_positive(self.slope_scale)):
             raise ValueError(f"slope_scale must be 'auto' or a finite positive number, got "
                              f"{self.slope_scale!r}")
+        if not (isinstance(self.check_fraction, (int, float, np.number))
+                and 0 <= self.check_fraction < 1):
+            raise ValueError(f"check_fraction must be a number from 0 to below 1, got "
+                             f"{self.check_fraction!r}")
         if not _is_positive(self.interval):
             raise ValueError(f"interval must be a finite positive number, got {self.interval!r}")
         if not valid_angles(self.angle_range):
@@ -106,6 +123,11 @@ class _RandomNodeBase(BaseEstimator):
         layer, factor, ranges, check = self._draw_and_factor(U, T, rng, activation)
         self.hidden_weights_, self.hidden_biases_ = layer.weights, layer.biases
         self.diagnostics_ = {**layer.diagnostics, **self._data_diagnostics(X)}
+        self._solve_output(factor, ranges, check)
+
+    def _solve_output(self, factor, ranges: PreactivationRange, check=None) -> None:
+        """The ridge and the output layer from the factor of [1, H] (however it was accumulated)
+        and the held-out check's data (None: no check)."""
         self.training_z_low_, self.training_z_high_ = ranges.low, ranges.high
         if self.ridge == "auto":
             self.ridge_, self.ridge_choice_ = ridge_choice.choose(
@@ -113,6 +135,8 @@ class _RandomNodeBase(BaseEstimator):
         else:
             self.ridge_, self.ridge_choice_ = float(self.ridge), {"rule": "given"}
         self.coef_, self.intercept_ = solvers.solve(factor, self.ridge_)
+        self.heldout_figures_ = None if check is None else ridge_choice.heldout_figures(
+            check, self.ridge_, self.output_scale_, hasattr(self, "classes_"))
 
     def _draw_and_factor(self, U, T, rng, activation):
         """The hidden layer, the output layer's factor and the pre-activation ranges; data-driven
@@ -127,7 +151,7 @@ class _RandomNodeBase(BaseEstimator):
                 angle_range=tuple(self.angle_range), weight_sum=tuple(self.weight_sum))
             # the rows are folded in the same order whatever the ridge, so that giving the ridge
             # "auto" chose reproduces the model bit for bit
-            checked = ridge_choice.check_rows(U, rng)
+            checked = ridge_choice.check_rows(U, rng, float(self.check_fraction))
             with solvers.single_blas_thread():  # threaded products round differently: one
                 # thread, the same bundle whatever the machine (docs/reliability.md)
                 return (layer,) + self._accumulate(layer, U, T, activation, checked)
@@ -172,29 +196,13 @@ class _RandomNodeBase(BaseEstimator):
 
     def _accumulate(self, layer, U: np.ndarray, T: np.ndarray, activation, checked=None):
         """The output layer's factor over row blocks, each node's pre-activation range, and (for
-        ``checked`` row indices) the held-out check of the default ridge: the factor of the other
-        rows comes first, the check rows are folded in after it."""
-        bounds = block_bounds(U.shape[0], layer.weights.shape[0])
+        the ``checked`` rows, a :class:`~nodecast.trainer.ridge_choice.CheckRows`) the held-out
+        check of the default ridge."""
         ranges = PreactivationRange(layer.weights.shape[0])
-        blocks = design_blocks(U, layer.weights, layer.biases, activation, bounds,
-                               ranges)
-        if checked is None:
-            factor = solvers.accumulate_designs(
-                (D, T[start:stop]) for (start, stop), D in zip(bounds, blocks, strict=True))
-            return factor, ranges, None
-        is_check = np.zeros(U.shape[0], dtype=bool)
-        is_check[checked] = True
-        held = []
-
-        def outside_check():
-            for (start, stop), D in zip(bounds, blocks, strict=True):
-                rows = is_check[start:stop]
-                held.append(D[rows])
-                yield D[~rows], T[start:stop][~rows]
-
-        rest = solvers.accumulate_designs(outside_check())
-        check = ridge_choice.HeldOut(rest, np.concatenate(held), T[checked])
-        factor = solvers.accumulate_designs([(check.design, check.targets)], start=rest)
+        make = DesignMaker(layer.weights, layer.biases, activation, ranges)
+        blocks = ((U[start:stop], T[start:stop])
+                  for start, stop in block_bounds(U.shape[0], layer.weights.shape[0]))
+        factor, check = fold_blocks(blocks, make, checked)
         return factor, ranges, check
 
     def _target_scaling(self, Y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -244,6 +252,10 @@ default "data-driven"
         The declared input box, one value per feature each (None: the training data's range).
         Rows outside it are counted in ``diagnostics_``, not dropped.
     random_state : int, RandomState instance or None, default None
+    check_fraction : float, default 0.2
+        Share of the rows held out (at most about 20,000, each chosen by a hash of its inputs) for
+        the automatic ridge's check; the figures of the check are ``heldout_figures_``, the
+        validation figures of ``nodecast train``. 0: no check (the ridge by GCV alone).
 
     Attributes
     ----------
@@ -259,6 +271,10 @@ default "data-driven"
         chosen (the k used is ``diagnostics_["neighbors"]``).
     diagnostics_ : dict of counts (degenerate neighbourhoods, constant features, rows outside the
         domain), see docs/training.md.
+    heldout_figures_ : dict or None, the model with ``ridge_`` fitted to the rows outside the check
+        set and scored on the check rows (RMSE and largest error per output, or accuracy; rows);
+        None without a check. Its hidden layer, k, s and ridge were chosen with all rows, the check
+        rows included (docs/training.md).
 """
 
 
@@ -266,7 +282,10 @@ class RandomNodeRegressor(RegressorMixin, _RandomNodeBase):
     __doc__ = "Regression network with random hidden nodes (data-driven by default).\n" + _PARAMETERS
 
     def fit(self, X, y):
-        """Fit to X of shape (n_samples, n_features) and y of shape (n_samples,) or (n_samples, t)."""
+        """Fit to X of shape (n_samples, n_features) and y of shape (n_samples,) or (n_samples, t);
+        dask arrays or dataframes are fitted partition by partition (docs/scale.md)."""
+        if _is_dask(X):
+            return _fit_dask(self, X, y, classify=False)
         X, y = validate_data(self, X, y, multi_output=True, y_numeric=True, dtype=np.float64)
         self._y_was_1d_ = y.ndim == 1
         self._fit_targets(X, y.reshape(X.shape[0], -1).astype(np.float64))
@@ -299,7 +318,10 @@ class RandomNodeClassifier(ClassifierMixin, _RandomNodeBase):
 """
 
     def fit(self, X, y):
-        """Fit to X of shape (n_samples, n_features) and labels y of shape (n_samples,)."""
+        """Fit to X of shape (n_samples, n_features) and labels y of shape (n_samples,); dask
+        arrays or dataframes are fitted partition by partition (docs/scale.md)."""
+        if _is_dask(X):
+            return _fit_dask(self, X, y, classify=True)
         X, y = validate_data(self, X, y, dtype=np.float64)
         check_classification_targets(y)
         self.classes_, codes = np.unique(y, return_inverse=True)

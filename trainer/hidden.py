@@ -65,21 +65,37 @@ def design_blocks(U: np.ndarray, weights: np.ndarray, biases: np.ndarray, activa
     biases : ndarray of shape (M,); activation : an :class:`Activation`.
     Yields ndarrays of shape (stop - start, M + 1): a column of ones, then the activations. They
     share one buffer (a block is valid until the next one is requested, and its user may overwrite
-    it). The ones column rides along through the product and the kernel, and is set afterwards, so
-    that every pass runs over one contiguous array.
+    it).
     """
-    scale, (m, n) = activation.kernel_scale, weights.shape
-    folded_weights = np.zeros((m + 1, n), order="F")
-    folded_weights[1:] = weights * scale
-    folded_biases = np.concatenate([[0.0], biases * scale])
-    buffer = np.empty((max(stop - start for start, stop in bounds), m + 1))
+    make = DesignMaker(weights, biases, activation, ranges)
     for start, stop in bounds:
-        design = buffer[: stop - start]
-        # design^T = folded_weights @ U_block^T, written in place (F order is design's C order)
-        blas.dgemm(1.0, folded_weights, U[start:stop].T, 0.0, design.T, overwrite_c=1)
-        design += folded_biases
-        if ranges is not None:
-            ranges.update(design[:, 1:], scale)
-        activation.kernel(design)
+        yield make(U[start:stop])
+
+
+class DesignMaker:
+    """Designs [1, g(U A^T + b)] of blocks of rows U (rows, n), written into one reused buffer
+    (a design is valid until the next call), the pre-activation ranges kept on the way. The ones
+    column rides along through the product and the kernel, and is set afterwards, so that every
+    pass runs over one contiguous array."""
+
+    def __init__(self, weights: np.ndarray, biases: np.ndarray, activation,
+                 ranges: PreactivationRange | None = None) -> None:
+        scale, (m, n) = activation.kernel_scale, weights.shape
+        self.folded_weights = np.zeros((m + 1, n), order="F")
+        self.folded_weights[1:] = weights * scale
+        self.folded_biases = np.concatenate([[0.0], biases * scale])
+        self.activation, self.ranges, self.scale = activation, ranges, scale
+        self.buffer = np.empty((0, m + 1))
+
+    def __call__(self, U: np.ndarray) -> np.ndarray:
+        if self.buffer.shape[0] < U.shape[0]:
+            self.buffer = np.empty((U.shape[0], self.buffer.shape[1]))
+        design = self.buffer[: U.shape[0]]
+        # design^T = folded_weights @ U^T, written in place (F order is design's C order)
+        blas.dgemm(1.0, self.folded_weights, U.T, 0.0, design.T, overwrite_c=1)
+        design += self.folded_biases
+        if self.ranges is not None:
+            self.ranges.update(design[:, 1:], self.scale)
+        self.activation.kernel(design)
         design[:, 0] = 1.0
-        yield design
+        return design

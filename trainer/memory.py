@@ -16,8 +16,8 @@ def fit_memory_bytes(n_rows: int, n_features: int, n_nodes: int, n_outputs: int)
     Counted: the normalised inputs and targets and the neighbour search's copy of the inputs
     (3 N n + N t), a hidden block and its design copy (2 r (M + 1), r rows per block), the stacked
     matrix of a Householder step (r + M + 1 rows of M + 1 + t), about eight (M + 1)^2 matrices of
-    the factor, its update, the held-out check's factor and the final solve, the sorted copy of
-    the inputs that finds duplicated rows (N n), and three arrays of the check rows' hidden outputs
+    the factor, its update, the held-out check's factor and the final solve, the copy of the
+    inputs hashed to find the check rows (N n), and three arrays of the check rows' hidden outputs
     (c (M + 1), c = min(N / 5, 20,000) rows; see :mod:`nodecast.trainer.ridge_choice`).
     """
     p = n_nodes + 1

@@ -9,15 +9,16 @@ Rule (``ridge="auto"``, the default of the estimators and of ``nodecast train``)
    one SVD of the M x M factor R22 = U S V^T: with g = U^T q2,
    RSS(lambda) = RSS_outside + sum_i (lambda / (s_i^2 + lambda))^2 g_i^2 and
    df(lambda) = 1 + sum_i s_i^2 / (s_i^2 + lambda) (the 1 is the unpenalised bias).
-2. The held-out check: the model of every lambda is also fitted to the rows outside a seeded
-   check set (a fifth of the rows, at most ``CHECK_ROWS``; the factor of those rows is a by-product
-   of the fit's own pass) and scored on the check rows. GCV assumes that leaving a row out is like
-   meeting a new one; duplicated rows, clustered rows and heavy-tailed inputs (a few rows of high
-   leverage) break that, and GCV then picks a ridge far too small (measured: training RMSE 0.57,
-   test RMSE 3.28). The GCV minimum stands if its held-out error is within noise of the best
+2. The held-out check: the model of every lambda is also fitted to the rows outside a seeded check
+   set (about a fifth of the rows, at most about ``CHECK_ROWS``, chosen by a hash of each row's
+   inputs so that equal rows stay together: :class:`CheckRows`; the factor of those rows is a by-
+   product of the fit's own pass) and scored on the check rows. GCV assumes that leaving a row out
+   is like meeting a new one; duplicated rows, clustered rows and heavy-tailed inputs (a few rows
+   of high leverage) break that, and GCV then picks a ridge far too small (measured: training RMSE
+   0.57, test RMSE 3.28). The GCV minimum stands if its held-out error is within noise of the best
    held-out error; otherwise the held-out minimum replaces it. "Within noise": the mean over check
-   rows of the paired difference of squared errors is at most one standard error of that mean
-   (the one-standard-error rule, common practice).
+   rows of the paired difference of squared errors is at most one standard error of that mean (the
+   one-standard-error rule, common practice).
 3. From there, up the grid, the largest lambda reached before one falls out of noise of the best
    held-out error (prefer the larger, safer ridge when the data cannot tell them apart).
 4. From there upwards, the first lambda whose certified float32 export error (the default C
@@ -47,20 +48,53 @@ CHECK_ROWS = 20_000  # at most this many check rows (their hidden outputs are ke
 MIN_CHECK_ROWS = 20  # fewer check rows than this: GCV alone
 
 
-def check_rows(U: np.ndarray, rng: np.random.RandomState) -> np.ndarray | None:
-    """Sorted indices of the held-out check rows, or None where there are too few rows.
+@dataclass(frozen=True)
+class CheckRows:
+    """Which rows the held-out check holds out: a row is a check row when a hash of its normalised
+    inputs (:func:`nodecast.trainer.row_hash.content_hash`) under ``key`` falls below ``fraction``.
+    Rows with equal inputs hash alike and go to the same side (a copy of a check row among the
+    fitted rows would make the check as blind to duplicates as GCV is), and the choice of a row
+    depends on the row alone: the same rows in memory, chunk by chunk and on a cluster."""
 
-    Rows with equal inputs go to the same side (a copy of a check row among the fitted rows would
-    make the check as blind to duplicates as GCV is): whole groups of equal rows are taken, in a
-    seeded order, until a fifth of the rows (at most ``CHECK_ROWS``) is held out."""
-    target = min(int(CHECK_FRACTION * U.shape[0]), CHECK_ROWS)
-    if target < MIN_CHECK_ROWS:
+    key: int
+    fraction: float
+
+    def mask(self, U: np.ndarray) -> np.ndarray:
+        """Boolean mask of shape (rows,): which rows of U (normalised inputs) are check rows."""
+        from nodecast.trainer.row_hash import below, content_hash
+
+        return below(content_hash(U, self.key), self.fraction)
+
+
+def enough_rows(n_rows: int, fraction: float = CHECK_FRACTION) -> bool:
+    """Whether ``n_rows`` rows are enough for a check set of ``fraction`` of them (at least
+    ``MIN_CHECK_ROWS`` intended check rows); decided before any draw."""
+    return min(int(fraction * n_rows), CHECK_ROWS) >= MIN_CHECK_ROWS
+
+
+def check_plan(n_rows: int, rng: np.random.RandomState, fraction: float = CHECK_FRACTION) -> CheckRows:
+    """The check's hash key (drawn from ``rng``) and fraction: ``fraction`` of the rows, at most
+    ``CHECK_ROWS`` (about: each distinct row is drawn on its own)."""
+    key = int(rng.randint(2**62, dtype=np.int64))
+    return CheckRows(key, min(fraction, CHECK_ROWS / n_rows))
+
+
+def check_usable(n_check: int, n_rows: int, fraction: float = CHECK_FRACTION) -> bool:
+    """Whether a check set of ``n_check`` of ``n_rows`` rows is used: at least ``MIN_CHECK_ROWS``,
+    leaving at least 2 rows to fit, and at most twice the intended count (a large group of equal
+    rows drawn into it would hold out much of the data: GCV alone then)."""
+    intended = min(fraction * n_rows, CHECK_ROWS)
+    return MIN_CHECK_ROWS <= n_check < n_rows - 1 and n_check <= 2 * intended
+
+
+def check_rows(U: np.ndarray, rng: np.random.RandomState,
+               fraction: float = CHECK_FRACTION) -> CheckRows | None:
+    """The check rows of normalised inputs U (rows, n) in memory, or None where too few rows (or
+    too many, see :func:`check_usable`) fall in it."""
+    if not enough_rows(U.shape[0], fraction):
         return None
-    _, group, sizes = np.unique(U, axis=0, return_inverse=True, return_counts=True)
-    order = rng.permutation(sizes.size)
-    taken = order[: int(np.searchsorted(np.cumsum(sizes[order]), target)) + 1]
-    rows = np.flatnonzero(np.isin(group.reshape(-1), taken))
-    return rows if MIN_CHECK_ROWS <= rows.size < U.shape[0] - 1 else None
+    plan = check_plan(U.shape[0], rng, fraction)
+    return plan if check_usable(int(plan.mask(U).sum()), U.shape[0], fraction) else None
 
 
 @dataclass(frozen=True, eq=False)
@@ -113,15 +147,17 @@ def heldout_squared_errors(check: HeldOut) -> np.ndarray:
         left, s, right_t = scipy.linalg.svd(factor.R[1:, 1:], lapack_driver="gesdd",
                                             check_finite=False)
     rotated = left.T @ factor.qty[1:]  # (M, t)
-    # prediction = (H - 1 r12 / R11) beta + q1 / R11, beta = V diag(s / (s^2 + lambda)) g
+    # prediction = (H - 1 r12 / R11) beta + q1 / R11, beta = V diag(s / (s^2 + lambda)) g: the
+    # betas of all the grid's lambdas side by side, then one product with the check rows (n_check
+    # M t G numbers instead of n_check M^2 for a rotation of the rows, where t G < M)
     centred = check.design[:, 1:] - factor.R[0, 1:] / factor.R[0, 0]
-    projected = centred @ right_t.T  # (n_check, M)
     offset = factor.qty[0] / factor.R[0, 0]
-    errors = np.empty((GRID.size, check.design.shape[0]))
-    for i, ridge in enumerate(GRID):
-        predicted = projected @ ((s / (s**2 + ridge))[:, None] * rotated) + offset
-        errors[i] = np.sum((predicted - check.targets) ** 2, axis=1)
-    return errors
+    t = rotated.shape[1]
+    betas = np.concatenate([right_t.T @ ((s / (s**2 + ridge))[:, None] * rotated) for ridge in GRID],
+                           axis=1)  # (M, G t)
+    predicted = (centred @ betas).reshape(-1, GRID.size, t) + offset
+    errors = np.sum((predicted - check.targets[:, None, :]) ** 2, axis=2)
+    return np.ascontiguousarray(errors.T)
 
 
 def _within_noise(errors: np.ndarray, best: int) -> np.ndarray:
@@ -166,3 +202,20 @@ def choose(factor, export_error, check: HeldOut | None = None) -> tuple[float, d
                    "gcv_rmse_normalised": float(per_output_rmse[index]),
                    "float32_bound_normalised": float(error)})
     return float(GRID[index]), record
+
+
+def heldout_figures(check: HeldOut, ridge: float, output_scale: np.ndarray, classify: bool) -> dict:
+    """The figures of the model of ``ridge`` fitted to the rows outside the check set, on the check
+    rows: for regression the RMSE and largest error per output in target units, for
+    classification the accuracy (the highest score's class, ties to the first); and the rows."""
+    from nodecast.trainer import solvers
+
+    beta, bias = solvers.solve(check.factor, ridge)
+    predicted = check.design[:, 1:] @ beta + bias
+    rows = int(predicted.shape[0])
+    if classify:
+        right = np.argmax(predicted, axis=1) == np.argmax(check.targets, axis=1)
+        return {"accuracy": float(np.mean(right)), "rows": rows}
+    error = (predicted - check.targets) * output_scale
+    return {"rmse": [float(v) for v in np.sqrt(np.mean(error**2, axis=0))],
+            "max_abs_error": [float(v) for v in np.max(np.abs(error), axis=0)], "rows": rows}

@@ -9,19 +9,26 @@ import numpy as np
 
 from nodecast.compiler.bundle import Bundle
 from nodecast.compiler.errors import NodecastError
-from nodecast.trainer.categorical import design, split_features
+from nodecast.trainer.categorical import Design, design, split_features
 from nodecast.trainer.estimators import RandomNodeClassifier, RandomNodeRegressor
 from nodecast.trainer.export import stage_to_bundle
+from nodecast.trainer.generators.data_driven import global_stride
+from nodecast.trainer.hidden import block_bounds
 from nodecast.trainer.input_stage import InputStage
+from nodecast.trainer.metrics import MetricSums
+from nodecast.trainer.row_hash import held_out
 
 HEAVY_TAIL_SHARE = 0.5  # a column is heavy-tailed when its middle 99% spans less of its range
 
 
-def heavy_tailed(X: np.ndarray, names) -> list[str]:
+def heavy_tailed(X: np.ndarray, names, strided: bool = False) -> list[str]:
     """Features whose middle 99% of values (0.5% to 99.5% quantiles) spans less than
     ``HEAVY_TAIL_SHARE`` of their range: a few extreme rows set the range, so the other rows crowd
     into a small part of the normalised box. Columns of one or two distinct values are not
-    counted (a rare yes in a yes/no column is not a tail)."""
+    counted (a rare yes in a yes/no column is not a tail). Measured on the rows of the global
+    trend (at most 20,000, evenly strided: :func:`global_stride`), which a streamed or cluster
+    fit gathers too (``strided``: X holds those rows already)."""
+    X = X if strided else X[:: global_stride(X.shape[0])]
     low, high = np.quantile(X, [0.005, 0.995], axis=0)
     span = np.ptp(X, axis=0)
     crowded = (high - low) < HEAVY_TAIL_SHARE * span
@@ -125,7 +132,8 @@ def _check_classes(y: np.ndarray, name: str) -> None:
 def make_estimator(job: TrainingJob, low, high):
     cls = RandomNodeClassifier if job.task == "classification" else RandomNodeRegressor
     try:
-        return cls(random_state=job.seed, domain=(low, high), **job.params)
+        return cls(random_state=job.seed, domain=(low, high),
+                   check_fraction=job.validation_fraction, **job.params)
     except TypeError as exc:
         raise NodecastError(f"bad training option: {exc}") from None
 
@@ -162,13 +170,26 @@ def train(table, job: TrainingJob, on_stage=None) -> Bundle:
     except ValueError as exc:
         raise NodecastError(f"cannot train: {' '.join(str(exc).split())}") from None
     metrics = {"training": _metrics(estimator, inputs.X, y, job.task)}
-    metrics.update(_validation(job, low, high, inputs.X, y, on_stage))
+    if estimator.heldout_figures_ is not None:
+        metrics["validation"] = estimator.heldout_figures_
+    else:  # too few rows for the check set: a second, small fit
+        metrics.update(_validation(job, low, high, inputs.X, y, on_stage))
+    heavy = heavy_tailed(X[:, : len(numeric)], numeric)
+    return model_bundle(job, estimator, features, metrics, int(X.shape[0]), outside, heavy, inputs)
+
+
+def model_bundle(job: TrainingJob, estimator, features, metrics: dict, rows: int, outside: int,
+                 heavy: list[str], inputs=None) -> Bundle:
+    """The bundle of ``train`` (in memory, streamed or on a cluster): the fitted estimator, its
+    input design (``inputs``, a :class:`~nodecast.trainer.categorical.Design`; None: the numeric
+    ``features`` as they are) and the run's figures."""
+    inputs = inputs or Design(tuple(features), {}, np.empty((0, len(features))))
+    numeric = inputs.features
     units = dict(job.units)
     target_names = job.targets if job.task == "regression" else tuple(map(str, estimator.classes_))
-    metadata = {"seed": job.seed, "metrics": metrics, "rows": int(X.shape[0]),
+    metadata = {"seed": job.seed, "metrics": metrics, "rows": rows,
                 "rows_outside_domain": outside, "targets": list(job.targets),
-                "heavy_tailed_features": heavy_tailed(X[:, : len(numeric)], numeric),
-                "validation_fraction": job.validation_fraction}
+                "heavy_tailed_features": heavy, "validation_fraction": job.validation_fraction}
     if job.categorical:
         metadata["level_spacing"] = inputs.spacing
     stage = InputStage(estimator, inputs.columns(), inputs.levels, ())
@@ -189,13 +210,16 @@ def _check_memory(job: TrainingJob, X: np.ndarray, y: np.ndarray) -> None:
 
 
 def _validation(job: TrainingJob, low, high, X, y, on_stage=None) -> dict:
-    n_valid = int(round(job.validation_fraction * X.shape[0]))
+    """Metrics of a same-settings fit on the rows not held out (:mod:`nodecast.trainer.row_hash`),
+    measured on the held-out rows: for data too small for the ridge's check set, whose figures
+    are the validation figures otherwise."""
+    valid = held_out(0, X.shape[0], job.validation_fraction, job.seed)
+    n_valid = int(valid.sum())
     if n_valid < 1 or X.shape[0] - n_valid < 2:
         return {}
     if on_stage is not None:
         on_stage("validation fit", X.shape[0] - n_valid)
-    order = np.random.RandomState(job.seed).permutation(X.shape[0])
-    valid, fit = order[:n_valid], order[n_valid:]
+    fit = ~valid
     estimator = make_estimator(job, low, high)
     try:
         with warnings.catch_warnings():  # the split may hold a class once; all rows passed _check_classes
@@ -207,9 +231,8 @@ def _validation(job: TrainingJob, low, high, X, y, on_stage=None) -> dict:
 
 
 def _metrics(estimator, X, y, task: str) -> dict:
-    if task == "classification":
-        return {"accuracy": float(np.mean(estimator.predict(X) == y)), "rows": int(X.shape[0])}
-    error = estimator.predict(X).reshape(y.shape) - y
-    return {"rmse": [float(v) for v in np.sqrt(np.mean(error**2, axis=0))],
-            "max_abs_error": [float(v) for v in np.max(np.abs(error), axis=0)],
-            "rows": int(X.shape[0])}
+    """Errors summed over the row blocks of a prediction pass (the blocks streaming uses too)."""
+    sums = MetricSums(task)
+    for start, stop in block_bounds(X.shape[0], estimator.hidden_weights_.shape[0], growing=False):
+        sums.update(estimator.predict(X[start:stop]), y[start:stop])
+    return sums.result()

@@ -100,7 +100,11 @@ def test_automatic_ridge_is_on_the_grid_and_reproduced_by_giving_it():
     auto = RandomNodeRegressor(n_nodes=80, random_state=0).fit(X, y)
     assert auto.ridge_ in ridge_choice.GRID and auto.ridge_choice_["rule"] == "gcv+heldout+float32"
     assert auto.ridge_ >= min(auto.ridge_choice_["gcv_minimum"], auto.ridge_choice_["heldout_minimum"])
-    given = RandomNodeRegressor(n_nodes=80, ridge=auto.ridge_, random_state=0).fit(X, y)
+    # with k and s chosen too (the search of k and s at a given ridge scores by that ridge, so it
+    # may choose other k and s: layer_choice's rule), giving all three reproduces the model
+    given = RandomNodeRegressor(n_nodes=80, ridge=auto.ridge_, random_state=0,
+                                n_neighbors=auto.diagnostics_["neighbors"],
+                                slope_scale=auto.slope_scale_).fit(X, y)
     assert np.array_equal(given.coef_, auto.coef_) and given.ridge_choice_ == {"rule": "given"}
     assert to_bundle(auto).metadata["ridge"]["value"] == auto.ridge_
 

@@ -165,3 +165,35 @@ def test_peak_memory_does_not_grow_with_the_rows():
 
     small, large = peak(3), peak(12)
     assert large < 1.1 * small
+
+
+def test_update_limit_test_decides_by_the_two_norm_where_gershgorin_cannot():
+    # ||W||_2 is the largest singular value (numpy.linalg.norm(ord=2), LAPACK's SVD): a W with
+    # ||W||^2 just below the limit but a Gershgorin bound far above it is accepted, just above it
+    # refused
+    rng = np.random.default_rng(4)
+    W = rng.standard_normal((300, 200))
+    W /= np.linalg.norm(W, 2)
+    for share, expected in ((0.97, True), (1.03, False)):
+        scaled = W * np.sqrt(share * solvers.UPDATE_LIMIT)
+        gram = scaled.T @ scaled
+        assert np.max(np.sum(np.abs(gram), axis=1)) > 3 * solvers.UPDATE_LIMIT  # Gershgorin
+        assert solvers._below_limit(gram.copy()) is expected
+    assert not solvers._below_limit(np.full((3, 3), np.nan))
+
+
+def test_blocks_accepted_by_the_two_norm_test_give_the_householder_factor(monkeypatch):
+    # logistic nodes of 5 inputs (strongly correlated columns, as in a fit): the second and third
+    # blocks' Gershgorin bounds exceed the limit while ||W||^2 does not; the accumulated factor
+    # equals one Householder QR of all rows (scipy.linalg.qr), up to the signs of its rows
+    rng = np.random.default_rng(5)
+    X, A = rng.random((4000, 5)), 3 * rng.standard_normal((5, 300))
+    H = 1 / (1 + np.exp(-(X @ A + rng.standard_normal(300))))
+    Y = rng.random((4000, 1))
+    decided = []
+    test = solvers._below_limit
+    monkeypatch.setattr(solvers, "_below_limit", lambda gram: decided.append(test(gram)) or decided[-1])
+    factor = solvers.accumulate(_blocks(H, Y, [1000, 1000, 1000]))
+    assert decided == [True, True]
+    R = scipy.linalg.qr(np.column_stack([np.ones(4000), H]), mode="r")[0][:301]
+    assert _relative(np.abs(factor.R), np.abs(R)) < 1e-12  # measured 4e-15

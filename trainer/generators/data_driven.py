@@ -54,10 +54,13 @@ their own, each drawn node by node, and no node depends on another.
 
 from __future__ import annotations
 
-import numpy as np
-from scipy.spatial import cKDTree
+from dataclasses import dataclass
 
+import numpy as np
+
+from nodecast.trainer.anchors import draw_anchors
 from nodecast.trainer.generators.base import HiddenLayer
+from nodecast.trainer.neighbours import NearestRows
 from nodecast.trainer.solvers import single_blas_thread
 
 _FLAT = 1e-3  # slope norms below this (a rise under 0.1% of the target range across the box) are flat
@@ -76,16 +79,17 @@ def default_neighbors(n_features: int) -> int:
     return min(max(10, 2 * (n_features + 1)), WIDE_NEIGHBORS)
 
 
-def draw_anchors(n_rows: int, n_nodes: int, rng: np.random.RandomState) -> np.ndarray:
-    """Row indices: without replacement while n_nodes <= n_rows, then further shuffled rounds."""
-    rounds = [rng.permutation(n_rows) for _ in range(-(-n_nodes // n_rows))]
-    return np.concatenate(rounds)[:n_nodes]
+def global_stride(n_rows: int) -> int:
+    """Every how many rows the global trend takes one (rows 0, stride, 2 stride, ...)."""
+    return -(-n_rows // GLOBAL_ROWS)
 
 
-def global_slopes(U: np.ndarray, T: np.ndarray) -> np.ndarray:
+def global_slopes(U: np.ndarray, T: np.ndarray, strided: bool = False) -> np.ndarray:
     """The linear trend of each target column over all rows (at most ``GLOBAL_ROWS``, evenly
-    strided): ridge slopes with mu = ``LOCAL_RIDGE`` s_1^2, as the local fits; shape (t, q)."""
-    stride = -(-U.shape[0] // GLOBAL_ROWS)
+    strided): ridge slopes with mu = ``LOCAL_RIDGE`` s_1^2, as the local fits; shape (t, q).
+    ``strided``: U and T are already the rows 0, s, 2s, ... of :func:`global_stride` (gathered
+    chunk by chunk or from partitions)."""
+    stride = 1 if strided else global_stride(U.shape[0])
     inputs, targets = U[::stride] - U[::stride].mean(axis=0), T[::stride] - T[::stride].mean(axis=0)
     with single_blas_thread():
         left, sv, right_t = np.linalg.svd(inputs, full_matrices=False)
@@ -94,25 +98,25 @@ def global_slopes(U: np.ndarray, T: np.ndarray) -> np.ndarray:
     return (right_t.T @ (gain[:, None] * (left.T @ targets))).T
 
 
-def local_slopes(U, local_targets, neighbours, prior=None) -> tuple[np.ndarray, dict]:
+def local_slopes(rows, local_targets, prior=None) -> tuple[np.ndarray, dict]:
     """Ridge slopes c of t(x) = c0 + c.x over each node's neighbours, shrunk towards ``prior``
     (the module docstring), capped.
 
-    U : ndarray of shape (N, q), normalised inputs (the varying features only).
+    rows : ndarray of shape (n_nodes, k, q), each node's neighbours, nearest first (normalised
+    inputs, the varying features only).
     local_targets : ndarray of shape (n_nodes, k), each node's target column at its neighbours.
-    neighbours : ndarray of shape (n_nodes, k), row indices.
     prior : ndarray of shape (n_nodes, q), each node's global slope (None: zero).
     Returns the slopes, ndarray of shape (n_nodes, q), and the counts ``rank_deficient_fits``,
     ``damped_fits`` and ``capped_slopes``.
     """
-    (n_nodes, k), q = neighbours.shape, U.shape[1]
+    n_nodes, k, q = rows.shape
     prior = np.zeros((n_nodes, q)) if prior is None else prior
     slopes = np.empty((n_nodes, q))
     deficient = damped = 0
     chunk = max(1, _CHUNK_ENTRIES // (k * q))
     for start in range(0, n_nodes, chunk):
         stop = min(start + chunk, n_nodes)
-        local = U[neighbours[start:stop]]
+        local = rows[start:stop].copy()
         local -= local.mean(axis=1, keepdims=True)
         targets = local_targets[start:stop] - local_targets[start:stop].mean(axis=1, keepdims=True)
         targets -= np.einsum("nkc,nc->nk", local, prior[start:stop])  # what the prior leaves
@@ -146,36 +150,65 @@ def _replace_flat(slopes: np.ndarray, rng: np.random.RandomState) -> np.ndarray:
     return flat
 
 
+@dataclass(frozen=True, eq=False)
+class NodePlan:
+    """What a data-driven draw decides before it looks at the rows: each node's anchor (a global
+    row index, :mod:`nodecast.trainer.anchors`) and target column, and the seed of the stream of
+    flat-node directions."""
+
+    anchors: np.ndarray
+    columns: np.ndarray
+    direction_seed: int
+
+
+def plan_nodes(n_rows: int, n_targets: int, n_nodes: int, rng) -> NodePlan:
+    """The draws of :func:`generate` from the numbers of rows and targets (the rows are not needed:
+    what makes streamed and cluster fits draw the in-memory layer)."""
+    anchor_seed, column_seed, direction_seed = rng.randint(2**31 - 1, size=3)
+    anchors = draw_anchors(n_rows, n_nodes, np.random.RandomState(anchor_seed))
+    columns = np.random.RandomState(column_seed).randint(n_targets, size=n_nodes)
+    return NodePlan(anchors, columns, int(direction_seed))
+
+
 def generate(U, T, n_nodes, rng, activation, *, n_neighbors=None, slope_scale=1.0,
              **_unused) -> HiddenLayer:
     """Data-driven layer for normalised inputs U of shape (N, n) and targets T of shape (N, t)."""
-    N, n = U.shape
+    N = U.shape[0]
     varying = np.flatnonzero(np.ptp(U, axis=0) > 0)
+    k = min(n_neighbors or default_neighbors(varying.size), N)
+    plan = plan_nodes(N, T.shape[1], n_nodes, rng)
+    anchor_rows = U[plan.anchors]
+    nearest, prior = None, None
+    if varying.size:
+        V = np.ascontiguousarray(U[:, varying])
+        nearest = NearestRows(anchor_rows[:, varying], k, plan.columns)
+        nearest.update(V, T, 0)
+        prior = global_slopes(V, T)[plan.columns]
+    return layer_from_neighbourhoods(plan, anchor_rows, varying, k, nearest, prior, activation,
+                                     slope_scale)
+
+
+def layer_from_neighbourhoods(plan: NodePlan, anchor_rows, varying, k: int, nearest, prior,
+                              activation, slope_scale) -> HiddenLayer:
+    """The layer from the anchors' rows (n_nodes, n), their nearest rows (a :class:`NearestRows`
+    over the varying features holding k or more, wherever they were searched: in memory, chunk by
+    chunk or on a cluster; the first k are used) and each node's global slope ``prior``."""
+    n_nodes, n = anchor_rows.shape
     q = varying.size
-    k = min(n_neighbors or default_neighbors(q), N)
-    anchor_rng, column_rng, direction_rng = (np.random.RandomState(seed)
-                                             for seed in rng.randint(2**31 - 1, size=3))
-    anchors = draw_anchors(N, n_nodes, anchor_rng)
-    columns = column_rng.randint(T.shape[1], size=n_nodes)
     slopes = np.zeros((n_nodes, n))
     flat = np.ones(n_nodes, dtype=bool)
     counts = {"rank_deficient_fits": 0, "damped_fits": 0, "capped_slopes": 0}
     if q:
-        V = np.ascontiguousarray(U[:, varying])
-        tree = cKDTree(V, leafsize=16, compact_nodes=False, balanced_tree=False)
-        _, neighbours = tree.query(V[anchors], k=k, workers=-1)
-        neighbours = np.asarray(neighbours).reshape(n_nodes, k)
-        prior = global_slopes(V, T)[columns]
-        fitted, counts = local_slopes(V, T[neighbours, columns[:, None]], neighbours, prior)
-        flat = _replace_flat(fitted, direction_rng)
+        fitted, counts = local_slopes(nearest.rows[:, :k], nearest.targets[:, :k], prior)
+        flat = _replace_flat(fitted, np.random.RandomState(plan.direction_seed))
         slopes[:, varying] = fitted
     weights = slope_scale * slopes / activation.slope_at_inflection
-    biases = activation.inflection - np.einsum("ij,ij->i", weights, U[anchors])
+    biases = activation.inflection - np.einsum("ij,ij->i", weights, anchor_rows)
     diagnostics = {
         "neighbors": int(k),
         "flat_neighbourhoods": int(flat.sum()),
         **counts,
         "underdetermined_fits": int(n_nodes if k < q + 1 else 0),
-        "repeated_anchors": int(n_nodes - np.unique(anchors).size),
+        "repeated_anchors": int(n_nodes - np.unique(plan.anchors).size),
     }
     return HiddenLayer(weights, biases, diagnostics)

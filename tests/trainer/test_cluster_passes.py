@@ -1,0 +1,93 @@
+"""The cluster code path run by Dask's synchronous scheduler (no worker processes, so it is fast):
+partition passes give the single-process model, and bad cells read by the workers' reader give one
+line and exit status 2. The real LocalCluster runs are in test_cluster.py (slow)."""
+
+from __future__ import annotations
+
+from contextlib import contextmanager
+
+import numpy as np
+import pytest
+
+dask = pytest.importorskip("dask")
+pytest.importorskip("pandas")
+
+from nodecast.cli import main  # noqa: E402
+from nodecast.compiler.csvio import read_table  # noqa: E402
+from nodecast.trainer import cluster_training, distributed, frames  # noqa: E402
+from nodecast.trainer.training import TrainingJob, train  # noqa: E402
+
+
+@pytest.fixture
+def synchronous(monkeypatch):
+    @contextmanager
+    def connect(address):
+        with dask.config.set(scheduler="sync"):
+            yield None
+
+    monkeypatch.setattr(distributed, "connect", connect)
+    monkeypatch.setattr(frames, "BLOCK_BYTES", 8_000)  # about 5 partitions of a small file
+
+
+def _log(path, rows=900, bad=None, copies=1):
+    """An invented pump log: speed, head and a power reading (each row ``copies`` times)."""
+    rng = np.random.default_rng(5)
+    X = np.repeat(rng.uniform(0, 1, (rows // copies, 2)), copies, axis=0)
+    power = X[:, 0] ** 3 + 0.5 * X[:, 1]
+    lines = ["speed,head,power"] + [f"{a!r},{b!r},{p!r}" for (a, b), p in
+                                    zip(X.tolist(), power.tolist(), strict=True)]
+    if bad is not None:
+        lines[bad] = "0.5,n/a,0.25"
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return path
+
+
+@pytest.mark.parametrize("copies, params", [(1, {"n_nodes": 40}),
+                                            (3, {"n_nodes": 30, "n_neighbors": 9})])
+def test_partition_passes_give_the_single_process_model(tmp_path, synchronous, copies, params):
+    # with copies of every row the ridge's check rows (whole groups of copies) span partitions
+    path = _log(tmp_path / "pump.csv", copies=copies)
+    job = TrainingJob(targets=("power",), params=params, seed=7)
+    single = train(read_table(path), job)
+    clustered = cluster_training.train_on_cluster(path, job, "sync")
+    a, b = single.network, clustered.network
+    assert np.array_equal(a.hidden_weights, b.hidden_weights)
+    assert np.array_equal(a.hidden_biases, b.hidden_biases)
+    assert np.max(np.abs(a.output_weights - b.output_weights)) <= 1e-10 * np.max(np.abs(a.output_weights))
+    held = [bundle.metadata["metrics"]["validation"]["rows"] for bundle in (single, clustered)]
+    assert held[0] == held[1]
+    assert clustered.metadata["diagnostics"] == single.metadata["diagnostics"]
+    checked = [bundle.metadata["ridge"]["check_rows"] for bundle in (single, clustered)]
+    assert checked[0] == checked[1] and checked[0] % copies == 0
+    assert clustered.metadata["layer_choice"]["neighbors"] == single.metadata["layer_choice"]["neighbors"]
+
+
+def test_a_bad_cell_read_on_the_cluster_is_one_line(tmp_path, synchronous, capsys):
+    path = _log(tmp_path / "pump.csv", bad=700)
+    out = tmp_path / "pump.ncast"
+    with pytest.raises(SystemExit) as stop:
+        main(["train", str(path), "--target", "power", "--cluster", "sync", "-o", str(out)])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert stop.value.code == 2 and not out.exists()
+    assert len(err) == 1 and "n/a" in err[0] and "pump.csv" in err[0]
+
+
+def test_the_small_file_is_split_into_several_partitions(tmp_path, synchronous):
+    job = TrainingJob(targets=("power",))
+    _, rows = frames.file_partitions(_log(tmp_path / "pump.csv"), job)
+    assert len(rows.parts) >= 4 and sum(rows.counts()) == 900
+
+
+def test_small_data_take_the_second_fit_for_validation_on_partitions_too(tmp_path, synchronous,
+                                                                        monkeypatch):
+    # 90 rows: no check set, so the validation figures come from a fit on the rows not held out
+    monkeypatch.setattr(frames, "BLOCK_BYTES", 1_000)  # several partitions of a tiny file
+    path = _log(tmp_path / "pump.csv", rows=90)
+    job = TrainingJob(targets=("power",), params={"n_nodes": 12}, seed=3)
+    single = train(read_table(path), job)
+    clustered = cluster_training.train_on_cluster(path, job, "sync")
+    assert single.metadata["ridge"]["rule"] == clustered.metadata["ridge"]["rule"] == "gcv+float32"
+    a, b = (bundle.metadata["metrics"]["validation"] for bundle in (single, clustered))
+    assert a["rows"] == b["rows"] > 0
+    assert np.allclose(a["rmse"], b["rmse"], rtol=1e-9)
+    assert np.array_equal(single.network.hidden_weights, clustered.network.hidden_weights)

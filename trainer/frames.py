@@ -1,0 +1,64 @@
+"""Dask collections as row partitions for a cluster fit: a training file read by the workers, or
+the dask arrays and dataframes given to the estimators."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from nodecast.compiler.errors import NodecastError
+from nodecast.trainer.distributed import ClusterRows
+from nodecast.trainer.sources import PARQUET_SUFFIXES
+
+BLOCK_BYTES = 64 * 2**20  # bytes of CSV per partition when reading a file on the cluster
+
+
+def _frame_part(frame, features, targets, classify):
+    """(X, Y or labels) of a pandas partition."""
+    X = frame[list(features)].to_numpy(dtype=np.float64)
+    if classify:
+        labels = frame[targets[0]].astype(str).str.strip().to_numpy(dtype=object)
+        return X, labels
+    return X, frame[list(targets)].to_numpy(dtype=np.float64)
+
+
+def frame_rows(frame, features, targets, classify: bool) -> ClusterRows:
+    """Partitions of a dask dataframe, in order."""
+    from dask import delayed
+
+    return ClusterRows([delayed(_frame_part)(part, features, targets, classify)
+                        for part in frame.to_delayed()])
+
+
+def _exact_floats() -> dict:
+    """pandas' option for correctly rounded decimal parsing (the values Python's float() gives, as
+    the single-process reader): the default from pandas 3, "round_trip" before."""
+    import pandas
+
+    return {} if int(pandas.__version__.split(".")[0]) >= 3 else {"float_precision": "round_trip"}
+
+
+def file_partitions(path, job, chunk_rows=None) -> tuple[tuple[str, ...], ClusterRows]:
+    """The header of the training file and its partitions, read by the workers (the file must be
+    at the same path for every worker: a shared file system or object store)."""
+    import dask.dataframe as dd
+
+    from nodecast.trainer.sources import open_source
+    from nodecast.trainer.training import feature_columns
+
+    header = open_source(path, chunk_rows=1).header  # reads the header only
+    features = feature_columns(header, job)
+    classify = job.task == "classification"
+    columns = list(dict.fromkeys(list(features) + list(job.targets)))
+    missing = [name for name in columns if name not in header]
+    if missing:
+        raise NodecastError(f"{path}: missing column(s) {', '.join(map(repr, missing))}")
+    if str(path).lower().endswith(PARQUET_SUFFIXES):
+        frame = dd.read_parquet(path, columns=columns, split_row_groups=True)  # a partition per group
+    else:
+        types = {name: np.float64 for name in columns}
+        if classify:
+            types[job.targets[0]] = object
+        frame = dd.read_csv(path, usecols=columns, dtype=types, blocksize=BLOCK_BYTES,
+                            na_filter=False, skipinitialspace=True, encoding="utf-8-sig",
+                            **_exact_floats())
+    return header, frame_rows(frame, features, job.targets, classify)
