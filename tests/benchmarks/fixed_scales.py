@@ -49,7 +49,7 @@ def _models(demo: Path | None):
     yield "steep", _trained(*_steep())
     if demo is not None:
         table = np.genfromtxt(demo / "held_out.csv", delimiter=",", skip_header=1)
-        yield "demo", (load(demo / "fan.ncz"), table[:, :-1], table[:, -1])
+        yield "demo", (load(demo / "fan.ncast"), table[:, :-1], table[:, -1])
 
 
 def _rmse(a, b) -> float:
