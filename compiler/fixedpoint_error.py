@@ -21,8 +21,10 @@ from nodecast.compiler.typical_error.base import COVERAGE, ErrorEstimate
 
 _TANH_CURVATURE = 0.7698  # max |tanh''| = 4 / (3 sqrt 3)
 # The table's error summed over the nodes is heavier-tailed than a normal error: on four test models
-# its maximum over 65,536 probes reached 5.8 times its root mean square (4.8 over 4,096 probes).
-TABLE_COVERAGE = 6.0
+# its maximum over 65,536 probes reached 5.8 times its root mean square (4.8 over 4,096 probes); on
+# the q31 iris classifier of tests/compiler/test_c_accuracy.py 7.1 times over the estimate's own
+# 2,064 probes and 6.8 times (against that RMS) over 4,300 fresh ones.
+TABLE_COVERAGE = 8.0
 _BLOCK = 256
 
 

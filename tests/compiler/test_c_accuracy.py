@@ -55,14 +55,8 @@ def fixed_point_models(friedman_bundle, classifier_bundle, friedman_bundle_facto
 @pytest.mark.parametrize("model", ["friedman-logistic", "friedman-tanh", "iris-classifier"])
 @pytest.mark.slow
 def test_fixed_point_estimate_is_not_below_the_measured_error(fixed_point_models, tmp_path,
-                                                             precision, model, request):
+                                                             precision, model):
     need("gcc")
-    if (model, precision) == ("iris-classifier", "q31"):
-        # under the anchors drawn by row index (issue 16) this model's third output measures
-        # 1.72e-6 against an estimate of 1.67e-6 (3% below): a shortfall of the typical estimate
-        # for the fixed-point lane (issue 20), kept visible here until it is mended
-        request.applymarker(pytest.mark.xfail(strict=True, reason="typical q31 estimate 3% below "
-                                                                  "the measured error"))
     bundle = fixed_point_models[model]
     emit_c(bundle, tmp_path, precision=precision, out_of_domain="clamp")
     measured = _max_error(bundle, tmp_path, _probes(bundle.network), "clamp")
