@@ -107,11 +107,14 @@ def _run(argv) -> int | None:
 
 
 _NUMPY_REPR = re.compile(r"\bnp\.(?:float|int|uint|bool|complex)\w*\(([^()]*)\)")
+_QUOTED = re.compile(r"((?<!\w)'(?:[^'\\]|\\.)*'(?!\w)|(?<!\w)\"(?:[^\"\\]|\\.)*\"(?!\w))")
 
 
 def _plain_numbers(message: str) -> str:
-    """A message with NumPy scalar reprs (``np.float64(0.5)``, NumPy 2) shown as plain numbers."""
-    return _NUMPY_REPR.sub(r"\1", message)
+    """A message with NumPy scalar reprs (``np.float64(0.5)``, NumPy 2) shown as plain numbers,
+    outside quotes only: quoted text is the user's (a cell, a name) and is shown as it is."""
+    parts = _QUOTED.split(message)  # odd indices are the quoted parts
+    return "".join(part if i % 2 else _NUMPY_REPR.sub(r"\1", part) for i, part in enumerate(parts))
 
 
 def _show_warnings(caught, failed: bool) -> None:

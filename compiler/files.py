@@ -309,3 +309,12 @@ def _umask() -> int:
     umask = os.umask(0)
     os.umask(umask)
     return umask
+
+
+def write_artifact(path, artifact, overwrite: bool = False) -> None:
+    """A single-file artifact to ``path`` itself, a multi-file one into the folder ``path``."""
+    if artifact.single_file:
+        (data,) = artifact.files.values()
+        write_atomic(path, data, overwrite=overwrite)
+    else:
+        write_files(path, artifact.files, overwrite=overwrite)

@@ -32,6 +32,7 @@ KINDS = ["onnx", "python"] + (["c"] if shutil.which("gcc") else [])
 
 
 @pytest.mark.parametrize("kind", KINDS)
+@pytest.mark.slow
 def test_emit_refuses_an_artifact_over_the_limit_and_writes_nothing(kind, tmp_path):
     bundle = _bundle()
     size = sum(map(len, emit(bundle, kind).files.values()))

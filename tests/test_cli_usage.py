@@ -274,3 +274,10 @@ def test_demo_into_an_impossible_folder_is_a_one_line_error(tmp_path, capsys):
     (tmp_path / "file").write_text("x")
     result = run_cli(capsys, "demo", "-o", tmp_path / "file" / "sub")
     assert result.status == 2 and result.err.count("\n") == 1 and "Traceback" not in result.err
+
+
+def test_a_cell_that_looks_like_a_numpy_number_is_quoted_as_it_is(tmp_path, capsys):
+    """Error lines show NumPy scalars as plain numbers, but never rewrite the user's own text."""
+    (tmp_path / "d.csv").write_text("a,y\n1,2\nnp.float64(0.26),3\n", encoding="utf-8")
+    result = run_cli(capsys, "train", tmp_path / "d.csv", "--target", "y", "-o", tmp_path / "m.ncast")
+    assert result.status == 2 and "'np.float64(0.26)'" in result.err

@@ -190,6 +190,7 @@ def test_two_writers_of_one_name_at_once_one_is_refused(tmp_path, monkeypatch):
     assert [p.name for p in tmp_path.iterdir()] == ["fan.onnx"]
 
 
+@pytest.mark.slow
 def test_concurrent_multi_file_writes_never_mix(tmp_path, monkeypatch):
     """Two runs writing header and source into one folder at once, slowed between their renames:
     the folder always ends up with one run's pair."""

@@ -33,6 +33,7 @@ def run_plain(*args) -> int:
     return 0
 
 
+@pytest.mark.slow
 def test_inspect_plot_draws_both_pictures_and_keeps_existing_files(capsys, fan, tmp_path):
     out = tmp_path / "pictures"
     status, text, err = run_cli(capsys, "inspect", fan / "fan.ncast", "--plot", out,

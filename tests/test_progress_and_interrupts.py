@@ -25,6 +25,7 @@ def rows40(tmp_path):
                      [(float(a), float(b), float(a * b + b)) for a, b in X])
 
 
+@pytest.mark.slow
 def test_more_nodes_than_rows_warns_before_training(capsys, rows40, tmp_path):
     code, _, err = run_cli(capsys, "train", rows40, "--target", "y", "--nodes", "80",
                         "-o", tmp_path / "m.ncast")
@@ -37,6 +38,7 @@ def test_more_nodes_than_rows_warns_before_training(capsys, rows40, tmp_path):
     assert code == 0 and "warning" not in err
 
 
+@pytest.mark.slow
 def test_rows_outside_a_declared_domain_are_counted(capsys, rows40, tmp_path):
     a = np.loadtxt(rows40, delimiter=",", skiprows=1)[:, 0]
     expected = int(np.sum((a < 0.2) | (a > 0.7)))
@@ -61,6 +63,7 @@ def test_progress_line_counts_time_left_and_admits_an_overrun():
     assert progress.line() == "train: drawing probes, 0:00 elapsed"
 
 
+@pytest.mark.slow
 def test_progress_is_printed_for_a_step_expected_to_be_long():
     stream = io.StringIO()
     with Progress("select", stream=stream, interval=0.2) as progress:

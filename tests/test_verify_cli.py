@@ -110,6 +110,7 @@ def test_the_predictor_runs_with_an_empty_environment(work, capsys, monkeypatch)
 
 
 @pytest.mark.skipif(not HAS_GCC, reason="needs gcc")
+@pytest.mark.slow
 def test_c_verify_builds_only_the_generated_files_and_refuses_edited_sizes(work, capsys):
     folder = work / "fw"
     _emit(work, capsys, "c", "fw")

@@ -24,6 +24,7 @@ def wheel(tmp_path_factory) -> Path:
     return path
 
 
+@pytest.mark.slow
 def test_wheel_holds_namespaced_packages_and_templates_only(wheel):
     names = zipfile.ZipFile(wheel).namelist()
     top = {name.split("/")[0] for name in names if not name.startswith("nodecast-")}

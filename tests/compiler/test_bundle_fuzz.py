@@ -187,6 +187,7 @@ PAYLOADS_SHAPES = {name: getattr(ORIGINAL.network, name).shape
 
 @fuzz_settings(100)
 @given(batches(st.text(min_size=1, max_size=30)))
+@pytest.mark.slow
 def test_any_extra_entry_name_is_refused(names):
     for name in names:
         if name.split("\x00")[0] in bundle_io.EXPECTED_ENTRIES | {""}:

@@ -160,6 +160,7 @@ def test_forge_rebuilds_the_genuine_bytes_and_the_spec_id():
 
 # -- damage ---------------------------------------------------------------------------------------
 
+@pytest.mark.slow
 def test_every_changed_byte_inside_an_entry_is_refused():
     data = bundle_io.to_bytes(tiny_bundle(n=1, m=1))
     spans = entry_spans(data)
@@ -174,6 +175,7 @@ def test_every_changed_byte_inside_an_entry_is_refused():
     assert tried == sum(end - start for start, end in spans.values()) > 2000
 
 
+@pytest.mark.slow
 def test_a_changed_byte_in_the_zip_structure_is_refused_or_harmless():
     original = tiny_bundle(n=1, m=1)
     data = bundle_io.to_bytes(original)

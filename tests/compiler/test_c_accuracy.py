@@ -73,6 +73,7 @@ IMPLS = [("float32", "rational"), ("float64", "rational"), ("float32", "table"),
 
 @pytest.mark.parametrize("activation", ["tanh", "logistic"])
 @pytest.mark.parametrize("precision, impl", IMPLS)
+@pytest.mark.slow
 def test_libm_free_activation_is_within_its_stated_error(tmp_path, precision, impl, activation):
     need("gcc")
     from scipy.special import expit

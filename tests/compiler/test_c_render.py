@@ -55,6 +55,7 @@ def test_bad_options_are_one_line_errors(friedman_bundle, options, message):
 
 
 @pytest.mark.parametrize("precision", PRECISIONS)
+@pytest.mark.slow
 def test_same_bundle_and_options_give_the_same_bytes(friedman_bundle, precision):
     first = _c(friedman_bundle, precision=precision)
     assert first.files == _c(friedman_bundle, precision=precision).files

@@ -94,6 +94,7 @@ def test_error_codes_leave_y_untouched(friedman_bundle, tmp_path, precision, rea
 
 @pytest.mark.parametrize("precision, policy", [("q15", "reject"), ("q31", "clamp"),
                                                ("float32", "reject")])
+@pytest.mark.slow
 def test_verify_passes_honest_c_artifacts(friedman_bundle, tmp_path, precision, policy):
     need("gcc")
     emit_c(friedman_bundle, tmp_path, precision=precision, out_of_domain=policy)
@@ -112,6 +113,7 @@ def _emit_cli(bundle_path, folder, capsys, *extra) -> str:
     return capsys.readouterr().err
 
 
+@pytest.mark.slow
 def test_emit_prints_the_footprint(friedman_bundle, tmp_path, capsys):
     need("gcc", "arm-none-eabi-gcc")
     save(friedman_bundle, tmp_path / "m.ncast")

@@ -75,6 +75,7 @@ def diabetes(tmp_path_factory):
     return folder, load(folder / "diabetes.ncast")
 
 
+@pytest.mark.slow
 def test_levels_are_listed_in_a_fixed_order_and_survive_the_bundle(synthetic, diabetes):
     _, net = synthetic[0], synthetic[1].network
     assert net.categorical_names == ("programme",)

@@ -173,6 +173,7 @@ def test_adversarial_search_on_hard_models(request, friedman_bundle_factory, tmp
 
 
 @pytest.mark.skipif(not HAS_GCC, reason="no C compiler")
+@pytest.mark.slow
 def test_emit_and_verify_state_the_same_bound_for_a_64_entry_table(friedman_bundle, tmp_path,
                                                                    capsys):
     model = save(friedman_bundle, tmp_path / "m.ncast")
@@ -215,6 +216,7 @@ def test_verify_refuses_a_python_predictor_that_claims_another_precision(friedma
     assert status == 2 and len(err.strip().splitlines()) == 1
 
 
+@pytest.mark.slow
 def test_a_changed_weight_is_a_soundness_failure(friedman_bundle, tmp_path, capsys):
     model = save(friedman_bundle, tmp_path / "m.ncast")
     path = tmp_path / "p.py"

@@ -100,6 +100,7 @@ def test_parse_counts_refuses_broken_or_wrapped_output():
         ic.parse_counts(f"calibrate 3\n0 {0xFFFFFFFF}\nend\n", 1)
 
 
+@pytest.mark.slow
 def test_emit_and_inspect_print_instruction_counts(ten_input_bundles, tmp_path):
     need("gcc", *TOOLS)
     model = tmp_path / "m.ncast"

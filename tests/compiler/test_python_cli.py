@@ -171,6 +171,7 @@ def test_classifier_writes_labels_and_scores(classifier_bundle, files):
     assert np.max(np.abs(scores - reference.predict(net, X))) <= 1e-10  # scores span about 1
 
 
+@pytest.mark.slow
 def test_a_closed_pipe_ends_quietly(friedman_bundle, files):
     data = rows_as_csv(friedman_bundle.network.feature_names, rows(friedman_bundle.network, 20000))
     pipe = subprocess.PIPE

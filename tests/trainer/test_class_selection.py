@@ -51,6 +51,7 @@ def _compare(X, y, scoring, folds=3):
 
 
 @pytest.mark.parametrize("scoring", ["accuracy", "log-loss"])
+@pytest.mark.slow
 def test_breast_cancer_reuse_path_equals_refits(scoring):
     from sklearn.datasets import load_breast_cancer  # Wolberg et al. (1995)
 

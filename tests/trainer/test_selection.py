@@ -57,6 +57,7 @@ def _relative_differences(search, gridsearch) -> dict[float, float]:
     return worst
 
 
+@pytest.mark.slow
 def test_reuse_path_matches_refitting_every_split(search, gridsearch):
     worst = _relative_differences(search, gridsearch)
     assert len(search.points) == 24

@@ -83,6 +83,7 @@ def test_estimate_covers_an_ill_conditioned_model(friedman):
     assert measured <= result.estimate.max_abs
 
 
+@pytest.mark.slow
 def test_fixed_point_budget(friedman, estimates):
     X, y = friedman
     small = dict(nodes=[40], neighbors=[20], ridges=[1e-6, 1e-2])

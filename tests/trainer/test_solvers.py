@@ -34,6 +34,7 @@ def _relative(a, b):
 
 
 @pytest.mark.parametrize("sizes", [[900], [60, 120, 240], [45, 45, 90, 180, 360]])
+@pytest.mark.slow
 def test_minimum_norm_predictions_match_lstsq_on_an_ill_conditioned_rank_deficient_design(sizes):
     # References: numpy.linalg.lstsq and scipy.linalg.lstsq (gelsd) on the full design [1, H],
     # both with numpy's rank rule (singular values below eps * max(N, columns) times the largest
@@ -86,6 +87,7 @@ def test_every_prefix_of_the_nodes_is_solved_from_one_factor():
             assert _relative(H[:, :m] @ beta + bias, H[:, :m] @ alone + alone_bias) < 1e-9
 
 
+@pytest.mark.slow
 def test_both_block_updates_are_used_and_agree(monkeypatch):
     # Rows in random order make blocks like the ones before (the Cholesky update is taken); rows of
     # a region held back to the end are unlike anything seen, so the Householder fallback steps in.
@@ -110,6 +112,7 @@ def test_both_block_updates_are_used_and_agree(monkeypatch):
     assert _relative(H @ beta + bias, design @ reference) < 1e-8
 
 
+@pytest.mark.slow
 def test_factor_equals_the_householder_factor_of_the_whole_design():
     # R^T R = D^T D holds for any QR factor of D (numpy.linalg.qr as the reference).
     H, Y = _ill_conditioned(duplicates=0)

@@ -66,6 +66,7 @@ def test_file_8x_the_chunk_gives_the_in_memory_bundle(bench_csv, task, targets, 
     assert to_bytes(streamed) == to_bytes(in_memory)
 
 
+@pytest.mark.slow
 def test_any_chunk_size_and_parquet_give_the_same_bundle(tmp_path, bench_csv):
     pa, pq = pytest.importorskip("pyarrow"), pytest.importorskip("pyarrow.parquet")
     X, rise, grade = _table()
@@ -90,6 +91,7 @@ def test_cli_chunked_and_whole_reads_write_the_same_file(tmp_path, bench_csv):
     assert outputs[0] == outputs[1]
 
 
+@pytest.mark.slow
 def test_copies_of_rows_stay_on_one_side_of_the_ridge_check_in_any_chunking(tmp_path):
     # every row twice: the default ridge's held-out check holds out whole pairs (a hash of the
     # row's values), the same pairs whatever the chunks
@@ -105,6 +107,7 @@ def test_copies_of_rows_stay_on_one_side_of_the_ridge_check_in_any_chunking(tmp_
         assert to_bytes(train_streaming(CsvSource(path, size), job)) == to_bytes(reference), size
 
 
+@pytest.mark.slow
 def test_above_20000_rows_the_strided_trend_rows_are_gathered_from_the_chunks(tmp_path):
     # the global trend of the local fits and the heavy-tail note read every s-th row (s = 3
     # here); the streamed fit gathers those rows from chunks that do not align with s
