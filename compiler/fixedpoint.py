@@ -42,12 +42,11 @@ import numpy as np
 
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.tanh_table import offset_tanh
+from nodecast.compiler.targets import FIXED_PRECISIONS, TABLE_SIZE_RANGE, TARGETS
 
 WORD_BITS = {"q15": 16, "q31": 32}
-FIXED_PRECISIONS = tuple(WORD_BITS)
-SCALES = ("node", "layer")  # per-node (row) or per-layer fixed-point scales; the first is the default
-DEFAULT_TABLE_SIZE = {"q15": 512, "q31": 2048}
-TABLE_SIZE_RANGE = (16, 65536)
+SCALES = TARGETS["c"].option("scales").choices  # per node (row) or per layer; the first is the default
+DEFAULT_TABLE_SIZE = {p: TARGETS["c"].option("table_size").default_value(p) for p in FIXED_PRECISIONS}
 Z_FRAC = 26  # activation argument in Q5.26: |z| < 32 fits an int32 with a bit to spare
 _SATURATION = {"q15": 6.0, "q31": 8.0}  # table reach: 1 - tanh(6) = 1.2e-5, 1 - tanh(8) = 2.3e-7
 ACC_LIMIT = 2**62

@@ -58,6 +58,8 @@ class Option:
 
     def check(self, value, target: str, precision: str) -> None:
         note = f" ({self.note})" if self.note else ""
+        if self.kind == "choice" and not self.allowed(precision):
+            raise NodecastError(f"{target} takes no {self.flag} at {precision}{note}")
         if self.kind == "choice" and value not in self.allowed(precision):
             given = "" if self.allowed(precision) == self.choices else f" at {precision}"
             raise NodecastError(f"{target} takes {self.flag} "
@@ -168,6 +170,7 @@ TARGETS: dict[str, TargetSpec] = {
                default_for={"float64": 512, "float32": 512, "q31": 2048, "q15": 512},
                requires=("activation_impl", "table")),
         Option("scales", choices=("node", "layer"), default_for={p: "node" for p in FIXED_PRECISIONS},
+               narrow={p: () for p in FLOAT_PRECISIONS},
                note="fixed-point scales: one Q format per hidden node or per layer, q31/q15 only"),
         Option("footprint", kind="flag", default=False, api_only=True),
         Option("bare_metal", kind="flag", default=False),

@@ -19,7 +19,7 @@ from nodecast.compiler.backends import Artifact
 from nodecast.compiler.backends import c_header as text
 from nodecast.compiler.backends.c_board import board_files
 from nodecast.compiler.backends.c_fixed import fixed_context
-from nodecast.compiler.backends.c_float import DEFAULT_FLOAT_IMPLS, float_context
+from nodecast.compiler.backends.c_float import float_context
 from nodecast.compiler.backends.c_format import (
     _with_point,
     c_comment,
@@ -29,13 +29,9 @@ from nodecast.compiler.backends.c_format import (
 )
 from nodecast.compiler.bounds import certify
 from nodecast.compiler.errors import NodecastError
-from nodecast.compiler.fixedpoint import FIXED_PRECISIONS, SCALES
-from nodecast.compiler.ir import OUT_OF_DOMAIN_POLICIES
+from nodecast.compiler.targets import FIXED_PRECISIONS, TARGETS
 from nodecast.compiler.version import __version__
 
-PRECISIONS = ("float64", "float32", "q31", "q15")
-ACTIVATION_IMPLS = ("libm", "rational", "table")
-DEFAULT_IMPLS = {**DEFAULT_FLOAT_IMPLS, "q31": "table", "q15": "table"}
 _IMPL_TEXT = {
     "libm": "the C library's {fn}",
     "rational": "a rational approximation x P(x^2)/Q(x^2), clipped at |x| = 9 (no libm)",
@@ -49,21 +45,21 @@ _POLICY_TEXT = {
 }
 
 
-def render(bundle, precision: str = "float32", prefix: str = "model", out_of_domain: str = "pass",
-           activation_impl: str | None = None, table_size: int | None = None,
-           scales: str | None = None, footprint: bool = False, bare_metal: bool = False,
-           instruction_count: bool = False, **_ignored) -> Artifact:
-    """Render ``<prefix>.h`` and ``<prefix>.c`` for ``bundle``; see docs/c-backend.md.
-    ``scales`` ("node", the default, or "layer"): q15/q31 fixed-point scales per hidden node or
-    per layer (see :mod:`nodecast.compiler.fixedpoint`)."""
+def render(bundle, *, precision: str, prefix: str, out_of_domain: str, activation_impl: str,
+           table_size: int | None, scales: str | None, footprint: bool, bare_metal: bool,
+           instruction_count: bool) -> Artifact:
+    """Render ``<prefix>.h`` and ``<prefix>.c`` for ``bundle``; see docs/c-backend.md. The options
+    come resolved by the C target's spec (:mod:`nodecast.compiler.targets`: values per precision,
+    defaults); ``scales`` ("node" or "layer"): q15/q31 fixed-point scales per hidden node or per
+    layer (see :mod:`nodecast.compiler.fixedpoint`)."""
     net = bundle.network
-    fixed = _check_options(net, precision, prefix, out_of_domain, activation_impl, scales)
-    impl = activation_impl or DEFAULT_IMPLS[precision]
+    fixed = _check_model(net, precision, prefix)
+    impl = activation_impl
     if fixed:
         from nodecast.compiler.fixedpoint_error import estimate as fixed_estimate
         from nodecast.compiler.passes.quantise import make_plan
 
-        plan = make_plan(net, precision, table_size, scales or SCALES[0])
+        plan = make_plan(net, precision, table_size, scales)
         context = fixed_context(net, plan)
         estimate = fixed_estimate(net, precision, plan=plan)
         certificate = certify(net, "c", precision, plan=plan)
@@ -100,26 +96,10 @@ def render(bundle, precision: str = "float32", prefix: str = "model", out_of_dom
     return Artifact("c", files, False, summary)
 
 
-def _check_options(net, precision, prefix, out_of_domain, impl, scales) -> bool:
-    """Refuse options that do not go together (one line each); True for fixed point."""
+def _check_model(net, precision: str, prefix: str) -> bool:
+    """Refuse what this model cannot take (one line each); True for fixed point."""
     check_prefix(prefix)
-    if precision not in PRECISIONS:
-        raise NodecastError(f"C takes precision {', '.join(PRECISIONS)}, not {precision!r}")
-    if out_of_domain not in OUT_OF_DOMAIN_POLICIES:
-        raise NodecastError(f"--out-of-domain is clamp, pass or reject, not {out_of_domain!r}")
     fixed = precision in FIXED_PRECISIONS
-    if fixed and out_of_domain == "pass":
-        raise NodecastError(f"{precision} integers hold the declared domain only, so inputs "
-                            "outside it cannot pass; choose --out-of-domain clamp or reject")
-    if (impl or DEFAULT_IMPLS[precision]) not in ACTIVATION_IMPLS:
-        raise NodecastError(f"--activation-impl is one of {', '.join(ACTIVATION_IMPLS)}, "
-                            f"not {impl!r}")
-    if fixed and impl not in (None, "table"):
-        raise NodecastError(f"{precision} evaluates its activation from a table; "
-                            f"--activation-impl {impl!r} is for float32 and float64")
-    if scales is not None and (not fixed or scales not in SCALES):
-        raise NodecastError(f"--scales is {' or '.join(SCALES)}, for q15 and q31 only; got "
-                            f"{scales!r} with precision {precision}")
     if fixed and net.n_categorical:
         raise NodecastError(f"{precision} artifacts do not take categorical inputs yet; choose "
                             "float32 or float64")
@@ -192,7 +172,8 @@ def stated_activation_error(net, precision: str, impl: str | None, table_size: i
         from nodecast.compiler.fixedpoint import table_error
 
         return table_error(precision, table_size)
-    return float_activation_error(impl or DEFAULT_IMPLS[precision], precision, table_size)
+    return float_activation_error(impl or TARGETS["c"].option("activation_impl").default_value(
+        precision), precision, table_size)
 
 
 def float_activation_error(impl: str, precision: str, table_size: int | None) -> float:

@@ -44,12 +44,9 @@ from nodecast.compiler.passes.scaling import (
     folded_output_layer,
     should_fold_inputs,
 )
+from nodecast.compiler.targets import TARGETS
 
-FLOAT_IMPLS = ("libm", "rational", "table")
-# rational is the fastest and its 2e-8 error is far below float32's rounding; float64 keeps libm,
-# whose error is float64's (SPEC: float64 artifacts within 1e-10 of the output range)
-DEFAULT_FLOAT_IMPLS = {"float32": "rational", "float64": "libm"}
-DEFAULT_FLOAT_TABLE = 512
+DEFAULT_FLOAT_TABLE = TARGETS["c"].option("table_size").default_value("float32")
 TILES = (32, 16, 8, 4)  # tile widths, widest first
 MAX_PADDING_SHARE = 1 / 16
 RATIONAL_CLIP = 9.0
@@ -73,11 +70,6 @@ def float_table(size: int, precision: str) -> np.ndarray:
 
 def float_context(net, precision: str, impl: str, table_size: int | None) -> dict:
     """Template values for a float32/float64 artifact: formatted tables and activation settings."""
-    if impl not in FLOAT_IMPLS:
-        raise NodecastError(f"--activation-impl for {precision} is one of "
-                            f"{', '.join(FLOAT_IMPLS)}, not {impl!r}")
-    if table_size is not None and impl != "table":
-        raise NodecastError("--table-size applies to --activation-impl table only")
     literal = float_literal if precision == "float32" else double_literal
     fold = should_fold_inputs(net)
     weights, biases = folded_input_layer(net) if fold else (net.hidden_weights, net.hidden_biases)

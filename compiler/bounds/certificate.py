@@ -88,9 +88,7 @@ def _assumption(target: str, precision: str, impl: str | None) -> str:
     if precision in ("q15", "q31"):
         return "none beyond C99 with arithmetic right shifts of negative values"
     if impl is None:
-        from nodecast.compiler.backends.c_float import DEFAULT_FLOAT_IMPLS
-
-        impl = DEFAULT_FLOAT_IMPLS[precision]
+        impl = TARGETS["c"].option("activation_impl").default_value(precision)
     if impl == "libm":
         return (f"the C library's tanh{'f' if precision == 'float32' else ''} is within "
                 f"{proven.LIBM_ULPS:g} ulp of exact")
@@ -109,19 +107,16 @@ def box_function(net: Network, target: str, precision: str, activation_impl: str
         raise NodecastError(f"a {target} artifact computes in {known or 'no known precision'}, "
                             f"not precision {precision!r}")
     if target == "c" and precision in ("q15", "q31"):
-        from nodecast.compiler.fixedpoint import SCALES
         from nodecast.compiler.passes.quantise import make_plan
 
         if plan is None:
-            plan = make_plan(net, precision, table_size, scales or SCALES[0])
+            plan = make_plan(net, precision, table_size,
+                             scales or TARGETS["c"].option("scales").default_value(precision))
         program = fixed.FixedProgram(plan, net)
         return lambda lo, hi: fixed.box_bounds(program, lo, hi)
     if target == "c":
-        from nodecast.compiler.backends.c_float import DEFAULT_FLOAT_IMPLS
-
-        program = programs.c_float_program(net, precision,
-                                           activation_impl or DEFAULT_FLOAT_IMPLS[precision],
-                                           table_size)
+        impl = activation_impl or TARGETS["c"].option("activation_impl").default_value(precision)
+        program = programs.c_float_program(net, precision, impl, table_size)
     elif target == "onnx":
         program = programs.onnx_program(net, precision)
     elif target == "python":

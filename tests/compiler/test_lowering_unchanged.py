@@ -32,7 +32,7 @@ def test_artifact_computes_what_it_computed_before(bundle_name, target, options,
     from nodecast.compiler import load
 
     bundle = load(DATA / f"{bundle_name}.ncast")
-    got = record.digest(bundle, target, options, tmp_path, record.EXTRA.get(target))
+    got = record.digest(bundle, target, options, tmp_path, record.EXTRA.get(options["precision"]))
     assert got == RECORDED["digests"][record.config_name(bundle_name, target, options)]
 
 
