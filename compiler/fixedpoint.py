@@ -1,7 +1,7 @@
 """Fixed-point formats (Q15 in 16-bit words, Q31 in 32-bit words): the integer program of a q15/q31
 artifact as a :class:`FixedPlan`, and its tanh table. The plan is made from a network by the
 quantisation pass :func:`nodecast.compiler.passes.quantise.make_plan`; its export-error estimate is
-in :mod:`nodecast.compiler.fixedpoint_error`, its certified bound in
+in :mod:`nodecast.compiler.typical_error.fixed`, its certified bound in
 :mod:`nodecast.compiler.bounds.fixed`.
 
 The arithmetic, for word size W (16 or 32), n inputs, M nodes and t outputs:

@@ -56,8 +56,8 @@ def render(bundle, *, precision: str, prefix: str, out_of_domain: str, activatio
     fixed = _check_model(net, precision, prefix)
     impl = activation_impl
     if fixed:
-        from nodecast.compiler.fixedpoint_error import estimate as fixed_estimate
         from nodecast.compiler.passes.quantise import make_plan
+        from nodecast.compiler.typical_error.fixed import estimate as fixed_estimate
 
         plan = make_plan(net, precision, table_size, scales)
         context = fixed_context(net, plan)

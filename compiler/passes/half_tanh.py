@@ -7,10 +7,11 @@ exactly rounded (``math.fsum``). The result is a tanh network computing the same
 back-end that lowers through it needs one tanh per node and no exp, so no finite input overflows.
 A tanh network passes through unchanged.
 
-Which targets lower through it: the Python predictor (here) and fixed point (the plan halves its
-real weights the same way). The C float template evaluates 1/2 + tanh(z/2)/2 at run time and ONNX
-keeps its own Sigmoid operator; both choices are described to the error bound in
-:mod:`nodecast.compiler.bounds.programs`.
+The Python predictor and its bound program lower through it. The fixed-point plan halves its real
+weights the same way in its own arithmetic (moving it onto this pass could flip a rounded integer
+of the per-layer scheme, which is kept bit for bit); the C float template evaluates
+1/2 + tanh(z/2)/2 at run time and ONNX keeps its own Sigmoid operator. Each choice is described to
+the error bound in :mod:`nodecast.compiler.bounds.programs`.
 """
 
 from __future__ import annotations

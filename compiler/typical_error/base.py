@@ -1,6 +1,6 @@
 """The typical export-error estimate's common parts: its record and its coverage factor.
 
-The typical estimate (:mod:`.floating`, :mod:`nodecast.compiler.fixedpoint_error`) says how far an
+The typical estimate (:mod:`.floating`, :mod:`.fixed`) says how far an
 artifact usually strays from the float64 reference on probes of the domain; it is shown beside the
 certified bound (:mod:`nodecast.compiler.bounds`), which is the promise.
 """

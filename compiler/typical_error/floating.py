@@ -45,7 +45,7 @@ _BLOCK = 512
 def estimate(net: Network, precision: str, X: np.ndarray | None = None,
              activation_error: float = 0.0) -> ErrorEstimate:
     """Estimate the export error of ``net`` evaluated in ``precision`` ("float32" or "float64";
-    fixed point: :mod:`nodecast.compiler.fixedpoint_error`)."""
+    fixed point: :mod:`nodecast.compiler.typical_error.fixed`)."""
     if precision not in UNIT_ROUNDOFF:
         raise ValueError(f"no floating-point estimate for precision {precision!r}; "
                          f"choose one of {sorted(UNIT_ROUNDOFF)}")
