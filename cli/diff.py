@@ -7,23 +7,12 @@ import sys
 
 import click
 
-from nodecast.compiler.errors import NodecastError
+from nodecast.cli.messages import write_reports
+from nodecast.cli.parsing import parse_limits
 
 EXAMPLE = ("\b\nExample:\n  nodecast diff shipped.ncast fan.ncast --data held_out.csv --max-change 0.5 "
            "--junit diff.xml")
 
-
-def _limits(text: str | None) -> tuple[float, ...] | None:
-    if text is None:
-        return None
-    try:
-        values = tuple(float(item) for item in text.split(",") if item.strip())
-    except ValueError:
-        values = ()
-    if not values or any(not (0 <= v < float("inf")) for v in values):
-        raise NodecastError(f"--max-change takes a number >= 0 or one per output, comma-separated, "
-                            f"got {text!r}")
-    return values
 
 
 @click.command("diff", epilog=EXAMPLE)
@@ -50,18 +39,14 @@ def diff(old, new, data, max_change, samples, seed, report, junit, overwrite):
     from nodecast.cli.diff_report import diff_junit, format_diff_table
     from nodecast.compiler.bundle import load
     from nodecast.compiler.csvio import read_table
-    from nodecast.compiler.files import check_outputs, write_atomic
+    from nodecast.compiler.files import check_outputs
     from nodecast.compiler.model_diff import diff as run_diff
-    from nodecast.compiler.verify.report import to_json
 
-    limits = _limits(max_change)
+    limits = parse_limits(max_change, "--max-change")
     check_outputs({"--report": report, "--junit": junit}, {"OLD": old, "NEW": new, "--data": data},
                   overwrite)
     result = run_diff(load(old), load(new), read_table(data) if data else None, limits, seed,
                       samples)
     click.echo(format_diff_table(result))
-    if report:
-        write_atomic(report, to_json(result.as_dict()).encode("utf-8"), overwrite=overwrite)
-    if junit:
-        write_atomic(junit, diff_junit(result.as_dict()).encode("utf-8"), overwrite=overwrite)
+    write_reports(result.as_dict(), report, junit, diff_junit, overwrite)
     sys.exit(0 if result.passed else 1)

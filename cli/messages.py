@@ -71,3 +71,14 @@ def budget_warning(bundle, summary: dict) -> str | None:
     return (f"the certified bound {bound[o]:.3g} of output {o} exceeds the accuracy budget "
             f"{budget.per_output[o]:.3g} ({budget.rule}); verify will fail this artifact unless "
             "given --abs-tol")
+
+
+def write_reports(document: dict, report: str | None, junit: str | None, junit_text,
+                  overwrite: bool) -> None:
+    """A gate's JSON report and JUnit XML (``junit_text(document)``), each where asked."""
+    from nodecast.compiler.files import write_atomic
+    from nodecast.compiler.verify.report import to_json
+
+    for path, text in ((report, to_json), (junit, junit_text)):
+        if path:
+            write_atomic(path, text(document).encode("utf-8"), overwrite=overwrite)

@@ -123,3 +123,17 @@ def parse_range(text: str, option: str) -> tuple[float, float]:
         return parse_pair(text)
     except ValueError:
         raise NodecastError(f"{option} takes LO:HI (two numbers), got {text!r}") from None
+
+
+def parse_limits(text: str | None, option: str) -> tuple[float, ...] | None:
+    """A gate's limit: one finite number >= 0, or one per output, comma-separated."""
+    if text is None:
+        return None
+    try:
+        values = tuple(float(item) for item in text.split(",") if item.strip())
+    except ValueError:
+        values = ()
+    if not values or any(not (0 <= v < float("inf")) for v in values):
+        raise NodecastError(f"{option} takes a number >= 0 or one per output, comma-separated, "
+                            f"got {text!r}")
+    return values

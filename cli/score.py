@@ -10,30 +10,12 @@ import sys
 
 import click
 
-from nodecast.compiler.errors import NodecastError
+from nodecast.cli.messages import write_reports
+from nodecast.cli.parsing import parse_limits
 
 EXAMPLE = ("\b\nExample:\n  nodecast score fan.ncast held_out.csv --max-rmse 0.8 "
            "--baseline fan-old.ncast --junit score.xml")
 
-
-def _limits(text: str | None) -> tuple[float, ...] | None:
-    if text is None:
-        return None
-    try:
-        values = tuple(float(item) for item in text.split(",") if item.strip())
-    except ValueError:
-        raise NodecastError(f"--max-rmse takes a number or a comma-separated list, "
-                            f"got {text!r}") from None
-    if not values or any(not v >= 0 for v in values):
-        raise NodecastError(f"--max-rmse limits must be numbers >= 0, got {text!r}")
-    return values
-
-
-def _write(path: str | None, text: str, overwrite: bool) -> None:
-    if path:
-        from nodecast.compiler.files import write_atomic
-
-        write_atomic(path, text.encode("utf-8"), overwrite=overwrite)
 
 
 @click.command("score", epilog=EXAMPLE)
@@ -65,15 +47,14 @@ def score(model, data, max_rmse, min_accuracy, baseline, rmse_margin, accuracy_m
     from nodecast.compiler.csvio import read_table
     from nodecast.compiler.files import check_outputs
     from nodecast.compiler.scoring import score as run_score
-    from nodecast.compiler.verify.report import format_score_table, score_junit, to_json
+    from nodecast.compiler.verify.report import format_score_table, score_junit
 
     check_outputs({"--report": report, "--junit": junit},
                   {"MODEL": model, "DATA": data, "--baseline": baseline}, overwrite)
-    result = run_score(load(model), read_table(data), max_rmse=_limits(max_rmse),
+    result = run_score(load(model), read_table(data), max_rmse=parse_limits(max_rmse, "--max-rmse"),
                        min_accuracy=min_accuracy, baseline=load(baseline) if baseline else None,
                        rmse_margin=rmse_margin, accuracy_margin=accuracy_margin,
                        label=label_column)
     click.echo(format_score_table(result))
-    _write(report, to_json(result.as_dict()), overwrite)
-    _write(junit, score_junit(result.as_dict()), overwrite)
+    write_reports(result.as_dict(), report, junit, score_junit, overwrite)
     sys.exit(0 if result.passed else 1)

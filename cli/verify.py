@@ -6,6 +6,7 @@ import sys
 
 import click
 
+from nodecast.cli.messages import write_reports
 from nodecast.cli.parsing import SEED, example, load_bundle
 
 
@@ -35,11 +36,11 @@ def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, junit,
     """
     from nodecast.cli.progress import EngineClock, Progress
     from nodecast.compiler.csvio import read_table
-    from nodecast.compiler.files import check_outputs, write_atomic
+    from nodecast.compiler.files import check_outputs
     from nodecast.compiler.levels import table_rows
     from nodecast.compiler.verify import format_table
     from nodecast.compiler.verify import verify as run_verify
-    from nodecast.compiler.verify.report import to_json, verify_junit
+    from nodecast.compiler.verify.report import verify_junit
 
     check_outputs({"--report": report, "--junit": junit},
                   {"MODEL": model, "ARTIFACT": artifact, "--data": data}, overwrite)
@@ -52,8 +53,5 @@ def verify(model, artifact, data, probes, seed, abs_tol, rel_tol, report, junit,
         result = run_verify(bundle, artifact, rows, probes, seed, abs_tol, rel_tol,
                             on_engine=EngineClock(progress), **run_options)
     click.echo(format_table(result))
-    if report:
-        write_atomic(report, to_json(result.as_dict()).encode("utf-8"), overwrite=overwrite)
-    if junit:
-        write_atomic(junit, verify_junit(result.as_dict()).encode("utf-8"), overwrite=overwrite)
+    write_reports(result.as_dict(), report, junit, verify_junit, overwrite)
     sys.exit(0 if result.passed else 1)
