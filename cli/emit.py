@@ -63,9 +63,9 @@ def emit(model, target, output, overwrite, max_size, **given):
     from nodecast.compiler.files import check_outputs, parse_size
 
     check_outputs({"-o": output}, {"MODEL": model}, overwrite, folders=("-o",) if target == "c" else ())
-    options = target_options(target, model, {k: v for k, v in given.items() if v is not None})
     max_bytes = None if max_size is None else parse_size(max_size)
-    bundle = load_bundle(model)
+    bundle = load_bundle(model)  # before any warning: a bundle that does not load is one line
+    options = target_options(target, model, {k: v for k, v in given.items() if v is not None})
     artifact = emit_artifact(bundle, target, output, overwrite=overwrite, max_bytes=max_bytes,
                              **options)
     click.echo(emitted_line(output, target, artifact.summary), err=True)
