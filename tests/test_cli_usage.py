@@ -91,12 +91,12 @@ def test_usage_errors_are_one_line_with_exit_2(capsys, args, words):
 
 
 def test_select_refuses_existing_outputs_before_searching(capsys, small, monkeypatch):
-    import nodecast.trainer.selection_run as table_selection
+    import nodecast.trainer.selection_run as selection_run
 
     def must_not_run(*args, **kwargs):
         raise AssertionError("the search ran although an output exists")
 
-    monkeypatch.setattr(table_selection, "run_selection", must_not_run)
+    monkeypatch.setattr(selection_run, "run_selection", must_not_run)
     folder = small["folder"]
     existing = folder / "old.json"
     existing.write_text("{}")
