@@ -124,5 +124,8 @@ def _train_scaled(data, source, job, chunk_rows, cluster):
         return train_on_cluster(data, job, cluster, chunk_rows, progress)
     from nodecast.trainer.streaming import train_streaming
 
-    check_units(job.units, source, job)
-    return train_streaming(source, job, progress)
+    try:
+        check_units(job.units, source, job)
+        return train_streaming(source, job, progress)
+    finally:
+        source.close()  # the spilled copy goes now, not when the garbage collector finds it

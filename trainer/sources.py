@@ -45,6 +45,9 @@ class TableSource:
     def chunks(self, names, label: str | None = None) -> Iterator[Chunk]:
         raise NotImplementedError
 
+    def close(self) -> None:
+        """Release what the source holds (a spilled copy on disk); nothing by default."""
+
     def check_columns(self, names) -> None:
         missing = [name for name in names if name not in self.header]
         if missing:
