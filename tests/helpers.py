@@ -1,10 +1,13 @@
-"""Helpers shared by the tests: run the command line in this process, write small CSV files."""
+"""Helpers shared by the tests (and the benchmarks): run the command line in this process, write
+small CSV files, make the invented data sets several files use."""
 
 from __future__ import annotations
 
 import numbers
 from pathlib import Path
 from typing import NamedTuple
+
+import numpy as np
 
 from nodecast.cli import main
 
@@ -45,3 +48,18 @@ def _cell(value) -> str:
     if isinstance(value, numbers.Integral):
         return str(int(value))
     return repr(float(value))
+
+
+def workshop_log(rows: int = 600, seed: int = 0) -> tuple[np.ndarray, np.ndarray]:
+    """Invented workshop log: two count columns (Poisson, many ties), a one-hot product family of
+    four kinds, a yes/no column, a gauge read to two levels, every row present three times, and
+    a noisy target (noise 0.5)."""
+    rng = np.random.default_rng(seed)
+    base = rows // 3
+    counts = rng.poisson([1.0, 3.0], size=(base, 2)).astype(float)
+    family = np.eye(4)[rng.integers(4, size=base)]
+    flag = (rng.random((base, 1)) < 0.3).astype(float)
+    gauge = np.round(rng.random((base, 1)), 0)
+    X = np.repeat(np.column_stack([counts, family, flag, gauge]), 3, axis=0)
+    y = X[:, 0] - 0.5 * X[:, 1] + 2 * X[:, 3] + X[:, 6] + rng.normal(0, 0.5, size=X.shape[0])
+    return X, y

@@ -18,22 +18,16 @@ Run: python tests/benchmarks/real_data_accuracy.py
 from __future__ import annotations
 
 import json
+import sys
+from pathlib import Path
 
 import numpy as np
 
+sys.path.insert(0, str(Path(__file__).resolve().parents[2]))  # the repository, for tests.helpers
+from tests.helpers import workshop_log  # noqa: E402
+
 SEEDS = (0, 1, 2)
 
-
-def counts_one_hot(rows=600, seed=0):
-    rng = np.random.default_rng(seed)
-    base = rows // 3
-    counts = rng.poisson([1.0, 3.0], size=(base, 2)).astype(float)
-    family = np.eye(4)[rng.integers(4, size=base)]
-    flag = (rng.random((base, 1)) < 0.3).astype(float)
-    gauge = np.round(rng.random((base, 1)), 0)
-    X = np.repeat(np.column_stack([counts, family, flag, gauge]), 3, axis=0)
-    y = X[:, 0] - 0.5 * X[:, 1] + 2 * X[:, 3] + X[:, 6] + rng.normal(0, 0.5, size=X.shape[0])
-    return X, y
 
 
 def heavy_tailed(rows=1500, seed=0):
@@ -49,7 +43,7 @@ def data_sets():
 
     return {"diabetes": load_diabetes(return_X_y=True),
             "friedman1": make_friedman1(2000, noise=1.0, random_state=0),
-            "counts_one_hot": counts_one_hot(),
+            "counts_one_hot": workshop_log(),
             "heavy_tailed": heavy_tailed()}
 
 

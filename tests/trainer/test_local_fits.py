@@ -12,26 +12,13 @@ from sklearn.utils import check_random_state
 
 from nodecast.compiler.activations import get_activation
 from nodecast.trainer.generators.data_driven import SLOPE_LIMIT, WIDE_NEIGHBORS, default_neighbors
+from tests.helpers import workshop_log
 
 # the module itself (the package exports its generate function under the same name)
 data_driven = importlib.import_module("nodecast.trainer.generators.data_driven")
 
 LOGISTIC = get_activation("logistic")
 
-
-def counts_and_one_hot(rows=600, seed=0):
-    """Invented workshop log: two count columns (Poisson, many ties), a one-hot product family of
-    four kinds, a yes/no column, a gauge read to two levels, every row present three times, and
-    a noisy target."""
-    rng = np.random.default_rng(seed)
-    base = rows // 3
-    counts = rng.poisson([1.0, 3.0], size=(base, 2)).astype(float)
-    family = np.eye(4)[rng.integers(4, size=base)]
-    flag = (rng.random((base, 1)) < 0.3).astype(float)
-    gauge = np.round(rng.random((base, 1)), 0)
-    X = np.repeat(np.column_stack([counts, family, flag, gauge]), 3, axis=0)
-    y = X[:, 0] - 0.5 * X[:, 1] + 2 * X[:, 3] + X[:, 6] + rng.normal(0, 0.5, size=X.shape[0])
-    return X, y
 
 
 def steepest(weights, slope_scale=1.0, activation=LOGISTIC):
@@ -42,7 +29,7 @@ def steepest(weights, slope_scale=1.0, activation=LOGISTIC):
 def test_discrete_and_duplicated_columns_give_no_node_steeper_than_the_limit():
     from nodecast.trainer import RandomNodeRegressor
 
-    X, y = counts_and_one_hot()
+    X, y = workshop_log()
     model = RandomNodeRegressor(n_nodes=200, random_state=0).fit(X, y)
     assert steepest(model.hidden_weights_) <= SLOPE_LIMIT * (1 + 1e-12)
     counts = model.diagnostics_
@@ -85,7 +72,7 @@ def test_counts_are_in_the_bundle_and_shown_by_inspect(tmp_path, capsys):
     from nodecast.cli import main
     from nodecast.compiler.bundle import load
 
-    X, y = counts_and_one_hot()
+    X, y = workshop_log()
     names = ["few", "many", "kind_a", "kind_b", "kind_c", "kind_d", "checked", "gauge"]
     data = tmp_path / "log.csv"
     lines = [",".join(names + ["wear"])]

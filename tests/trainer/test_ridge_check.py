@@ -7,6 +7,7 @@ import numpy as np
 from sklearn.utils import check_random_state
 
 from nodecast.trainer import RandomNodeRegressor, ridge_choice, solvers
+from tests.helpers import workshop_log
 
 
 def test_heldout_errors_equal_refits_and_sklearn_ridge():
@@ -53,19 +54,6 @@ def test_check_rows_cover_the_fraction_and_differ_by_seed():
     assert np.mean(first.mask(U) == second.mask(U)) < 0.75  # independent draws agree on 0.68
 
 
-def counts_and_one_hot(rows, seed):
-    """Invented workshop log (as tests/trainer/test_local_fits.py): counts, a one-hot family,
-    a yes/no column, a two-level gauge, every row three times, noise 0.5."""
-    rng = np.random.default_rng(seed)
-    base = rows // 3
-    counts = rng.poisson([1.0, 3.0], size=(base, 2)).astype(float)
-    family = np.eye(4)[rng.integers(4, size=base)]
-    flag = (rng.random((base, 1)) < 0.3).astype(float)
-    gauge = np.round(rng.random((base, 1)), 0)
-    X = np.repeat(np.column_stack([counts, family, flag, gauge]), 3, axis=0)
-    y = X[:, 0] - 0.5 * X[:, 1] + 2 * X[:, 3] + X[:, 6] + rng.normal(0, 0.5, size=X.shape[0])
-    return X, y
-
 
 def test_default_model_on_duplicated_discrete_rows_is_as_good_as_ridgecv():
     # GCV alone picked lambda 3e-8 here (test RMSE 2.44 against noise 0.5); with the check the
@@ -73,8 +61,8 @@ def test_default_model_on_duplicated_discrete_rows_is_as_good_as_ridgecv():
     # target) on fresh rows
     from sklearn.linear_model import RidgeCV
 
-    X, y = counts_and_one_hot(600, 0)
-    X_test, y_test = counts_and_one_hot(900, 5)
+    X, y = workshop_log(600, 0)
+    X_test, y_test = workshop_log(900, 5)
     model = RandomNodeRegressor(random_state=0).fit(X, y)
     ours = np.sqrt(np.mean((model.predict(X_test) - y_test) ** 2))
     linear = np.sqrt(np.mean((RidgeCV().fit(X, y).predict(X_test) - y_test) ** 2))
