@@ -153,7 +153,7 @@ def grow_best(X, Y, points, settings: SearchSettings, declared, growth):
     if not candidates:
         best = min(points, key=lambda p: (p.estimate, p.rank_key()))
         raise NodecastError(_no_point_message(settings, best.estimate, best))
-    splits = fold_indices(X.shape[0], settings.folds, settings.seed)
+    splits = fold_indices(X, settings.folds, settings.seed)
     probes = _screen_probes(X, declared) if settings.tolerance is not None else None
     span = Y.max(axis=0) - Y.min(axis=0)
     result = grow(X, Y, splits, declared, candidates[0], settings, growth,
@@ -197,7 +197,7 @@ def run_search(X, Y, grid: Grid, settings: SearchSettings, declared, progress=No
     """Score every grid point by cross-validation; returns (points, generator diagnostics)."""
     if settings.tolerance is not None and settings.precision is None:
         raise NodecastError("a tolerance needs a precision to estimate the export error in")
-    splits = fold_indices(X.shape[0], settings.folds, settings.seed)
+    splits = fold_indices(X, settings.folds, settings.seed)
     budget = settings.precision if settings.tolerance is not None else None
     probes = _screen_probes(X, declared) if budget else None
     keys = list(itertools.product(grid.layers, range(settings.folds)))
