@@ -147,9 +147,6 @@ def run_class_selection(table, job, grid, folds, activation, scoring, n_jobs):
     """``nodecast select --task classification``: search, then the final fit by
     :func:`nodecast.trainer.training.train` with the chosen options (so ``nodecast train`` with
     them writes the same arrays); returns (ClassSelection, Bundle)."""
-    from dataclasses import replace
-
-    from nodecast.compiler.bundle import Bundle
     from nodecast.trainer import training
 
     if len(job.targets) != 1:
@@ -165,15 +162,25 @@ def run_class_selection(table, job, grid, folds, activation, scoring, n_jobs):
                                neighbors, slope_scales, grid.ridges, folds,
                                seed=job.seed, scoring=scoring, domain=declared,
                                activation=activation, n_jobs=n_jobs, refit=False)
+    return result, class_bundle(result, lambda final: training.train(table, final), job,
+                                activation, len(table.rows))
+
+
+def class_bundle(result: ClassSelection, train, job, activation: str, rows: int):
+    """The bundle of the chosen point, fitted by ``train(TrainingJob) -> Bundle`` (in memory,
+    streamed or on a cluster: the same arrays), with the cross-validated score and a summary."""
+    from dataclasses import replace
+
+    from nodecast.compiler.bundle import Bundle
+
     params = dict(result.chosen.params, method="data-driven", interval=1.0, activation=activation)
-    bundle = training.train(table, replace(job, params=params))
+    bundle = train(replace(job, params=params))
     metrics = dict(bundle.metadata.get("metrics", {}))
-    metrics["cross_validation"] = {"folds": folds, "rows": len(table.rows), "scoring": scoring,
+    metrics["cross_validation"] = {"folds": result.folds, "rows": rows, "scoring": result.scoring,
                                    "mean": result.chosen.mean, "std": result.chosen.std}
-    summary = {"folds": folds, "grid_points": len(result.points), "scoring": scoring,
-               "chosen": result.chosen.params}
-    return result, Bundle(bundle.network, {**bundle.metadata, "metrics": metrics,
-                                           "selection": summary})
+    summary = {"folds": result.folds, "grid_points": len(result.points),
+               "scoring": result.scoring, "chosen": result.chosen.params}
+    return Bundle(bundle.network, {**bundle.metadata, "metrics": metrics, "selection": summary})
 
 
 def _run(jobs, n_jobs: int) -> list[np.ndarray]:

@@ -212,9 +212,14 @@ def run_search(X, Y, grid: Grid, settings: SearchSettings, declared, progress=No
         units.setdefault(layer, []).append(scores)
         if progress is not None:
             progress(done, len(keys))
-    span = Y.max(axis=0) - Y.min(axis=0)
-    points = tabulate(grid, units, np.where(span > 0, span, 1.0), settings.tolerance)
-    return points, _total_diagnostics(units)
+    return tabulate_units(grid, units, Y.min(axis=0), Y.max(axis=0), settings.tolerance)
+
+
+def tabulate_units(grid: Grid, units: dict, y_low, y_high, tolerance):
+    """(points, generator diagnostics) from every unit's scores (``units``: LayerSpec -> list over
+    folds of UnitScores) and the targets' range over all rows (the score's normaliser)."""
+    span = np.asarray(y_high) - np.asarray(y_low)
+    return tabulate(grid, units, np.where(span > 0, span, 1.0), tolerance), _total_diagnostics(units)
 
 
 def _auto_jobs(units: int, rows: int, nodes: int) -> int:
@@ -241,8 +246,13 @@ def _run(jobs, n_jobs: int):
 
 
 def _screen_probes(X, declared) -> np.ndarray:
-    low, high = input_box(X, *declared)
-    box = SimpleNamespace(n_features=X.shape[1], domain_low=low, domain_high=high)
+    return box_probes(*input_box(X, *declared))
+
+
+def box_probes(low, high) -> np.ndarray:
+    """The precision budget's probes of the box [low, high]: quasi-random points and at most as
+    many of its corners, evenly picked."""
+    box = SimpleNamespace(n_features=len(low), domain_low=low, domain_high=high)
     probes = domain_probes(box, count=SCREEN_PROBES)
     corners = probes[SCREEN_PROBES:]
     step = max(1, -(-corners.shape[0] // SCREEN_PROBES))

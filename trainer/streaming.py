@@ -113,6 +113,7 @@ class StreamedTraining:
             self.all.update(Y, Y if self.classify else None)
             held = held_out(first, X.shape[0], self.job.validation_fraction, self.job.seed)
             self.kept.update(Y[~held], Y[~held] if self.classify else None)
+            self.count_chunk(X, Y)
         self.n_rows = self.all.rows
         if self.n_rows < 2:
             raise NodecastError(f"{self.source.source}: need at least 2 data rows to train, got "
@@ -120,6 +121,10 @@ class StreamedTraining:
                                                     if self.n_rows == 0 else ""))
         self._check_targets(first_values)
         self.low, self.high, self.outside = domain.box()
+
+    def count_chunk(self, X, Y) -> None:
+        """What a run measures on the first pass besides train's counts (model selection: its
+        folds); nothing here."""
 
     def _check_targets(self, first_values) -> None:
         if self.classify:
