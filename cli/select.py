@@ -106,6 +106,7 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     DATA (CSV, or Parquet by its .parquet suffix; a classifier: by accuracy or log-loss), refit
     the choice on all rows and save it as a bundle."""
     from nodecast.cli.parsing import check_units, parse_domain, parse_list, parse_units
+    from nodecast.cli.select_runs import in_memory_search, scaled_search
     from nodecast.compiler.bundle import save
     from nodecast.compiler.files import check_outputs
     from nodecast.compiler.provenance import file_record, with_training_data
@@ -131,7 +132,7 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     grid = make_grid(parse_list(nodes, int, "--nodes"), parse_list(ridge, float, "--ridge"), layers)
     settings = SearchSettings(folds, seed, activation, precision, tolerance, _jobs(jobs))
     source = None if cluster else open_source(data, chunk_rows)
-    scaled = partial(_scaled, data, source, cluster, chunk_rows) \
+    scaled = partial(scaled_search, data, source, cluster, chunk_rows) \
         if cluster or not isinstance(source, MemorySource) else None
     if scaled and grow:
         raise NodecastError("--grow needs the table in memory; read the file whole (a CSV file "
@@ -161,7 +162,8 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     if scaled:
         result, bundle = scaled(job, grid, settings, allowed_nodes=allowed)
     else:
-        result, bundle = _in_memory(run_selection, table, job, grid, settings, growth, allowed, grow)
+        result, bundle = in_memory_search(run_selection, table, job, grid, settings, growth,
+                                          allowed, UnitClock)
     bundle = with_training_data(bundle, record)
 
     save(bundle, output, overwrite=overwrite)
@@ -181,44 +183,6 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
 
     for hint in edge_hints(result):
         click.echo(f"nodecast: hint: {hint}", err=True)
-
-
-def _in_memory(run_selection, table, job, grid, settings, growth, allowed, grow):
-    from nodecast.cli.progress import Progress, run_interruptible
-
-    search = partial(run_selection, allowed_nodes=allowed)
-    with Progress("select") as progress:
-        return run_interruptible(
-            search, table, job, grid, settings, growth,
-            callback=UnitClock(progress, len(table.rows), max(grid.nodes), settings.folds, grow),
-            progress=progress)
-
-
-def _scaled(data, source, cluster, chunk_rows, job, grid, settings, scoring=None,
-            allowed_nodes=None):
-    """(result, bundle) of a search streamed from ``source`` or on the Dask cluster ``cluster``;
-    progress of every pass on a terminal."""
-    import sys
-
-    from nodecast.cli.parsing import check_units
-    from nodecast.trainer.progress import Progress
-
-    progress = Progress(sys.stderr if sys.stderr.isatty() else None)
-    if cluster:
-        from nodecast.trainer.selection_cluster import select_on_cluster
-
-        return select_on_cluster(data, job, grid, settings, cluster, chunk_rows, scoring,
-                                 allowed_nodes, progress)
-    from nodecast.trainer import selection_stream as stream
-
-    try:
-        check_units(job.units, source, job)
-        if job.task == "classification":
-            return stream.select_classes_streaming(source, job, grid, settings.folds,
-                                                   settings.activation, scoring, progress)
-        return stream.select_streaming(source, job, grid, settings, allowed_nodes, progress)
-    finally:
-        source.close()  # the spilled copy goes now
 
 
 def _jobs(text: str) -> int | None:
