@@ -42,7 +42,8 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp "
 @click.option("--ridge", default="0,1e-6", show_default=True,
               help="Ridge values lambda to try (0: minimum-norm least squares).")
 @click.option("--folds", type=click.IntRange(min=2), default=10, show_default=True,
-              help="Shuffled cross-validation folds.")
+              help="Cross-validation folds (a row's fold: a hash of its input values, so "
+                   "copies of a row share one).")
 @click.option("--activation", type=click.Choice(["logistic", "tanh"]), default="logistic",
               show_default=True)
 @click.option("--seed", type=click.IntRange(0, 2**32 - 1), default=0, show_default=True,

@@ -92,7 +92,8 @@ def select(X, y, nodes=(50, 100, 250), neighbors=None, slope_scales=None, ridges
     intervals : u of interval and domain-anchored; angle_ranges : (min, max) degrees of
     slope-angle; weight_sums : (r, s) of weight-sum. Each None: that generator's default grid
     (:mod:`nodecast.trainer.method_grid`); values for a generator not in ``methods`` are an error.
-    folds : int, number of shuffled folds (ten is customary).
+    folds : int, number of folds (ten is customary); a row's fold is a hash of its input values
+        (:func:`nodecast.trainer.folds.row_folds`).
     seed : int, seeds the fold split and every hidden-layer draw (the final model's random_state).
     domain : (low, high) or None, each of shape (n_features,); NaN entries are not declared and
         take the range of the rows being fitted (each fold's training rows; all rows for the
