@@ -3,8 +3,8 @@ nothing.
 
 Data: an invented sensor log, ROWS rows x 10 features (uniform), target sin(3 x0) + x1 x2 + 0.1 x3
 plus noise 0.05, written as Parquet (row groups of 50,000 rows). The search: FOLDS folds, nodes
-NODES and NODES / 2, data-driven k = 22 and default k (one layer each... two layers), ridges 1e-6
-and 1e-3, then the final fit (ridge and k as chosen, default validation fraction). Measured in one
+NODES / 2 and NODES, two data-driven layers (the default k and k = 22), ridges 1e-6 and 1e-3,
+then the final fit of the chosen point (default validation fraction). Measured in one
 run, each mode in a subprocess (the cluster's start-up excluded): wall and CPU seconds (the
 cluster's: the client's only, its workers' CPU is not counted), peak resident memory, and for the
 cluster the largest relative difference of its output weights and CV figures to streaming.

@@ -180,3 +180,19 @@ def test_a_bad_cell_in_a_late_chunk_names_its_line_and_writes_nothing(tmp_path, 
     err = capsys.readouterr().err.strip().splitlines()
     assert stop.value.code == 2 and len(err) == 1 and "line 1001" in err[0], err
     assert not (tmp_path / "m.ncast").exists()
+
+
+def test_progress_shows_every_pass_of_a_streamed_search(friedman_csv):
+    import io
+    import itertools
+
+    from nodecast.trainer.progress import Progress
+
+    stream, ticks = io.StringIO(), itertools.count()
+    job = TrainingJob(targets=("y",), features=FEATURES, seed=SEED)
+    grid = make_grid([10], [1e-6], layer_grid(["data-driven"], {}))
+    select_streaming(CsvSource(friedman_csv, CHUNK), job, grid, SearchSettings(folds=4, seed=SEED),
+                     progress=Progress(stream, clock=lambda: float(next(ticks))))
+    text = stream.getvalue()
+    for what in ("reading", "anchors", "neighbours", "factor", "scores", "figures"):
+        assert f"{what}: 1,200 rows of 1,200" in text or f"{what}: 1,200 rows," in text, what
