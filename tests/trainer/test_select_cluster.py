@@ -77,6 +77,23 @@ def test_partition_passes_give_the_single_process_search(bench, tmp_path, capsys
     _agree(single, clustered)
 
 
+def test_precision_budget_and_parquet_on_partitions(bench, tmp_path, capsys, synchronous):
+    pa = pytest.importorskip("pyarrow")
+    import pyarrow.parquet as pq
+
+    X, y, grade = _data(rows=1500)
+    parquet = tmp_path / "bench.parquet"
+    pq.write_table(pa.table({**{name: X[:, i] for i, name in enumerate(FEATURES)}, "y": y,
+                             "grade": grade.tolist()}), parquet, row_group_size=250)
+    budget = [*REGRESSION, "--precision", "float32", "--tolerance", "0.001"]
+    single = _run(bench, tmp_path / "single", budget, capsys)
+    clustered = _run(parquet, tmp_path / "cluster", budget, capsys, "--cluster", "sync")
+    _agree(single, clustered)
+    estimates = [np.array([p["estimate"] for p in doc["points"]]) for _, doc in (single, clustered)]
+    assert np.allclose(estimates[0], estimates[1], rtol=1e-6, atol=0)
+    assert single[1]["rejected_by_budget"] == clustered[1]["rejected_by_budget"] > 0
+
+
 def test_a_bad_cell_read_on_the_cluster_is_one_line(tmp_path, capsys, synchronous):
     X, y, grade = _data(rows=300)
     path = _write_csv(tmp_path / "bench.csv", X, y, grade)
