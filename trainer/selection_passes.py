@@ -54,7 +54,7 @@ class SearchState:
         for (f, _), fit in self.free.items():
             self.norms.setdefault(f, fit)
         self.norms.update(self.fits)
-        self.unit_layers = None
+        self.unit_layers = self.solutions = self.sums = None  # after the passes that make them
 
     def pieces_of(self, X, Y, ids, rows: str = "train"):
         """(fold, normalised inputs, targets) of each fold's ``rows`` ("train" or "valid") in a
