@@ -23,6 +23,7 @@ import numpy as np
 
 from nodecast.compiler.activations import get_activation
 from nodecast.trainer.generators.data_driven import default_neighbors
+from nodecast.trainer.solvers import single_blas_thread
 from nodecast.trainer.streamed_fit import StreamedFit
 from nodecast.trainer.unit_blocks import DesignBuffer, UnitFold, ValidationSums, solutions_of
 
@@ -80,9 +81,10 @@ class SearchState:
         """True where a neighbour pass is needed (for any fold)."""
         ks = [layer.kwargs.get("n_neighbors") for layer in self.layers
               if layer.method == "data-driven"]
-        needed = [fit.finish_anchors(lambda q, fit=fit: [min(k or default_neighbors(q), fit.n_rows)
-                                                          for k in ks])
-                  for fit in self.fits.values()]
+        with single_blas_thread():  # as the in-memory units: the same bits on any machine
+            needed = [fit.finish_anchors(lambda q, fit=fit: [min(k or default_neighbors(q),
+                                                                 fit.n_rows) for k in ks])
+                      for fit in self.fits.values()]
         return any(needed)
 
     def take_neighbours(self, X, Y, ids, firsts) -> None:
@@ -94,6 +96,12 @@ class SearchState:
     def make_layers(self) -> None:
         """Each unit's hidden layer (no pass: from the anchors' neighbourhoods)."""
         self.unit_layers = {}
+        with single_blas_thread():
+            self._draw_layers()
+        self.fits = {f: _without_neighbours(fit) for f, fit in self.fits.items()}
+        self.norms = {f: _without_neighbours(fit) for f, fit in self.norms.items()}
+
+    def _draw_layers(self) -> None:
         for f, layer in self.units:
             if layer.method == "data-driven":
                 kwargs = layer.kwargs
@@ -101,8 +109,6 @@ class SearchState:
                     kwargs.get("n_neighbors"), float(kwargs.get("slope_scale", 1.0)))
             else:
                 self.unit_layers[(f, layer)] = self.free[(f, layer)].layer
-        self.fits = {f: _without_neighbours(fit) for f, fit in self.fits.items()}
-        self.norms = {f: _without_neighbours(fit) for f, fit in self.norms.items()}
 
     # passes 3 and 4 -----------------------------------------------------------------------------
     def new_folds(self, train_counts) -> dict:
