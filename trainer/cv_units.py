@@ -5,8 +5,9 @@ A unit draws the hidden layer of max(M) nodes once from the fold's training rows
 into one QR factor in a single pass, and scores every (ridge, M) pair on the fold's validation rows:
 the first M nodes are the M-node model, and every M comes from one factorisation per ridge value
 (:mod:`nodecast.trainer.prefix_solve`). The factor and the validation sums run over fixed row
-blocks (:mod:`nodecast.trainer.unit_blocks`), as in the streamed and cluster searches. With a target precision it also estimates each fold model's
-export error (the certified bound, coarsely refined) over the declared domain.
+blocks (:mod:`nodecast.trainer.unit_blocks`), as in the streamed and cluster searches. With a
+target precision it also estimates each fold model's export error (the certified bound, coarsely
+refined) over the declared domain.
 """
 
 from __future__ import annotations

@@ -16,10 +16,10 @@ class FoldStats:
     def __init__(self, folds: int, n_features: int, n_targets: int | None) -> None:
         self.folds = folds
         self.counts = np.zeros(folds, dtype=np.int64)
-        self.x_low, self.x_high = np.full((folds, n_features), np.inf), np.full((folds, n_features), -np.inf)
+        self.x_low, self.x_high = _empty_range((folds, n_features))
         self.y_low = self.y_high = None
         if n_targets is not None:
-            self.y_low, self.y_high = np.full((folds, n_targets), np.inf), np.full((folds, n_targets), -np.inf)
+            self.y_low, self.y_high = _empty_range((folds, n_targets))
 
     def update(self, X: np.ndarray, Y, ids: np.ndarray) -> None:
         """Rows X (r, n) with targets Y (r, t) (or labels, not measured) in folds ``ids`` (r,)."""
@@ -54,3 +54,8 @@ class FoldStats:
             return None, None
         return (np.delete(self.y_low, fold, axis=0).min(axis=0),
                 np.delete(self.y_high, fold, axis=0).max(axis=0))
+
+
+def _empty_range(shape):
+    """(low, high) before any row: +inf and -inf."""
+    return np.full(shape, np.inf), np.full(shape, -np.inf)
