@@ -18,7 +18,7 @@ pytest.importorskip("pandas")
 
 from nodecast.cli import main  # noqa: E402
 from nodecast.trainer import distributed, frames  # noqa: E402
-from tests.trainer.test_select_streaming import FEATURES, _data, _write_csv  # noqa: E402
+from tests.trainer.friedman_log import FEATURES, friedman_log, write_log  # noqa: E402
 
 REGRESSION = ["--target", "y", "--method", "data-driven,weight-sum", "--neighbors", "default,20",
               "--weight-sums", "2:10", "--ridge", "0,1e-6"]
@@ -28,7 +28,7 @@ CLASSIFICATION = ["--target", "grade", "--task", "classification", "--neighbors"
 
 @pytest.fixture(scope="module")
 def bench(tmp_path_factory):
-    return _write_csv(tmp_path_factory.mktemp("cluster-select") / "bench.csv", *_data(rows=1500))
+    return write_log(tmp_path_factory.mktemp("cluster-select") / "bench.csv", *friedman_log(rows=1500))
 
 
 @pytest.fixture
@@ -81,7 +81,7 @@ def test_precision_budget_and_parquet_on_partitions(bench, tmp_path, capsys, syn
     pa = pytest.importorskip("pyarrow")
     import pyarrow.parquet as pq
 
-    X, y, grade = _data(rows=1500)
+    X, y, grade = friedman_log(rows=1500)
     parquet = tmp_path / "bench.parquet"
     pq.write_table(pa.table({**{name: X[:, i] for i, name in enumerate(FEATURES)}, "y": y,
                              "grade": grade.tolist()}), parquet, row_group_size=250)
@@ -95,8 +95,8 @@ def test_precision_budget_and_parquet_on_partitions(bench, tmp_path, capsys, syn
 
 
 def test_a_bad_cell_read_on_the_cluster_is_one_line(tmp_path, capsys, synchronous):
-    X, y, grade = _data(rows=300)
-    path = _write_csv(tmp_path / "bench.csv", X, y, grade)
+    X, y, grade = friedman_log(rows=300)
+    path = write_log(tmp_path / "bench.csv", X, y, grade)
     lines = path.read_text(encoding="utf-8").splitlines()
     lines[200] = "0.5,0.5,0.5,0.5,n/a,1.0,low"
     path.write_text("\n".join(lines) + "\n", encoding="utf-8")

@@ -21,33 +21,15 @@ from nodecast.trainer.selection_run import run_selection
 from nodecast.trainer.selection_stream import StreamedSelection, select_streaming
 from nodecast.trainer.sources import CsvSource, MemorySource
 from nodecast.trainer.training import TrainingJob
+from tests.trainer.friedman_log import FEATURES, friedman_log, write_log
 
 CHUNK = 150
-FEATURES = ("a", "b", "c", "d", "e")
 SEED = 3
-
-
-def _data(rows=8 * CHUNK):
-    from sklearn.datasets import make_friedman1  # Friedman (1991) benchmark, shipped by sklearn
-
-    X, y = make_friedman1(n_samples=rows, n_features=5, noise=0.5, random_state=1)
-    X[:, 4] = np.round(4 * X[:, 4])  # a coarse reading: ties in the neighbour search
-    X[rows // 2: rows // 2 + 30] = X[0]  # thirty copies of row 0 (one fold must hold them all)
-    grade = np.where(y > np.median(y), "high", "low")
-    return X, y, grade
-
-
-def _write_csv(path, X, y, grade):
-    lines = [",".join(FEATURES) + ",y,grade"]
-    lines += [",".join(map(repr, row)) + f",{t!r},{g}"
-              for row, t, g in zip(X.tolist(), y.tolist(), grade, strict=True)]
-    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
-    return path
 
 
 @pytest.fixture(scope="module")
 def friedman_csv(tmp_path_factory):
-    return _write_csv(tmp_path_factory.mktemp("select") / "bench.csv", *_data())
+    return write_log(tmp_path_factory.mktemp("select") / "bench.csv", *friedman_log(8 * CHUNK))
 
 
 def _select(args, out, capsys):
@@ -61,7 +43,7 @@ def _parquet(csv_path, tmp_path):
     pa = pytest.importorskip("pyarrow")
     import pyarrow.parquet as pq
 
-    X, y, grade = _data()
+    X, y, grade = friedman_log(8 * CHUNK)
     table = pa.table({**{name: X[:, i] for i, name in enumerate(FEATURES)}, "y": y,
                       "grade": grade.tolist()})
     path = tmp_path / "bench.parquet"
@@ -99,7 +81,7 @@ def test_streamed_fold_scores_are_those_of_fold_models_fitted_from_scratch(fried
     grid = make_grid([10, 30], [1e-6], layer_grid(["data-driven"], {"n_neighbors": [20]}))
     result, _ = select_streaming(CsvSource(friedman_csv, CHUNK), job, grid,
                                  SearchSettings(folds=4, seed=SEED))
-    X, y, _ = _data()
+    X, y, _ = friedman_log(8 * CHUNK)
     for fold, (train, valid) in enumerate(fold_indices(X, 4, SEED)):
         model = RandomNodeRegressor(n_nodes=30, n_neighbors=20, slope_scale=1.0, ridge=1e-6,
                                     random_state=SEED).fit(X[train], y[train])
@@ -114,7 +96,7 @@ def test_folds_do_not_depend_on_the_chunks(friedman_csv, chunk):
     source = MemorySource(read_table(friedman_csv)) if chunk is None else CsvSource(friedman_csv, chunk)
     run = StreamedSelection(source, job, folds=4)
     run._count()
-    X, _, _ = _data()
+    X, _, _ = friedman_log(8 * CHUNK)
     ids = row_folds(X, 4, SEED)
     assert np.array_equal(run.fold_stats.counts, np.bincount(ids, minlength=4))
     for fold in range(4):
@@ -157,9 +139,9 @@ def test_the_in_memory_search_and_run_selection_agree_with_the_streamed_api(frie
     (["--folds", "40"], "fewer --folds"),
 ])
 def test_what_streamed_select_refuses_is_one_line_and_exit_2(tmp_path, capsys, extra, words):
-    X, y, grade = _data(rows=60)
+    X, y, grade = friedman_log(rows=60)
     X[:, :4] = np.round(X[:, :4])  # few distinct rows: 40 folds leave one empty
-    path = _write_csv(tmp_path / "small.csv", X, y, grade)
+    path = write_log(tmp_path / "small.csv", X, y, grade)
     with pytest.raises(SystemExit) as stop:
         main(["select", str(path), "--target", "y", "--features", ",".join(FEATURES),
               "--chunk-rows", "16", "--nodes", "5", "--folds", "3", *extra, "-o", str(tmp_path / "m.ncast")])
@@ -169,8 +151,8 @@ def test_what_streamed_select_refuses_is_one_line_and_exit_2(tmp_path, capsys, e
 
 
 def test_a_bad_cell_in_a_late_chunk_names_its_line_and_writes_nothing(tmp_path, capsys):
-    X, y, grade = _data()
-    path = _write_csv(tmp_path / "bench.csv", X, y, grade)
+    X, y, grade = friedman_log(8 * CHUNK)
+    path = write_log(tmp_path / "bench.csv", X, y, grade)
     lines = path.read_text(encoding="utf-8").splitlines()
     lines[1000] = "0.5,0.5,0.5,0.5,n/a,1.0,low"
     path.write_text("\n".join(lines) + "\n", encoding="utf-8")
