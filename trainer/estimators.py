@@ -112,7 +112,8 @@ class _RandomNodeBase(BaseEstimator):
         self._check_params()
         if X.shape[0] < 2:
             raise ValueError(f"need at least 2 samples to fit, got n_samples = {X.shape[0]}")
-        check_fits_in_memory(X.shape[0], X.shape[1], int(self.n_nodes), Y.shape[1])
+        check_fits_in_memory(X.shape[0], X.shape[1], int(self.n_nodes), Y.shape[1],
+                             float(self.check_fraction))
         rng = check_random_state(self.random_state)
         activation = get_activation(self.activation)
         self.domain_low_, self.domain_high_ = self._input_box(X)
