@@ -132,7 +132,8 @@ class _RandomNodeBase(BaseEstimator):
         self.training_z_low_, self.training_z_high_ = ranges.low, ranges.high
         if self.ridge == "auto":
             self.ridge_, self.ridge_choice_ = ridge_choice.choose(
-                factor, self._float32_error(factor), check)
+                factor, self._float32_error(factor, self.hidden_weights_, self.hidden_biases_),
+                check)
         else:
             self.ridge_, self.ridge_choice_ = float(self.ridge), {"rule": "given"}
         self.coef_, self.intercept_ = solvers.solve(factor, self.ridge_)
@@ -165,22 +166,34 @@ class _RandomNodeBase(BaseEstimator):
             return fitted
         varying = int(np.sum(np.ptp(U, axis=0) > 0))
         fitted, _, s, self.layer_choice_ = layer_choice.choose(
-            fit_layer, self.n_neighbors, self.slope_scale, self.ridge, varying, U.shape[0])
+            fit_layer, self.n_neighbors, self.slope_scale, self._candidate_score, varying, U.shape[0])
         self.slope_scale_ = float(s)
         return fitted
 
-    def _float32_error(self, factor):
+    def _candidate_score(self, fitted) -> float:
+        """A (k, s) candidate's score for :mod:`nodecast.trainer.layer_choice`: the GCV estimate
+        (normalised RMSE per output) at the ridge this fit would use with that candidate's
+        ``fitted`` = (layer, factor, ranges, check): the given ridge, or the automatic rule's."""
+        layer, factor, _, check = fitted
+        if self.ridge != "auto":
+            return layer_choice.gcv_rmse(factor, self.ridge)
+        errors = self._float32_error(factor, layer.weights, layer.biases)
+        _, record = ridge_choice.choose(factor, errors, check)
+        return record["gcv_rmse_normalised"]
+
+    def _float32_error(self, factor, weights, biases):
         """callable(ridge) -> certified float32 export error of the default C artifact (normalised
-        units) of that solution, from a coarse refinement (certified, a little looser)."""
+        units) of that solution with these hidden weights and biases, from a coarse refinement
+        (certified, a little looser)."""
         from nodecast.compiler.bounds.certificate import screening_bound
         from nodecast.compiler.ir import Network
 
-        n, t = self.hidden_weights_.shape[1], factor.qty.shape[1]
+        n, t = weights.shape[1], factor.qty.shape[1]
 
         def error(ridge: float) -> float:
             beta, bias = solvers.solve(factor, ridge)
             net = Network(
-                hidden_weights=self.hidden_weights_, hidden_biases=self.hidden_biases_,
+                hidden_weights=weights, hidden_biases=biases,
                 activation=self.activation, output_weights=beta, output_bias=bias,
                 input_offset=self.input_offset_, input_scale=self.input_scale_,
                 output_offset=np.zeros(t), output_scale=np.ones(t), domain_low=self.domain_low_,

@@ -224,7 +224,7 @@ class StreamedFit:
         else:
             q = 0 if self.varying is None else self.varying.size
             (layer, factor, ranges, check), _, s, est.layer_choice_ = layer_choice.choose(
-                fit_layer, est.n_neighbors, est.slope_scale, est.ridge, q, self.n_rows)
+                fit_layer, est.n_neighbors, est.slope_scale, est._candidate_score, q, self.n_rows)
             est.slope_scale_ = float(s)
         est.hidden_weights_, est.hidden_biases_ = layer.weights, layer.biases
         est.diagnostics_ = {**layer.diagnostics,
