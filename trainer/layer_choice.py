@@ -22,6 +22,7 @@ of the leave-one-out error that needs no refits:
 from __future__ import annotations
 
 from collections.abc import Callable
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -30,6 +31,19 @@ from nodecast.trainer.generators.data_driven import default_neighbors
 
 NEIGHBOR_FACTORS = (1, 2, 4, 8, 16)
 SLOPE_SCALES = (0.5, 1.0, 2.0)
+
+
+@dataclass(frozen=True, eq=False)
+class LayerFit:
+    """One hidden layer read into the output layer's factor: the layer, the factor of [1, H], each
+    node's pre-activation range, the held-out check's data (None: no check) and, where the ridge is
+    automatic, the rule's (ridge, record) for this factor (None where the ridge is given)."""
+
+    layer: object
+    factor: object
+    ranges: object
+    check: object
+    ridge_rule: tuple | None = None
 
 
 def gcv_rmse(factor, ridge: float) -> float:
@@ -47,10 +61,10 @@ def choose(fit_layer: Callable, n_neighbors, slope_scale, rate: Callable, n_vary
            n_rows: int):
     """The best (k, s) candidate's fit, and a record of the search for the bundle's metadata.
 
-    fit_layer(n_neighbors, slope_scale) -> (layer, factor, ...), one draw and one pass over the
+    fit_layer(n_neighbors, slope_scale) -> a :class:`LayerFit`, one draw and one pass over the
     rows; rate(that fit) -> the candidate's normalised RMSE estimate (lower is better);
     ``n_neighbors``/``slope_scale`` "auto" are searched, other values used as given.
-    Returns ((layer, factor, extra), k, s, record).
+    Returns (the best LayerFit, k, s, record).
     """
     tried: dict[tuple, float] = {}
     best: list = []  # [rank key, (k, s), fitted]: only the best fit is kept, to bound memory
