@@ -1,7 +1,7 @@
 """Long steps: progress with time left on stderr, and a prompt stop on Ctrl-C.
 
-:class:`Progress` prints the current stage, the time spent and an estimate of the time left, once a
-stage has run (or is expected to run) longer than ``QUIET_SECONDS``: on a terminal one line
+:class:`Progress` prints the current stage, the time spent and an estimate of the time left, once the
+command has run (or a stage is expected to run) longer than ``QUIET_SECONDS``: on a terminal one line
 rewritten every second, elsewhere (CI logs) a line every ``LOG_INTERVAL`` seconds. Estimates are
 estimates: when a stage outlives its estimate the line says so instead of counting below zero.
 
@@ -38,6 +38,7 @@ class Progress:
         self.tty = bool(getattr(self.stream, "isatty", lambda: False)())
         self.interval = interval or (1.0 if self.tty else LOG_INTERVAL)
         self.text, self.estimate, self.started = "", None, time.monotonic()
+        self.began = self.started  # the command's start
         self._stop, self._lock, self._shown = threading.Event(), threading.Lock(), False
         self._thread = threading.Thread(target=self._tick, daemon=True)
 
@@ -64,6 +65,24 @@ class Progress:
             self.text, self.estimate = text, estimate
             self.started = time.monotonic() if since is None else since
 
+    def passes(self, clock=time.monotonic):
+        """A :class:`~nodecast.trainer.progress.PassProgress` for the streamed and cluster passes:
+        each pass shows as a stage with its rows done, their rate and the time left at that rate."""
+        from nodecast.trainer.progress import PassProgress
+
+        return PassProgress(self.rows, clock)
+
+    def rows(self, what: str, done: int, total: int | None, started: float) -> None:
+        """Show a pass over the rows, started at ``started`` (time.monotonic), ``done`` rows of
+        ``total`` (None: not known) read so far."""
+        spent = time.monotonic() - started
+        text = f"{what}: {done:,} rows" + (f" of {total:,}" if total else "")
+        if done and spent > 0:
+            text += f", {done / spent:,.0f} rows/s"
+            if total:  # at the rate so far (the estimate of a stage would be stale by the redraw)
+                text += f", about {format_seconds((total - done) * spent / done)} left"
+        self.stage(text, since=started)
+
     def line(self) -> str:
         with self._lock:
             elapsed, estimate, text = time.monotonic() - self.started, self.estimate, self.text
@@ -75,9 +94,9 @@ class Progress:
 
     def _due(self) -> bool:
         with self._lock:
-            elapsed = time.monotonic() - self.started
-            expected = self.estimate or 0.0
-        return elapsed >= QUIET_SECONDS or (expected >= QUIET_SECONDS and elapsed >= 0.5)
+            now = time.monotonic()
+            elapsed, expected = now - self.started, self.estimate or 0.0
+        return now - self.began >= QUIET_SECONDS or (expected >= QUIET_SECONDS and elapsed >= 0.5)
 
     def _tick(self) -> None:
         while not self._stop.wait(min(self.interval, 0.5) if not self._shown else self.interval):

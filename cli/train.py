@@ -113,19 +113,18 @@ def train(data, target, features, domain, units, categorical, method, nodes, nei
 
 def _train_scaled(data, source, job, chunk_rows, cluster):
     """The bundle of ``train`` streamed from disk (``source``) or on a Dask cluster (docs/scale.md)."""
-    import sys
+    from nodecast.cli.progress import Progress
 
-    from nodecast.trainer.progress import Progress
+    with Progress("train") as progress:
+        progress.start()
+        if cluster:
+            from nodecast.trainer.cluster_training import train_on_cluster
 
-    progress = Progress(sys.stderr if sys.stderr.isatty() else None)
-    if cluster:
-        from nodecast.trainer.cluster_training import train_on_cluster
+            return train_on_cluster(data, job, cluster, chunk_rows, progress.passes())
+        from nodecast.trainer.streaming import train_streaming
 
-        return train_on_cluster(data, job, cluster, chunk_rows, progress)
-    from nodecast.trainer.streaming import train_streaming
-
-    try:
-        check_units(job.units, source, job)
-        return train_streaming(source, job, progress)
-    finally:
-        source.close()  # the spilled copy goes now, not when the garbage collector finds it
+        try:
+            check_units(job.units, source, job)
+            return train_streaming(source, job, progress.passes())
+        finally:
+            source.close()  # the spilled copy goes now, not when the garbage collector finds it

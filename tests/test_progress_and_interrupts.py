@@ -63,6 +63,20 @@ def test_progress_line_counts_time_left_and_admits_an_overrun():
     assert progress.line() == "train: drawing probes, 0:00 elapsed"
 
 
+def test_a_pass_over_the_rows_shows_rows_rate_and_time_left():
+    # the streamed and cluster passes report through the same line as every other stage
+    progress = Progress("train", stream=io.StringIO())
+    began = time.monotonic() - 2.0
+    meter = progress.passes(clock=lambda: began)
+    meter.start("factor", 1000)
+    meter.advance(250)
+    assert progress.line() == "train: factor: 250 rows of 1,000, 125 rows/s, about 0:06 left, 0:02 elapsed"
+    meter.start("counting", None)
+    meter.advance(40)
+    assert progress.line().startswith("train: counting: 40 rows, ")
+    assert progress.line().endswith(" rows/s, 0:02 elapsed")  # no total: no time left
+
+
 @pytest.mark.slow
 def test_progress_is_printed_for_a_step_expected_to_be_long():
     stream = io.StringIO()

@@ -32,7 +32,7 @@ class ClusterRows:
 
     def compute(self, tasks, what: str | None = None):
         """Results of ``tasks`` in order; with ``what`` (one task per partition), the pass's
-        progress is shown where there is a terminal and a distributed client."""
+        progress is reported where there is a reader and a distributed client."""
         import dask
 
         client = self._client() if what and self.lengths is not None else None
@@ -45,7 +45,6 @@ class ClusterRows:
         self.progress.start(what, sum(self.lengths))
         for future in as_completed(futures):
             self.progress.advance(self.lengths[index[future.key]])
-        self.progress.done()
         return client.gather(futures)
 
     def reduce(self, tasks, combine, what: str):
@@ -67,14 +66,13 @@ class ClusterRows:
         self.progress.start(what, sum(self.lengths))
         for future in as_completed(level):
             self.progress.advance(self.lengths[index[future.key]])
-        self.progress.done()
         while len(level) > 1:
             pairs = [client.submit(combine, a, b) for a, b in zip(level[::2], level[1::2], strict=False)]
             level = pairs + ([level[-1]] if len(level) % 2 else [])
         return level[0].result()
 
     def _client(self):
-        if self.progress is None or self.progress.stream is None:
+        if self.progress is None or self.progress.report is None:
             return None
         try:
             from dask.distributed import get_client

@@ -16,6 +16,7 @@ from sklearn.utils.validation import check_is_fitted, validate_data
 
 from nodecast.compiler.activations import get_activation
 from nodecast.trainer import layer_choice, ridge_choice, solvers
+from nodecast.trainer.layer_choice import LayerFit
 from nodecast.trainer.check_fold import fold_blocks
 from nodecast.trainer.generators import GENERATORS
 from nodecast.trainer.generators.slope_angle import DEFAULT_ANGLES
@@ -112,7 +113,8 @@ class _RandomNodeBase(BaseEstimator):
         self._check_params()
         if X.shape[0] < 2:
             raise ValueError(f"need at least 2 samples to fit, got n_samples = {X.shape[0]}")
-        check_fits_in_memory(X.shape[0], X.shape[1], int(self.n_nodes), Y.shape[1])
+        check_fits_in_memory(X.shape[0], X.shape[1], int(self.n_nodes), Y.shape[1],
+                             float(self.check_fraction))
         rng = check_random_state(self.random_state)
         activation = get_activation(self.activation)
         self.domain_low_, self.domain_high_ = self._input_box(X)
@@ -120,27 +122,35 @@ class _RandomNodeBase(BaseEstimator):
         self.output_offset_, self.output_scale_ = self._target_scaling(Y)
         U = (X - self.input_offset_) / self.input_scale_
         T = (Y - self.output_offset_) / self.output_scale_
-        layer, factor, ranges, check = self._draw_and_factor(U, T, rng, activation)
-        self.hidden_weights_, self.hidden_biases_ = layer.weights, layer.biases
-        self.diagnostics_ = {**layer.diagnostics, **self._data_diagnostics(X)}
-        self._solve_output(factor, ranges, check)
+        fit = self._draw_and_factor(U, T, rng, activation)
+        self.diagnostics_ = {**fit.layer.diagnostics, **self._data_diagnostics(X)}
+        self._solve_output(fit)
 
-    def _solve_output(self, factor, ranges: PreactivationRange, check=None) -> None:
-        """The ridge and the output layer from the factor of [1, H] (however it was accumulated)
-        and the held-out check's data (None: no check)."""
-        self.training_z_low_, self.training_z_high_ = ranges.low, ranges.high
-        if self.ridge == "auto":
-            self.ridge_, self.ridge_choice_ = ridge_choice.choose(
-                factor, self._float32_error(factor), check)
+    def _solve_output(self, fit: LayerFit) -> None:
+        """The hidden layer, the ridge and the output layer of ``fit`` (its factor of [1, H],
+        however it was accumulated, and the held-out check's data)."""
+        self.hidden_weights_, self.hidden_biases_ = fit.layer.weights, fit.layer.biases
+        self.training_z_low_, self.training_z_high_ = fit.ranges.low, fit.ranges.high
+        if fit.ridge_rule is not None:
+            self.ridge_, self.ridge_choice_ = fit.ridge_rule
         else:
             self.ridge_, self.ridge_choice_ = float(self.ridge), {"rule": "given"}
-        self.coef_, self.intercept_ = solvers.solve(factor, self.ridge_)
-        self.heldout_figures_ = None if check is None else ridge_choice.heldout_figures(
-            check, self.ridge_, self.output_scale_, hasattr(self, "classes_"))
+        self.coef_, self.intercept_ = solvers.solve(fit.factor, self.ridge_)
+        self.heldout_figures_ = None if fit.check is None else ridge_choice.heldout_figures(
+            fit.check, self.ridge_, self.output_scale_, hasattr(self, "classes_"))
+
+    def _layer_fit(self, layer, factor, ranges, check) -> LayerFit:
+        """The layer's :class:`LayerFit`, with the automatic ridge's rule applied to its factor
+        (the rule's export-error guard needs the layer, so it runs here, once per layer)."""
+        rule = None
+        if self.ridge == "auto":
+            errors = self._float32_error(factor, layer.weights, layer.biases)
+            rule = ridge_choice.choose(factor, errors, check)
+        return LayerFit(layer, factor, ranges, check, rule)
 
     def _draw_and_factor(self, U, T, rng, activation):
-        """The hidden layer, the output layer's factor and the pre-activation ranges; data-driven
-        k and s given as "auto" are chosen by :mod:`nodecast.trainer.layer_choice`."""
+        """The :class:`LayerFit` of the hidden layer; data-driven k and s given as "auto" are
+        chosen by :mod:`nodecast.trainer.layer_choice`."""
         state = rng.get_state()
 
         def fit_layer(n_neighbors, slope_scale):
@@ -154,7 +164,7 @@ class _RandomNodeBase(BaseEstimator):
             checked = ridge_choice.check_rows(U, rng, float(self.check_fraction))
             with solvers.single_blas_thread():  # threaded products round differently: one
                 # thread, the same bundle whatever the machine (docs/reliability.md)
-                return (layer,) + self._accumulate(layer, U, T, activation, checked)
+                return self._layer_fit(layer, *self._accumulate(layer, U, T, activation, checked))
 
         auto = self.method == "data-driven" and "auto" in (self.n_neighbors, self.slope_scale)
         if not auto:
@@ -164,22 +174,31 @@ class _RandomNodeBase(BaseEstimator):
             return fitted
         varying = int(np.sum(np.ptp(U, axis=0) > 0))
         fitted, _, s, self.layer_choice_ = layer_choice.choose(
-            fit_layer, self.n_neighbors, self.slope_scale, self.ridge, varying, U.shape[0])
+            fit_layer, self.n_neighbors, self.slope_scale, self._candidate_score, varying, U.shape[0])
         self.slope_scale_ = float(s)
         return fitted
 
-    def _float32_error(self, factor):
+    def _candidate_score(self, fit: LayerFit) -> float:
+        """A (k, s) candidate's score for :mod:`nodecast.trainer.layer_choice`: the GCV estimate
+        (normalised RMSE per output) at the ridge this fit would ship with: the automatic rule's,
+        or the given one."""
+        if fit.ridge_rule is not None:
+            return fit.ridge_rule[1]["gcv_rmse_normalised"]
+        return layer_choice.gcv_rmse(fit.factor, self.ridge)
+
+    def _float32_error(self, factor, weights, biases):
         """callable(ridge) -> certified float32 export error of the default C artifact (normalised
-        units) of that solution, from a coarse refinement (certified, a little looser)."""
+        units) of that solution with these hidden weights and biases, from a coarse refinement
+        (certified, a little looser)."""
         from nodecast.compiler.bounds.certificate import screening_bound
         from nodecast.compiler.ir import Network
 
-        n, t = self.hidden_weights_.shape[1], factor.qty.shape[1]
+        n, t = weights.shape[1], factor.qty.shape[1]
 
         def error(ridge: float) -> float:
             beta, bias = solvers.solve(factor, ridge)
             net = Network(
-                hidden_weights=self.hidden_weights_, hidden_biases=self.hidden_biases_,
+                hidden_weights=weights, hidden_biases=biases,
                 activation=self.activation, output_weights=beta, output_bias=bias,
                 input_offset=self.input_offset_, input_scale=self.input_scale_,
                 output_offset=np.zeros(t), output_scale=np.ones(t), domain_low=self.domain_low_,

@@ -10,7 +10,8 @@ from nodecast.trainer.ridge_choice import CHECK_FRACTION, CHECK_ROWS
 _FLOAT = 8  # bytes of a float64
 
 
-def fit_memory_bytes(n_rows: int, n_features: int, n_nodes: int, n_outputs: int) -> int:
+def fit_memory_bytes(n_rows: int, n_features: int, n_nodes: int, n_outputs: int,
+                     check_fraction: float = CHECK_FRACTION) -> int:
     """Peak bytes of one fit, beyond the caller's own copy of the data.
 
     Counted: the normalised inputs and targets and the neighbour search's copy of the inputs
@@ -18,11 +19,12 @@ def fit_memory_bytes(n_rows: int, n_features: int, n_nodes: int, n_outputs: int)
     matrix of a Householder step (r + M + 1 rows of M + 1 + t), about eight (M + 1)^2 matrices of
     the factor, its update, the held-out check's factor and the final solve, the copy of the
     inputs hashed to find the check rows (N n), and three arrays of the check rows' hidden outputs
-    (c (M + 1), c = min(N / 5, 20,000) rows; see :mod:`nodecast.trainer.ridge_choice`).
+    (c (M + 1), c = min(f N, 20,000) rows for the check fraction f; see
+    :mod:`nodecast.trainer.ridge_choice`).
     """
     p = n_nodes + 1
     rows = min(block_rows(n_nodes), max(n_rows, 1))
-    check = min(int(CHECK_FRACTION * n_rows), CHECK_ROWS)
+    check = min(int(check_fraction * n_rows), CHECK_ROWS)
     data = 4 * n_rows * n_features + n_rows * n_outputs
     blocks = 2 * rows * p + (rows + p) * (p + n_outputs) + 3 * check * p
     return _FLOAT * (data + blocks + 8 * p * p)
@@ -37,9 +39,11 @@ def available_memory_bytes() -> int | None:
     return pages * size if pages > 0 and size > 0 else None
 
 
-def check_fits_in_memory(n_rows: int, n_features: int, n_nodes: int, n_outputs: int) -> None:
+def check_fits_in_memory(n_rows: int, n_features: int, n_nodes: int, n_outputs: int,
+                         check_fraction: float = CHECK_FRACTION) -> None:
     """Raise ValueError, with the estimate, when a fit would not fit into the available memory."""
-    need, have = fit_memory_bytes(n_rows, n_features, n_nodes, n_outputs), available_memory_bytes()
+    need = fit_memory_bytes(n_rows, n_features, n_nodes, n_outputs, check_fraction)
+    have = available_memory_bytes()
     if have is not None and need > have:
         raise ValueError(f"{n_nodes} nodes need about {need / 2**30:.3g} GiB of memory to fit "
                          f"{n_rows} rows, more than the {have / 2**30:.3g} GiB available; "

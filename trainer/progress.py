@@ -1,51 +1,33 @@
-"""Progress of long passes on a terminal: rows done, rate and, where the total is known, time left.
+"""How far a pass over the rows has come, handed to whoever shows it.
 
-Writes one self-overwriting line to a text stream (stderr of a terminal); does nothing when given
-no stream, so that logs and pipes stay clean.
+The streamed and cluster passes count the rows they have read; each count goes to
+``report(what, rows, total, started)`` (``total`` None where unknown, ``started`` the pass's start
+on ``time.monotonic``'s clock). The command line renders it (:meth:`nodecast.cli.progress.Progress.passes`):
+the library itself never writes to a terminal.
 """
 
 from __future__ import annotations
 
 import time
+from collections.abc import Callable
 
-_EVERY = 0.5  # seconds between redraws
 
+class PassProgress:
+    """Rows done in the current pass; no ``report``: nothing is reported."""
 
-class Progress:
-    def __init__(self, stream, clock=time.monotonic) -> None:
-        self.stream, self.clock = stream, clock
-        self.what, self.total, self.rows, self.shown = "", None, 0, False
+    def __init__(self, report: Callable | None = None, clock: Callable[[], float] = time.monotonic):
+        self.report, self.clock = report, clock
+        self.what, self.total, self.rows, self.started = "", None, 0, 0.0
 
     def start(self, what: str, total: int | None) -> None:
-        self.done()
-        self.what, self.total, self.rows = what, total, 0
-        self.began = self.last = self.clock()
+        """A new pass over ``total`` rows (None: not known yet)."""
+        self.what, self.total, self.rows, self.started = what, total, 0, self.clock()
+        self._send()
 
     def advance(self, rows: int) -> None:
         self.rows += rows
-        now = self.clock()
-        if self.stream is not None and now - self.last >= _EVERY:
-            self.last = now
-            self._draw(now)
+        self._send()
 
-    def line(self, now: float) -> str:
-        rate = self.rows / max(now - self.began, 1e-9)
-        text = f"{self.what}: {self.rows:,} rows"
-        if self.total:
-            text += f" of {self.total:,}"
-        text += f", {rate:,.0f} rows/s"
-        if self.total and rate > 0 and self.rows < self.total:
-            text += f", {(self.total - self.rows) / rate:,.0f} s left"
-        return text
-
-    def _draw(self, now: float) -> None:
-        self.stream.write("\r" + self.line(now) + "\x1b[K")
-        self.stream.flush()
-        self.shown = True
-
-    def done(self) -> None:
-        if self.shown:
-            self._draw(self.clock())
-            self.stream.write("\n")
-            self.stream.flush()
-            self.shown = False
+    def _send(self) -> None:
+        if self.report is not None:
+            self.report(self.what, self.rows, self.total, self.started)

@@ -110,9 +110,10 @@ def _cholesky_update(R, qty, design, Y, scratch):
     """
     np.copyto(scratch, design)
     W_T = blas.dtrsm(1.0, R, scratch.T, side=0, lower=0, trans_a=1, overwrite_b=1)
-    gram = blas.dsyrk(1.0, W_T)  # upper triangle of W^T W
-    gram += np.triu(gram, 1).T
-    bound = np.max(np.sum(np.abs(gram), axis=1))  # Gershgorin: ||W||_2^2 <= bound
+    gram = blas.dsyrk(1.0, W_T)  # upper triangle of W^T W, zeros below: all LAPACK reads here
+    magnitudes = np.abs(gram)  # Gershgorin: ||W||_2^2 <= the largest absolute row sum of W^T W,
+    # row i of the symmetric matrix being row i of the upper triangle and column i above it
+    bound = np.max(magnitudes.sum(axis=1) + magnitudes.sum(axis=0) - np.diagonal(magnitudes))
     if not bound <= UPDATE_LIMIT and not _below_limit(gram):  # also refuses NaN from a singular R
         return None
     gram[np.diag_indices_from(gram)] += 1.0
@@ -126,9 +127,9 @@ def _cholesky_update(R, qty, design, Y, scratch):
 
 
 def _below_limit(gram) -> bool:
-    """Whether ||W||_2^2 = the largest eigenvalue of gram = W^T W is below ``UPDATE_LIMIT``, where
-    Gershgorin's bound could not tell: exactly when UPDATE_LIMIT I - W^T W is positive definite,
-    which its Cholesky factorisation decides (a backward-stable test: it succeeds only for a
+    """Whether ||W||_2^2 = the largest eigenvalue of W^T W (gram: its upper triangle) is below
+    ``UPDATE_LIMIT``, where Gershgorin's bound could not tell: exactly when UPDATE_LIMIT I - W^T W
+    is positive definite, which its Cholesky factorisation decides (a backward-stable test: it succeeds only for a
     matrix within rounding of a positive definite one). One M^3 / 3 step, against the Householder
     QR of M + rows rows that a refusal costs (measured at M = 2000: Gershgorin refused blocks of
     3,200 rows whose ||W||^2 was below the limit)."""

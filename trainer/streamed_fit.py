@@ -236,24 +236,23 @@ class StreamedFit:
 
         def fit_layer(n_neighbors, slope_scale):
             layer = self.layer_for(n_neighbors, slope_scale)
-            return (layer,) + tuple(factor_pass(layer))
+            return est._layer_fit(layer, *factor_pass(layer))
 
         auto = est.method == "data-driven" and "auto" in (est.n_neighbors, est.slope_scale)
         if not auto:
             scale = 1.0 if est.slope_scale == "auto" else est.slope_scale
-            layer, factor, ranges, check = fit_layer(est.n_neighbors, scale)
+            fit = fit_layer(est.n_neighbors, scale)
             est.layer_choice_ = {"rule": "given"}
             est.slope_scale_ = None if est.method != "data-driven" else float(est.slope_scale)
         else:
             q = 0 if self.varying is None else self.varying.size
-            (layer, factor, ranges, check), _, s, est.layer_choice_ = layer_choice.choose(
-                fit_layer, est.n_neighbors, est.slope_scale, est.ridge, q, self.n_rows)
+            fit, _, s, est.layer_choice_ = layer_choice.choose(
+                fit_layer, est.n_neighbors, est.slope_scale, est._candidate_score, q, self.n_rows)
             est.slope_scale_ = float(s)
-        est.hidden_weights_, est.hidden_biases_ = layer.weights, layer.biases
-        est.diagnostics_ = {**layer.diagnostics,
+        est.diagnostics_ = {**fit.layer.diagnostics,
                             "constant_features": int(np.sum(est.domain_high_ == est.domain_low_)),
                             "rows_outside_domain": self.outside}
-        est._solve_output(factor, ranges, check)
+        est._solve_output(fit)
 
     def fit_chunks(self, chunks: Callable) -> None:
         """Pass 3 for rows read locally: ``chunks()`` yields (X, Y) pieces of all the fit's rows in

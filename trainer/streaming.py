@@ -15,7 +15,7 @@ from nodecast.compiler.bundle import Bundle
 from nodecast.compiler.errors import NodecastError
 from nodecast.trainer.hidden import block_bounds
 from nodecast.trainer.metrics import MetricSums
-from nodecast.trainer.progress import Progress
+from nodecast.trainer.progress import PassProgress
 from nodecast.trainer.row_hash import held_out
 from nodecast.trainer.row_stats import RowStats, check_finite_from
 from nodecast.trainer.streamed_fit import StreamedFit, reblock
@@ -25,8 +25,8 @@ from nodecast.trainer.training import TrainingJob, feature_columns, heavy_tailed
 class StreamedTraining:
     """One ``train`` run over a :class:`~nodecast.trainer.sources.TableSource`."""
 
-    def __init__(self, source, job: TrainingJob, progress: Progress | None = None) -> None:
-        self.source, self.job, self.progress = source, job, progress or Progress(None)
+    def __init__(self, source, job: TrainingJob, progress: PassProgress | None = None) -> None:
+        self.source, self.job, self.progress = source, job, progress or PassProgress()
         self.features = feature_columns(source.header, job)
         self.classify = job.task == "classification"
         if job.categorical:
@@ -55,7 +55,6 @@ class StreamedTraining:
             yield local, X, Y
             local += X.shape[0]
             self.progress.advance(len(chunk.numbers))
-        self.progress.done()
 
     def run(self) -> Bundle:
         self._count()
@@ -138,7 +137,7 @@ class StreamedTraining:
                                     "in every row; there is nothing to learn")
 
 
-def train_streaming(source, job: TrainingJob, progress: Progress | None = None) -> Bundle:
+def train_streaming(source, job: TrainingJob, progress: PassProgress | None = None) -> Bundle:
     """:func:`nodecast.trainer.training.train` over a chunked source; ValueError from the fit
     becomes a one-line error."""
     run = StreamedTraining(source, job, progress)

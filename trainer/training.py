@@ -204,7 +204,8 @@ def _check_memory(job: TrainingJob, X: np.ndarray, y: np.ndarray) -> None:
 
     outputs = len(set(y)) if job.task == "classification" else y.shape[1]
     try:
-        check_fits_in_memory(X.shape[0], X.shape[1], int(job.params.get("n_nodes", 200)), outputs)
+        check_fits_in_memory(X.shape[0], X.shape[1], int(job.params.get("n_nodes", 200)), outputs,
+                             job.validation_fraction)
     except ValueError as exc:
         raise NodecastError(f"cannot train: {exc}") from None
 

@@ -141,8 +141,7 @@ def per_partition(rows: int, nodes: int) -> dict:
     passes.combine(left, right)
     times["tsqr_combine"] = time.process_time() - start
     est = fit.estimator
-    est.hidden_weights_, est.hidden_biases_ = layer.weights, layer.biases
-    est._solve_output(left[0], left[3])
+    est._solve_output(est._layer_fit(layer, left[0], left[3], None))
     start = time.process_time()
     passes.figures((X, Y), est, "regression", which)
     times["figures"] = time.process_time() - start

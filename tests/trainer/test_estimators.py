@@ -169,3 +169,17 @@ def test_more_nodes_than_memory_allows_are_refused_with_the_estimate(monkeypatch
         RandomNodeRegressor(n_nodes=5000).fit(X, X[:, 0])
     # 5001^2 float64 matrices alone are 200 MB each: the estimate counts six of them
     assert memory.fit_memory_bytes(100, 2, 5000, 1) > 6 * 8 * 5001**2
+
+
+def test_the_memory_estimate_counts_the_check_rows_of_the_fraction_given(monkeypatch):
+    from nodecast.trainer import memory
+
+    # 30,000 rows: a fraction of 0.5 holds out 15,000 check rows, 0.2 holds 6,000 (both under the
+    # 20,000 cap); their hidden outputs are kept in three copies of 501 numbers a row
+    wide, narrow = (memory.fit_memory_bytes(30_000, 5, 500, 1, f) for f in (0.5, 0.2))
+    assert wide - narrow == 8 * 3 * (15_000 - 6_000) * 501
+    asked = []
+    monkeypatch.setattr(memory, "fit_memory_bytes", lambda *args: asked.append(args) or 0)
+    X = np.random.default_rng(9).random((300, 2))
+    RandomNodeRegressor(n_nodes=20, check_fraction=0.4, random_state=0).fit(X, X[:, 0])
+    assert asked == [(300, 2, 20, 1, 0.4)]

@@ -89,6 +89,10 @@ def test_default_k_and_s_are_the_gcv_best_candidate_and_reproducible():
     scores = {(c["neighbors"], c["slope_scale"]): c["gcv_rmse_normalised"] for c in choice["candidates"]}
     assert len(scores) == 5 + 2  # the k line at s = 1, then s = 0.5 and 2 at the best k
     assert scores[(choice["neighbors"], choice["slope_scale"])] == min(scores.values())
+    # each candidate is scored at the ridge it ships with (the automatic rule's), not at its GCV
+    # minimum, which the held-out check or the float32 guard may overrule
+    assert auto.ridge_choice_["gcv_minimum"] != auto.ridge_  # the rule moved the ridge here
+    assert min(scores.values()) == auto.ridge_choice_["gcv_rmse_normalised"]
     plain = RandomNodeRegressor(n_nodes=60, random_state=7, n_neighbors=choice["neighbors"],
                                 slope_scale=choice["slope_scale"]).fit(X, y)
     assert np.array_equal(auto.hidden_weights_, plain.hidden_weights_)

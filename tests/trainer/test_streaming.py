@@ -4,7 +4,6 @@ chunks, held-out rows by row hash) checked against outside references."""
 
 from __future__ import annotations
 
-import io
 
 import numpy as np
 import pytest
@@ -17,7 +16,6 @@ from nodecast.compiler.csvio import read_table
 from nodecast.compiler.errors import NodecastError
 from nodecast.trainer.anchors import draw_anchors
 from nodecast.trainer.neighbours import NearestRows
-from nodecast.trainer.progress import Progress
 from nodecast.trainer.row_hash import held_out
 from nodecast.trainer.sources import CsvSource, MemorySource, ParquetSource
 from nodecast.trainer.streaming import train_streaming
@@ -208,21 +206,6 @@ def test_held_out_rows_do_not_depend_on_chunks_and_match_the_fraction():
     # binomial(100000, 0.2): standard deviation 126.5; 5 standard deviations
     assert abs(int(whole.sum()) - 20_000) < 5 * 126.5
     assert not np.array_equal(whole, held_out(0, 100_000, 0.2, seed=10))
-
-
-def test_progress_shows_rows_rate_and_time_left_only_on_a_stream():
-    now = [0.0]
-    stream = io.StringIO()
-    progress = Progress(stream, clock=lambda: now[0])
-    progress.start("factor", 1000)
-    now[0] = 2.0
-    progress.advance(250)
-    assert progress.line(2.0) == "factor: 250 rows of 1,000, 125 rows/s, 6 s left"
-    assert "250 rows of 1,000" in stream.getvalue()
-    silent = Progress(None, clock=lambda: now[0])
-    silent.start("factor", 10)
-    silent.advance(10)
-    silent.done()  # writes nowhere, raises nothing
 
 
 def test_a_spilled_csv_is_parsed_once_and_gives_the_same_bundle(bench_csv):
