@@ -23,25 +23,26 @@ def in_memory_search(run_selection, table, job, grid, settings, growth, allowed,
 def scaled_search(data, source, cluster, chunk_rows, job, grid, settings, scoring=None,
                   allowed_nodes=None):
     """(result, bundle) of a search streamed from ``source`` or on the Dask cluster ``cluster``;
-    progress of every pass on a terminal."""
-    import sys
-
+    every pass shown on the command's progress line."""
     from nodecast.cli.parsing import check_units
-    from nodecast.trainer.progress import Progress
+    from nodecast.cli.progress import Progress
 
-    progress = Progress(sys.stderr if sys.stderr.isatty() else None)
-    if cluster:
-        from nodecast.trainer.selection_cluster import select_on_cluster
+    with Progress("select") as progress:
+        progress.start()
+        if cluster:
+            from nodecast.trainer.selection_cluster import select_on_cluster
 
-        return select_on_cluster(data, job, grid, settings, cluster, chunk_rows, scoring,
-                                 allowed_nodes, progress)
-    from nodecast.trainer import selection_stream as stream
+            return select_on_cluster(data, job, grid, settings, cluster, chunk_rows, scoring,
+                                     allowed_nodes, progress.passes())
+        from nodecast.trainer import selection_stream as stream
 
-    try:
-        check_units(job.units, source, job)
-        if job.task == "classification":
-            return stream.select_classes_streaming(source, job, grid, settings.folds,
-                                                   settings.activation, scoring, progress)
-        return stream.select_streaming(source, job, grid, settings, allowed_nodes, progress)
-    finally:
-        source.close()  # the spilled copy goes now
+        try:
+            check_units(job.units, source, job)
+            if job.task == "classification":
+                return stream.select_classes_streaming(source, job, grid, settings.folds,
+                                                       settings.activation, scoring,
+                                                       progress.passes())
+            return stream.select_streaming(source, job, grid, settings, allowed_nodes,
+                                           progress.passes())
+        finally:
+            source.close()  # the spilled copy goes now
