@@ -155,8 +155,8 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
         return
     growth = GrowthSettings(grow_batch, grow_threshold, grow_patience,
                             grow_pool or 2 * max(grid.nodes)) if grow else None
-    record = file_record(data)
     table = source.table if not scaled else (source or open_source(data, chunk_rows=1))
+    record = file_record(data)  # after the file was opened: a missing one is a one-line error
     check_units(job.units, table, job)  # a scaled run reads the header only here
     budget = _budget(table, job, grid, precision, core, max_flash, max_cycles, grow)
     allowed = None if budget is None else budget["allowed_nodes"]

@@ -39,7 +39,7 @@ class StreamedTraining:
         if unknown:
             raise NodecastError(f"--domain names unknown feature(s): {', '.join(map(repr, unknown))}")
         self.numeric = self.features + (() if self.classify else job.targets)
-        source.check_columns(list(self.numeric) + list(job.targets))
+        source.check_columns(list(dict.fromkeys(self.numeric + tuple(job.targets))))
 
     def chunks(self, what: str, rows: str = "all"):
         """(first, X, Y or labels) of the rows ``rows``: "all", "kept" or "held" (held out), with

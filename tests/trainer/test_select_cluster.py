@@ -108,6 +108,16 @@ def test_a_bad_cell_read_on_the_cluster_is_one_line(tmp_path, capsys, synchronou
     assert not (tmp_path / "m.ncast").exists()
 
 
+@pytest.mark.parametrize("name, words", [("missing.csv", "cannot read"),
+                                         ("missing.parquet", "cannot read")])
+def test_a_missing_file_on_the_cluster_is_one_line(tmp_path, capsys, synchronous, name, words):
+    with pytest.raises(SystemExit) as stop:
+        main(["select", str(tmp_path / name), *REGRESSION, "--cluster", "sync",
+              "-o", str(tmp_path / "m.ncast")])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert stop.value.code == 2 and len(err) == 1 and words in err[0], err
+
+
 @pytest.mark.slow
 @pytest.mark.parametrize("args", [REGRESSION, CLASSIFICATION], ids=["regression", "classification"])
 def test_local_cluster_of_two_gives_the_single_process_search(bench, tmp_path, capsys, monkeypatch,
