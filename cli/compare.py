@@ -30,7 +30,8 @@ EXAMPLE = ("nodecast compare readings.csv --target heatsink_temp --report compar
 @click.option("--ridge", default="0,1e-6", show_default=True,
               help="Ridge values lambda to try (0: minimum-norm least squares).")
 @click.option("--folds", type=click.IntRange(min=2), default=10, show_default=True,
-              help="Shuffled cross-validation folds, the same for every contender.")
+              help="Cross-validation folds (by a hash of each row's inputs), the same for "
+                   "every contender.")
 @click.option("--activation", type=click.Choice(["logistic", "tanh"]), default="logistic",
               show_default=True)
 @click.option("--seed", type=int, default=0, show_default=True,

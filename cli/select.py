@@ -42,7 +42,8 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp "
 @click.option("--ridge", default="0,1e-6", show_default=True,
               help="Ridge values lambda to try (0: minimum-norm least squares).")
 @click.option("--folds", type=click.IntRange(min=2), default=10, show_default=True,
-              help="Shuffled cross-validation folds.")
+              help="Cross-validation folds (a row's fold: a hash of its input values, so "
+                   "copies of a row share one).")
 @click.option("--activation", type=click.Choice(["logistic", "tanh"]), default="logistic",
               show_default=True)
 @click.option("--seed", type=click.IntRange(0, 2**32 - 1), default=0, show_default=True,
@@ -82,6 +83,15 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp "
 @click.option("--jobs", default="auto", show_default=True,
               help="Parallel (fold, layer) units, or 'auto' (every core for large searches); the "
                    "result is the same for any value.")
+@click.option("--chunk-rows", type=click.IntRange(min=1),
+              help="Read DATA this many rows at a time, in memory that does not grow with the rows "
+                   "(default: CSV files up to 32 MiB are read whole, larger ones and Parquet in "
+                   "chunks of 50,000 rows; the result is the same). Not with --grow or "
+                   "--categorical.")
+@click.option("--cluster", metavar="ADDRESS|local[:N]",
+              help="Run the search and the final fit on a Dask cluster: a scheduler address, or "
+                   "local[:N] for a local cluster of N workers (docs/scale.md). Not with --grow or "
+                   "--categorical.")
 @click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
               help="Bundle (.ncast).")
 @click.option("--report", type=click.Path(dir_okay=False), help="Write every number as JSON here.")
@@ -91,15 +101,14 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp "
 def select(data, target, features, domain, units, categorical, method, nodes, neighbors,
            slope_scales, intervals, angle_ranges, weight_sums, ridge, folds, activation, seed, task,
            scoring, precision, tolerance, max_flash, max_cycles, core, grow, grow_batch,
-           grow_threshold, grow_patience, grow_pool, validation_fraction, jobs, output, report,
-           plot, overwrite):
+           grow_threshold, grow_patience, grow_pool, validation_fraction, jobs, chunk_rows, cluster,
+           output, report, plot, overwrite):
     """Choose nodes, the generator and its settings, and ridge by k-fold cross-validation on
-    DATA.csv (a classifier: by accuracy or log-loss), refit the choice on all rows and save it
-    as a bundle."""
+    DATA (CSV, or Parquet by its .parquet suffix; a classifier: by accuracy or log-loss), refit
+    the choice on all rows and save it as a bundle."""
     from nodecast.cli.parsing import check_units, parse_domain, parse_list, parse_units
-    from nodecast.cli.progress import Progress, run_interruptible
+    from nodecast.cli.select_runs import in_memory_search, scaled_search
     from nodecast.compiler.bundle import save
-    from nodecast.compiler.csvio import read_table
     from nodecast.compiler.files import check_outputs
     from nodecast.compiler.provenance import file_record, with_training_data
     from nodecast.trainer.grid import make_grid
@@ -107,6 +116,7 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     from nodecast.trainer.method_grid import layer_grid
     from nodecast.trainer.selection import SearchSettings
     from nodecast.trainer.selection_run import run_selection
+    from nodecast.trainer.sources import MemorySource, open_source
     from nodecast.trainer.training import TrainingJob
 
     check_outputs({"-o": output, "--report": report, "--plot": plot}, {"DATA": data}, overwrite)
@@ -121,33 +131,42 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     layers = layer_grid(parse_methods(method), layer_values(neighbors, slope_scales, intervals,
                                                             angle_ranges, weight_sums))
     grid = make_grid(parse_list(nodes, int, "--nodes"), parse_list(ridge, float, "--ridge"), layers)
+    settings = SearchSettings(folds, seed, activation, precision, tolerance, _jobs(jobs))
+    source = None if cluster else open_source(data, chunk_rows)
+    scaled = partial(scaled_search, data, source, cluster, chunk_rows) \
+        if cluster or not isinstance(source, MemorySource) else None
+    if scaled and grow:
+        raise NodecastError("--grow needs the table in memory; read the file whole (a CSV file "
+                            "without --chunk-rows or --cluster)")
     if task == "classification":
         from nodecast.trainer.class_selection import run_class_selection
 
         if precision or grow:
             raise NodecastError("--precision, --tolerance and --grow are for regression; "
                                 "classifier selection takes the grid, --folds and --score")
-        result, bundle = run_class_selection(read_table(data), replace(job, task=task), grid,
-                                             folds, activation, scoring, _jobs(jobs) or 1)
+        result, bundle = scaled(replace(job, task=task), grid, settings, scoring=scoring) \
+            if scaled else run_class_selection(source.table, replace(job, task=task), grid, folds,
+                                               activation, scoring, _jobs(jobs) or 1)
         save(bundle, output, overwrite=overwrite)
         if report:
             _write_report(report, result, bundle, overwrite)
         click.echo(f"wrote {output} (bundle {bundle.bundle_id[:12]}); chose "
                    f"{result.describe()}", err=True)
         return
-    settings = SearchSettings(folds, seed, activation, precision, tolerance, _jobs(jobs))
     growth = GrowthSettings(grow_batch, grow_threshold, grow_patience,
                             grow_pool or 2 * max(grid.nodes)) if grow else None
-    table, record = read_table(data), file_record(data)
-    check_units(job.units, table, job)
+    table = source.table if not scaled else (source or open_source(data, chunk_rows=1))
+    record = file_record(data)  # after the file was opened: a missing one is a one-line error
+    check_units(job.units, table, job)  # a scaled run reads the header only here
     budget = _budget(table, job, grid, precision, core, max_flash, max_cycles, grow)
-    search = partial(run_selection, allowed_nodes=None if budget is None else budget["allowed_nodes"])
-    with Progress("select") as progress:
-        result, bundle = run_interruptible(
-            search, table, job, grid, settings, growth,
-            callback=UnitClock(progress, len(table.rows), max(grid.nodes), folds, grow),
-            progress=progress)
+    allowed = None if budget is None else budget["allowed_nodes"]
+    if scaled:
+        result, bundle = scaled(job, grid, settings, allowed_nodes=allowed)
+    else:
+        result, bundle = in_memory_search(run_selection, table, job, grid, settings, growth,
+                                          allowed, UnitClock)
     bundle = with_training_data(bundle, record)
+
     save(bundle, output, overwrite=overwrite)
     if budget is not None:
         budget["frontier"] = _frontier(result, budget)

@@ -10,7 +10,7 @@ Scores on each fold's validation rows:
 * ``log-loss``: the mean of -ln p(true class), with the class scores turned into probabilities
   by clipping them to [``PROBABILITY_FLOOR``, 1] and dividing by their sum (the scores estimate
   the class indicators but are not probabilities; the floor bounds the loss of one confidently
-  wrong row at about ln(1 / ``PROBABILITY_FLOOR``) = 6.9).
+  wrong row at about ln(1 / ``PROBABILITY_FLOOR``) = 6.9; :mod:`nodecast.trainer.unit_blocks`).
 
 Points are ranked by the mean over folds; ties go to fewer nodes, then larger ridge, then smaller
 k and s. The chosen point is refitted on all rows with the same seed, so ``RandomNodeClassifier``
@@ -28,15 +28,13 @@ from typing import Any
 
 import numpy as np
 
+from nodecast.compiler.activations import get_activation
 from nodecast.compiler.errors import NodecastError
-from nodecast.trainer import solvers
-from nodecast.trainer.folds import draw_layer, fold_indices, hidden_outputs, input_box, normaliser
+from nodecast.trainer.folds import draw_layer, fold_indices, input_box, normaliser
 from nodecast.trainer.grid import make_grid
-from nodecast.trainer.prefix_solve import prefix_solutions
+from nodecast.trainer.unit_blocks import UnitFold, ValidationSums, class_sum, solutions_of
 
 SCORINGS = ("accuracy", "log-loss")
-PROBABILITY_FLOOR = 1e-3
-_BLOCK_ENTRIES = 2**23  # hidden-layer entries per block of rows
 
 
 @dataclass(frozen=True)
@@ -110,7 +108,7 @@ def select_classifier(X, y, nodes=(50, 100, 250), neighbors=(None,), slope_scale
     if classes.size < 2:
         raise NodecastError("need samples of at least 2 classes")
     grid = _class_grid(nodes, neighbors, slope_scales, ridges)
-    splits = fold_indices(X.shape[0], folds, seed)
+    splits = fold_indices(X, folds, seed)
     declared = (np.full(X.shape[1], np.nan),) * 2 if domain is None else \
         tuple(np.asarray(side, dtype=np.float64).reshape(-1) for side in domain)
     keys = list(itertools.product(grid.neighbors, grid.slope_scales, range(folds)))
@@ -149,9 +147,6 @@ def run_class_selection(table, job, grid, folds, activation, scoring, n_jobs):
     """``nodecast select --task classification``: search, then the final fit by
     :func:`nodecast.trainer.training.train` with the chosen options (so ``nodecast train`` with
     them writes the same arrays); returns (ClassSelection, Bundle)."""
-    from dataclasses import replace
-
-    from nodecast.compiler.bundle import Bundle
     from nodecast.trainer import training
 
     if len(job.targets) != 1:
@@ -167,15 +162,25 @@ def run_class_selection(table, job, grid, folds, activation, scoring, n_jobs):
                                neighbors, slope_scales, grid.ridges, folds,
                                seed=job.seed, scoring=scoring, domain=declared,
                                activation=activation, n_jobs=n_jobs, refit=False)
+    return result, class_bundle(result, lambda final: training.train(table, final), job,
+                                activation, len(table.rows))
+
+
+def class_bundle(result: ClassSelection, train, job, activation: str, rows: int):
+    """The bundle of the chosen point, fitted by ``train(TrainingJob) -> Bundle`` (in memory,
+    streamed or on a cluster: the same arrays), with the cross-validated score and a summary."""
+    from dataclasses import replace
+
+    from nodecast.compiler.bundle import Bundle
+
     params = dict(result.chosen.params, method="data-driven", interval=1.0, activation=activation)
-    bundle = training.train(table, replace(job, params=params))
+    bundle = train(replace(job, params=params))
     metrics = dict(bundle.metadata.get("metrics", {}))
-    metrics["cross_validation"] = {"folds": folds, "rows": len(table.rows), "scoring": scoring,
+    metrics["cross_validation"] = {"folds": result.folds, "rows": rows, "scoring": result.scoring,
                                    "mean": result.chosen.mean, "std": result.chosen.std}
-    summary = {"folds": folds, "grid_points": len(result.points), "scoring": scoring,
-               "chosen": result.chosen.params}
-    return result, Bundle(bundle.network, {**bundle.metadata, "metrics": metrics,
-                                           "selection": summary})
+    summary = {"folds": result.folds, "grid_points": len(result.points),
+               "scoring": result.scoring, "chosen": result.chosen.params}
+    return Bundle(bundle.network, {**bundle.metadata, "metrics": metrics, "selection": summary})
 
 
 def _run(jobs, n_jobs: int) -> list[np.ndarray]:
@@ -198,26 +203,18 @@ def evaluate_class_unit(X, codes, n_classes, split, declared, k, s, grid, seed, 
         U_train, U_valid = (X[train] - offset) / scale, (X[valid] - offset) / scale
         T_train = np.eye(n_classes)[codes[train]]
         layer = draw_layer(U_train, T_train, max(grid.nodes), seed, activation, k, s)
-        rows = max(1, _BLOCK_ENTRIES // layer.weights.shape[0])
-        factor = solvers.accumulate(
-            (hidden_outputs(layer, U_train[i:i + rows], activation), T_train[i:i + rows])
-            for i in range(0, U_train.shape[0], rows))
-        H_valid = hidden_outputs(layer, U_valid, activation)
-        out = np.empty((len(grid.ridges), len(grid.nodes)))
-        for r, ridge in enumerate(grid.ridges):
-            for p, (m, (beta, bias)) in enumerate(zip(grid.nodes, prefix_solutions(
-                    factor, ridge, grid.nodes), strict=True)):
-                out[r, p] = fold_value(H_valid[:, :m] @ beta + bias, codes[valid], scoring)
-        return out
+        kernel = get_activation(activation)
+        fold = UnitFold(layer, kernel, U_train.shape[0])
+        fold.push(U_train, T_train)
+        sums = ValidationSums(layer, kernel, solutions_of(fold.factor, grid.ridges, grid.nodes),
+                              grid.nodes, U_valid.shape[0], scoring, shared=fold.shared)
+        sums.push(U_valid, codes[valid])
+        return sums.values()
 
 
 def fold_value(scores: np.ndarray, codes: np.ndarray, scoring: str) -> float:
     """Accuracy, or log-loss in nats, of class scores of shape (rows, n_classes)."""
-    if scoring == "accuracy":
-        return float(np.mean(np.argmax(scores, axis=1) == codes))
-    probabilities = np.clip(scores, PROBABILITY_FLOOR, 1.0)
-    probabilities /= probabilities.sum(axis=1, keepdims=True)
-    return float(-np.mean(np.log(probabilities[np.arange(codes.size), codes])))
+    return class_sum(scores, codes, scoring) / codes.size
 
 
 def _tabulate(grid, keys, values, scoring: str) -> list[ClassPoint]:

@@ -4,8 +4,10 @@ example data-driven with neighbour count k and slope scale s).
 A unit draws the hidden layer of max(M) nodes once from the fold's training rows, folds those rows
 into one QR factor in a single pass, and scores every (ridge, M) pair on the fold's validation rows:
 the first M nodes are the M-node model, and every M comes from one factorisation per ridge value
-(:mod:`nodecast.trainer.prefix_solve`). With a target precision it also estimates each fold model's
-export error (the certified bound, coarsely refined) over the declared domain.
+(:mod:`nodecast.trainer.prefix_solve`). The factor and the validation sums run over fixed row
+blocks (:mod:`nodecast.trainer.unit_blocks`), as in the streamed and cluster searches. With a
+target precision it also estimates each fold model's export error (the certified bound, coarsely
+refined) over the declared domain.
 """
 
 from __future__ import annotations
@@ -14,14 +16,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from nodecast.compiler.activations import get_activation
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.ir import Network
-from nodecast.trainer import solvers
-from nodecast.trainer.folds import SplitData, draw_layer, hidden_outputs, split_data
+from nodecast.trainer.folds import SplitData, draw_layer, split_data
 from nodecast.trainer.method_grid import LayerSpec
-from nodecast.trainer.prefix_solve import prefix_solutions
-
-_BLOCK_ENTRIES = 2**23  # hidden-layer entries per block of rows (64 MiB of float64)
+from nodecast.trainer.unit_blocks import UnitFold, ValidationSums, solutions_of
 
 
 @dataclass(frozen=True)
@@ -73,21 +73,27 @@ def _evaluate(X, Y, split, declared, settings: UnitSettings, probes) -> UnitScor
     layer = draw_layer(data.U_train, data.T_train, max(settings.nodes), settings.seed,
                        settings.activation, method=settings.layer.method,
                        **settings.layer.kwargs)
-    factor = solvers.accumulate(_blocks(layer, data, settings.activation))
-    H_valid = hidden_outputs(layer, data.U_valid, settings.activation)
-    shape = (len(settings.ridges), len(settings.nodes))
-    rmse = np.empty(shape + (Y.shape[1],))
-    max_abs = np.empty_like(rmse)
-    estimate = np.empty(shape) if settings.precision else None
-    for r, ridge in enumerate(settings.ridges):
-        solutions = prefix_solutions(factor, ridge, settings.nodes)
-        for p, (m, (beta, bias)) in enumerate(zip(settings.nodes, solutions, strict=True)):
-            predicted = data.output_offset + data.output_scale * (H_valid[:, :m] @ beta + bias)
-            error = predicted - data.Y_valid
-            rmse[r, p] = np.sqrt(np.mean(error**2, axis=0))
-            max_abs[r, p] = np.max(np.abs(error), axis=0)
-            if estimate is not None:
-                net = fold_network(layer, m, beta, bias, data, settings.activation)
+    activation = get_activation(settings.activation)
+    fold = UnitFold(layer, activation, data.U_train.shape[0])
+    fold.push(data.U_train, data.T_train)
+    solutions = solutions_of(fold.factor, settings.ridges, settings.nodes)
+    sums = ValidationSums(layer, activation, solutions, settings.nodes, data.U_valid.shape[0],
+                          "rmse", (data.output_offset, data.output_scale), fold.shared)
+    sums.push(data.U_valid, data.Y_valid)
+    return unit_scores(sums, layer, solutions, data, settings, probes)
+
+
+def unit_scores(sums: ValidationSums, layer, solutions, norm, settings: UnitSettings,
+                probes) -> UnitScores:
+    """The scores of a unit from its validation sums; with a precision, the estimated export
+    error of every fold model (``norm``: the fold's box and scalings, as :class:`SplitData`)."""
+    rmse, max_abs = sums.values()
+    estimate = None
+    if settings.precision:
+        estimate = np.empty((len(settings.ridges), len(settings.nodes)))
+        for r, row in enumerate(solutions):
+            for p, (m, (beta, bias)) in enumerate(zip(settings.nodes, row, strict=True)):
+                net = fold_network(layer, m, beta, bias, norm, settings.activation)
                 estimate[r, p] = _estimate(net, settings.precision, probes)
     return UnitScores(rmse, max_abs, estimate, dict(layer.diagnostics))
 
@@ -105,16 +111,9 @@ def _estimate(net: Network, precision: str, probes) -> float:
         return float("inf")
 
 
-def _blocks(layer, data: SplitData, activation: str):
-    rows = max(1, _BLOCK_ENTRIES // layer.weights.shape[0])
-    for start in range(0, data.U_train.shape[0], rows):
-        stop = start + rows
-        yield hidden_outputs(layer, data.U_train[start:stop], activation), data.T_train[start:stop]
-
-
 def fold_network(layer, m: int, beta, bias, data: SplitData, activation: str) -> Network:
     """The IR of a fold's model with the first m nodes, for the export-error estimate."""
-    n, t = data.U_train.shape[1], beta.shape[1]
+    n, t = data.input_offset.shape[0], beta.shape[1]
     return Network(
         hidden_weights=layer.weights[:m], hidden_biases=layer.biases[:m], activation=activation,
         output_weights=beta, output_bias=bias, input_offset=data.input_offset,

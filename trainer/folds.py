@@ -1,4 +1,5 @@
-"""Cross-validation folds, and the per-split data of one fold as the estimators would see it.
+"""Cross-validation folds by a hash of each row's input values, and the per-split data of one
+fold as the estimators would see it.
 
 Nothing of a fold's validation rows reaches what is scored on them: the input box (where the
 domain is not declared), the target scaling and the hidden layer all come from the fold's training
@@ -17,23 +18,52 @@ from sklearn.utils import check_random_state
 from nodecast.compiler.activations import get_activation
 from nodecast.compiler.errors import NodecastError
 from nodecast.trainer.generators import GENERATORS, HiddenLayer
+from nodecast.trainer.row_hash import content_hash
 
 
-def fold_indices(n_rows: int, folds: int, seed: int) -> list[tuple[np.ndarray, np.ndarray]]:
-    """Shuffled k-fold splits: list of (training rows, validation rows), index arrays in row order.
+def fold_key(seed: int) -> int:
+    """The hash key of the folds of ``seed``: the second draw of ``RandomState(seed)`` (the first
+    keys the held-out rows of :func:`nodecast.trainer.row_hash.held_out`)."""
+    return int(np.random.RandomState(seed % 2**32).randint(2**62, size=2, dtype=np.int64)[1])
 
-    The rows are permuted by ``RandomState(seed)`` and cut into ``folds`` parts whose sizes differ
-    by at most one; every row is validated exactly once.
-    """
+
+def row_folds(X: np.ndarray, folds: int, seed: int) -> np.ndarray:
+    """The fold of each row of X (rows, n), ndarray of shape (rows,) of int64: the content hash of
+    the row's input values under :func:`fold_key` (:func:`nodecast.trainer.row_hash.content_hash`)
+    modulo ``folds``. A row's fold depends on its values alone: the same in memory, chunk by chunk
+    and on cluster partitions, and copies of a row share one fold (no copy of a validation row is
+    trained on)."""
+    hashed = content_hash(np.asarray(X, dtype=np.float64).reshape(len(X), -1), fold_key(seed))
+    return (hashed % np.uint64(folds)).astype(np.int64)
+
+
+def check_folds(folds, n_rows: int) -> None:
+    """NodecastError unless ``folds`` is an integer from 2 to ``n_rows``."""
     if not (isinstance(folds, (int, np.integer)) and 2 <= folds <= n_rows):
         raise NodecastError(f"folds must be an integer from 2 to the number of rows ({n_rows}), "
-                         f"got {folds!r}")
-    parts = np.array_split(np.random.RandomState(seed).permutation(n_rows), folds)
-    splits = []
-    for i, valid in enumerate(parts):
-        train = np.concatenate([part for j, part in enumerate(parts) if j != i])
-        splits.append((np.sort(train), np.sort(valid)))
-    return splits
+                            f"got {folds!r}")
+
+
+def check_fold_sizes(counts, n_rows: int) -> None:
+    """NodecastError naming the first fold without validation rows or with fewer than 2 training
+    rows; ``counts`` holds each fold's rows."""
+    for fold, rows in enumerate(np.asarray(counts).tolist()):
+        if rows == 0 or n_rows - rows < 2:
+            raise NodecastError(
+                f"fold {fold + 1} of {len(counts)} gets {rows} of the {n_rows} rows (a row's fold "
+                "comes from a hash of its input values, equal rows share one); use fewer --folds "
+                "or more rows")
+
+
+def fold_indices(X: np.ndarray, folds: int, seed: int) -> list[tuple[np.ndarray, np.ndarray]]:
+    """Hashed k-fold splits of the rows of X: list of (training rows, validation rows), index
+    arrays in row order; every row is validated exactly once (:func:`row_folds`). Fold sizes are
+    about N / folds each (multinomial, not equal); NodecastError for a fold left empty."""
+    n_rows = len(X)
+    check_folds(folds, n_rows)
+    ids = row_folds(X, folds, seed)
+    check_fold_sizes(np.bincount(ids, minlength=folds), n_rows)
+    return [(np.flatnonzero(ids != fold), np.flatnonzero(ids == fold)) for fold in range(folds)]
 
 
 def input_box(X: np.ndarray, declared_low: np.ndarray, declared_high: np.ndarray):

@@ -98,12 +98,18 @@ def combine(left, right):
     ranges = PreactivationRange(ra.low.size)
     ranges.low, ranges.high = np.minimum(ra.low, rb.low), np.maximum(ra.high, rb.high)
     design, targets = np.concatenate([da, db]), np.concatenate([ta, tb])
+    return combine_factors(fa, fb), design, targets, ranges
+
+
+def combine_factors(fa, fb):
+    """The factor of the rows of two factors (either may be None: no rows), ``fa``'s rows first:
+    [R_a; R_b] reduced by one Householder QR."""
     if fa is None or fb is None:
-        return (fa if fb is None else fb), design, targets, ranges
+        return fa if fb is None else fb
     with solvers.single_blas_thread():
         R, qty = solvers._householder_update(fa.R, fa.qty, fb.R, fb.qty)
-    return (solvers.QRFactor(np.ascontiguousarray(R), qty, fa.n_rows + fb.n_rows,
-                             fa.y_squares + fb.y_squares), design, targets, ranges)
+    return solvers.QRFactor(np.ascontiguousarray(R), qty, fa.n_rows + fb.n_rows,
+                            fa.y_squares + fb.y_squares)
 
 
 def figures(part, model, task: str, which):

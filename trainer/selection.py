@@ -92,7 +92,8 @@ def select(X, y, nodes=(50, 100, 250), neighbors=None, slope_scales=None, ridges
     intervals : u of interval and domain-anchored; angle_ranges : (min, max) degrees of
     slope-angle; weight_sums : (r, s) of weight-sum. Each None: that generator's default grid
     (:mod:`nodecast.trainer.method_grid`); values for a generator not in ``methods`` are an error.
-    folds : int, number of shuffled folds (ten is customary).
+    folds : int, number of folds (ten is customary); a row's fold is a hash of its input values
+        (:func:`nodecast.trainer.folds.row_folds`).
     seed : int, seeds the fold split and every hidden-layer draw (the final model's random_state).
     domain : (low, high) or None, each of shape (n_features,); NaN entries are not declared and
         take the range of the rows being fitted (each fold's training rows; all rows for the
@@ -153,7 +154,7 @@ def grow_best(X, Y, points, settings: SearchSettings, declared, growth):
     if not candidates:
         best = min(points, key=lambda p: (p.estimate, p.rank_key()))
         raise NodecastError(_no_point_message(settings, best.estimate, best))
-    splits = fold_indices(X.shape[0], settings.folds, settings.seed)
+    splits = fold_indices(X, settings.folds, settings.seed)
     probes = _screen_probes(X, declared) if settings.tolerance is not None else None
     span = Y.max(axis=0) - Y.min(axis=0)
     result = grow(X, Y, splits, declared, candidates[0], settings, growth,
@@ -197,7 +198,7 @@ def run_search(X, Y, grid: Grid, settings: SearchSettings, declared, progress=No
     """Score every grid point by cross-validation; returns (points, generator diagnostics)."""
     if settings.tolerance is not None and settings.precision is None:
         raise NodecastError("a tolerance needs a precision to estimate the export error in")
-    splits = fold_indices(X.shape[0], settings.folds, settings.seed)
+    splits = fold_indices(X, settings.folds, settings.seed)
     budget = settings.precision if settings.tolerance is not None else None
     probes = _screen_probes(X, declared) if budget else None
     keys = list(itertools.product(grid.layers, range(settings.folds)))
@@ -212,9 +213,14 @@ def run_search(X, Y, grid: Grid, settings: SearchSettings, declared, progress=No
         units.setdefault(layer, []).append(scores)
         if progress is not None:
             progress(done, len(keys))
-    span = Y.max(axis=0) - Y.min(axis=0)
-    points = tabulate(grid, units, np.where(span > 0, span, 1.0), settings.tolerance)
-    return points, _total_diagnostics(units)
+    return tabulate_units(grid, units, Y.min(axis=0), Y.max(axis=0), settings.tolerance)
+
+
+def tabulate_units(grid: Grid, units: dict, y_low, y_high, tolerance):
+    """(points, generator diagnostics) from every unit's scores (``units``: LayerSpec -> list over
+    folds of UnitScores) and the targets' range over all rows (the score's normaliser)."""
+    span = np.asarray(y_high) - np.asarray(y_low)
+    return tabulate(grid, units, np.where(span > 0, span, 1.0), tolerance), _total_diagnostics(units)
 
 
 def _auto_jobs(units: int, rows: int, nodes: int) -> int:
@@ -241,8 +247,13 @@ def _run(jobs, n_jobs: int):
 
 
 def _screen_probes(X, declared) -> np.ndarray:
-    low, high = input_box(X, *declared)
-    box = SimpleNamespace(n_features=X.shape[1], domain_low=low, domain_high=high)
+    return box_probes(*input_box(X, *declared))
+
+
+def box_probes(low, high) -> np.ndarray:
+    """The precision budget's probes of the box [low, high]: quasi-random points and at most as
+    many of its corners, evenly picked."""
+    box = SimpleNamespace(n_features=len(low), domain_low=low, domain_high=high)
     probes = domain_probes(box, count=SCREEN_PROBES)
     corners = probes[SCREEN_PROBES:]
     step = max(1, -(-corners.shape[0] // SCREEN_PROBES))

@@ -40,21 +40,32 @@ def run_selection(table, job, grid, settings, growth=None, progress=None, allowe
     declared = inputs.box(*declared_box(job, numeric))  # NaN: the data's range
     X = inputs.X
     points, diagnostics = run_search(X, Y, grid, settings, declared, progress)
-    if allowed_nodes is not None:
-        points = [p if p.nodes in allowed_nodes else replace(p, meets_budget=False)
-                  for p in points]
-    if growth is not None:
-        result, bundle = _grown(X, Y, features, inputs, job, points, grid, settings, declared,
-                                growth)
-        result.diagnostics = diagnostics
-    else:
-        def fit_final(point):
-            bundle = training.train(table, replace(job, params=train_options(point, settings)))
-            return bundle, bundle.network
-
-        result = finalise(points, grid, settings, fit_final, diagnostics)
-        bundle = result.model
+    points = within_budget(points, allowed_nodes)
+    if growth is None:
+        return finish_search(points, diagnostics, grid, settings, job,
+                             lambda final: training.train(table, final), X.shape[0])
+    result, bundle = _grown(X, Y, features, inputs, job, points, grid, settings, declared, growth)
+    result.diagnostics = diagnostics
     return result, _with_selection(bundle, result, X.shape[0])
+
+
+def within_budget(points, allowed_nodes):
+    """The points, those whose node count misses the flash or cycle budget marked as not meeting
+    it (None: every count is allowed)."""
+    if allowed_nodes is None:
+        return points
+    return [p if p.nodes in allowed_nodes else replace(p, meets_budget=False) for p in points]
+
+
+def finish_search(points, diagnostics, grid, settings, job, train, rows: int):
+    """Refit the best point by ``train(TrainingJob) -> Bundle`` (in memory, streamed or on a
+    cluster: the same arrays) and bundle it with the search's summary."""
+    def fit_final(point):
+        bundle = train(replace(job, params=train_options(point, settings)))
+        return bundle, bundle.network
+
+    result = finalise(points, grid, settings, fit_final, diagnostics)
+    return result, _with_selection(result.model, result, rows)
 
 
 def train_options(point, settings) -> dict:

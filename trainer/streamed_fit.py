@@ -50,19 +50,39 @@ DATA_FREE_METHODS = ("interval", "domain-anchored", "slope-angle", "weight-sum")
 def reblock(pieces: Iterable[tuple], bounds) -> Iterator[tuple]:
     """Regroup consecutive row pieces (tuples of arrays with equal row counts) into the row blocks
     ``bounds`` ((start, stop) pairs covering 0 .. N in order)."""
-    pending, held = [], 0
-    pieces = iter(pieces)
-    for start, stop in bounds:
-        while held < stop - start:
-            piece = next(pieces)
-            pending.append(piece)
-            held += len(piece[0])
-        joined = tuple(np.concatenate(parts) if len(pending) > 1 else parts[0]
-                       for parts in zip(*pending, strict=True))
-        size = stop - start
-        yield tuple(part[:size] for part in joined)
-        rest = tuple(part[size:] for part in joined)
-        pending, held = ([rest], len(rest[0])) if len(rest[0]) else ([], 0)
+    feed = BlockFeed(bounds)
+    for piece in pieces:
+        if feed.done:
+            return
+        yield from feed.push(piece)
+
+
+class BlockFeed:
+    """:func:`reblock` for pieces pushed one at a time (several consumers fed by one pass):
+    :meth:`push` returns the blocks of ``bounds`` that the rows pushed so far complete."""
+
+    def __init__(self, bounds) -> None:
+        self.sizes = [stop - start for start, stop in bounds]
+        self.next, self.pending, self.held = 0, [], 0
+
+    @property
+    def done(self) -> bool:
+        return self.next == len(self.sizes)
+
+    def push(self, piece: tuple) -> list[tuple]:
+        if len(piece[0]):
+            self.pending.append(piece)
+            self.held += len(piece[0])
+        blocks = []
+        while not self.done and self.held >= self.sizes[self.next]:
+            size = self.sizes[self.next]
+            joined = tuple(np.concatenate(parts) if len(self.pending) > 1 else parts[0]
+                           for parts in zip(*self.pending, strict=True))
+            blocks.append(tuple(part[:size] for part in joined))
+            rest = tuple(part[size:] for part in joined)
+            self.pending, self.held = ([rest], len(rest[0])) if len(rest[0]) else ([], 0)
+            self.next += 1
+        return blocks
 
 
 class StreamedFit:
@@ -155,8 +175,10 @@ class StreamedFit:
         self.strided_u.append(U[strided])
         self.strided_t.append(self.targets(Y[strided]))
 
-    def finish_anchors(self) -> bool:
-        """After pass 1; True where a neighbour pass is needed."""
+    def finish_anchors(self, neighbour_counts: Callable | None = None) -> bool:
+        """After pass 1; True where a neighbour pass is needed. ``neighbour_counts(q)`` gives the
+        k the neighbour pass must serve for q varying features (default: the fit's own, see
+        :meth:`neighbour_counts`; model selection serves every k of its grid)."""
         if self.checked is not None and not ridge_choice.check_usable(
                 self.check_count, self.n_rows, float(self.estimator.check_fraction)):
             self.checked = None
@@ -169,8 +191,9 @@ class StreamedFit:
         self.prior = global_slopes(V, np.concatenate(self.strided_t), strided=True)[
             self.plan.columns]
         self.strided_u = self.strided_t = None
-        self.nearest = NearestRows(self.anchor_rows[:, self.varying], max(self.neighbour_counts()),
-                                   self.plan.columns)
+        counts = (neighbour_counts(self.varying.size) if neighbour_counts
+                  else self.neighbour_counts())
+        self.nearest = NearestRows(self.anchor_rows[:, self.varying], max(counts), self.plan.columns)
         return True
 
     def neighbour_counts(self) -> list[int]:

@@ -39,7 +39,7 @@ class StreamedTraining:
         if unknown:
             raise NodecastError(f"--domain names unknown feature(s): {', '.join(map(repr, unknown))}")
         self.numeric = self.features + (() if self.classify else job.targets)
-        source.check_columns(list(self.numeric) + list(job.targets))
+        source.check_columns(list(dict.fromkeys(self.numeric + tuple(job.targets))))
 
     def chunks(self, what: str, rows: str = "all"):
         """(first, X, Y or labels) of the rows ``rows``: "all", "kept" or "held" (held out), with
@@ -112,6 +112,7 @@ class StreamedTraining:
             self.all.update(Y, Y if self.classify else None)
             held = held_out(first, X.shape[0], self.job.validation_fraction, self.job.seed)
             self.kept.update(Y[~held], Y[~held] if self.classify else None)
+            self.count_chunk(X, Y)
         self.n_rows = self.all.rows
         if self.n_rows < 2:
             raise NodecastError(f"{self.source.source}: need at least 2 data rows to train, got "
@@ -119,6 +120,10 @@ class StreamedTraining:
                                                     if self.n_rows == 0 else ""))
         self._check_targets(first_values)
         self.low, self.high, self.outside = domain.box()
+
+    def count_chunk(self, X, Y) -> None:
+        """What a run measures on the first pass besides train's counts (model selection: its
+        folds); nothing here."""
 
     def _check_targets(self, first_values) -> None:
         if self.classify:

@@ -71,7 +71,7 @@ def time_gridsearch(X, y, n_folds: int, n_jobs: int):
     from nodecast.trainer import RandomNodeRegressor
     from nodecast.trainer.folds import fold_indices
 
-    splits = fold_indices(X.shape[0], FOLDS, SEED)[:n_folds]
+    splits = fold_indices(X, FOLDS, SEED)[:n_folds]
     search = GridSearchCV(
         RandomNodeRegressor(slope_scale=1.0, random_state=SEED),
         {"n_nodes": list(NODES), "n_neighbors": list(NEIGHBORS), "ridge": list(RIDGES)},

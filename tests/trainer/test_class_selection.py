@@ -29,7 +29,7 @@ def _gridsearch(X, y, scoring, folds):
 
     grid = {"n_nodes": GRID["nodes"], "n_neighbors": GRID["neighbors"], "ridge": GRID["ridges"]}
     return GridSearchCV(RandomNodeClassifier(random_state=SEED, slope_scale=1.0), grid,
-                        cv=fold_indices(X.shape[0], folds, SEED),
+                        cv=fold_indices(X, folds, SEED),
                         scoring="accuracy" if scoring == "accuracy" else _log_loss,
                         refit=False).fit(X, y)
 

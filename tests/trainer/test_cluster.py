@@ -25,18 +25,6 @@ from nodecast.trainer.training import TrainingJob, train  # noqa: E402
 pytestmark = pytest.mark.slow
 
 
-@pytest.fixture(scope="module")
-def cluster():
-    import dask
-
-    # one retry only, so that the killed-worker test ends after two deaths, not four
-    with dask.config.set({"distributed.scheduler.allowed-failures": 1}):
-        with distributed.LocalCluster(n_workers=2, threads_per_worker=1, dashboard_address=None,
-                                      processes=True) as local:
-            with distributed.Client(local) as client:
-                yield client
-
-
 def _same_model(single, clustered):
     a, b = single.network, clustered.network
     assert np.array_equal(a.hidden_weights, b.hidden_weights)

@@ -11,7 +11,7 @@ import pytest
 from nodecast.compiler.errors import NodecastError
 from nodecast.trainer import RandomNodeRegressor, select
 from nodecast.trainer.cv_units import UnitSettings, evaluate_unit
-from nodecast.trainer.folds import draw_layer, fold_indices, split_data
+from nodecast.trainer.folds import draw_layer, fold_indices, row_folds, split_data
 from nodecast.trainer.method_grid import LayerSpec
 
 SEED = 3
@@ -40,7 +40,7 @@ def gridsearch(friedman):
     X, y = friedman
     grid = {"n_nodes": GRID["nodes"], "n_neighbors": GRID["neighbors"],
             "slope_scale": GRID["slope_scales"], "ridge": GRID["ridges"]}
-    return GridSearchCV(RandomNodeRegressor(random_state=SEED), grid, cv=fold_indices(300, 3, SEED),
+    return GridSearchCV(RandomNodeRegressor(random_state=SEED), grid, cv=fold_indices(X, 3, SEED),
                         scoring="neg_root_mean_squared_error", refit=False).fit(X, y)
 
 
@@ -94,7 +94,7 @@ def test_smaller_m_are_the_first_nodes_of_one_draw(friedman):
     # The reuse path scores the first M of max(M) nodes as the M-node model; that holds because
     # the generator's draw of M nodes is the prefix of its draw of more nodes (same seed).
     X, y = friedman
-    train, valid = fold_indices(300, 3, SEED)[0]
+    train, valid = fold_indices(X, 3, SEED)[0]
     data = split_data(X, y[:, None], train, valid, np.full(6, np.nan), np.full(6, np.nan))
     big = draw_layer(data.U_train, data.T_train, 40, SEED, "logistic", 12, 1.0)
     small = draw_layer(data.U_train, data.T_train, 15, SEED, "logistic", 12, 1.0)
@@ -107,7 +107,7 @@ def test_validation_rows_never_shape_their_own_model(friedman):
     # normalisation, the neighbours or the output layer would change the scores on them.
     X, y = friedman
     X, Y = X.copy(), y[:, None].copy()
-    train, valid = fold_indices(300, 3, SEED)[0]
+    train, valid = fold_indices(X, 3, SEED)[0]
     X[valid] = 3.0 * X[valid] + 1.0
     Y[valid] = -Y[valid]
     declared = (np.full(6, np.nan), np.full(6, np.nan))
@@ -138,15 +138,27 @@ def test_progress_reports_every_unit(friedman):
     assert calls == [(i, 6) for i in range(1, 7)]
 
 
-def test_folds_partition_the_rows():
-    splits = fold_indices(103, 10, 7)
+def test_folds_partition_the_rows_by_a_hash_of_their_inputs():
+    X = np.random.default_rng(7).uniform(size=(1000, 3))
+    X[500:600] = X[0]  # a hundred copies of row 0
+    splits = fold_indices(X, 10, 7)
     valid = np.concatenate([v for _, v in splits])
-    assert np.array_equal(np.sort(valid), np.arange(103))
-    assert {len(v) for _, v in splits} == {10, 11}
+    assert np.array_equal(np.sort(valid), np.arange(1000))
     for train, v in splits:
-        assert np.intersect1d(train, v).size == 0 and train.size + v.size == 103
-    assert all(np.array_equal(a[1], b[1]) for a, b in zip(splits, fold_indices(103, 10, 7),
-                                                          strict=True))
+        assert np.intersect1d(train, v).size == 0 and train.size + v.size == 1000
+        assert (0 in v) == np.isin(np.arange(500, 600), v).all()  # copies share a fold
+    sizes = np.array([len(v) for _, v in splits]) - 99 * np.array([0 in v for _, v in splits])
+    assert sizes.min() >= 60 and sizes.max() <= 140  # about 90 each (multinomial)
+    # a row's fold depends on the row alone: shuffled or cut into pieces, the same folds
+    order = np.random.default_rng(1).permutation(1000)
+    assert np.array_equal(row_folds(X[order], 10, 7), row_folds(X, 10, 7)[order])
+    assert not np.array_equal(row_folds(X, 10, 8), row_folds(X, 10, 7))
+
+
+def test_tiny_data_with_an_empty_fold_is_one_clear_error():
+    X = np.repeat(np.arange(3.0)[:, None], 4, axis=0)  # 12 rows, 3 distinct
+    with pytest.raises(NodecastError, match=r"^fold \d+ of 10 gets 0 of the 12 rows.*fewer --folds"):
+        fold_indices(X, 10, 0)
 
 
 @pytest.mark.parametrize("bad, message", [
