@@ -90,7 +90,8 @@ def train(data, target, features, domain, units, categorical, method, nodes, nei
                     angle_range=parse_range(angle_range, "--angle-range"),
                     weight_sum=parse_range(weight_sum, "--weight-sum"),
                     ridge=parse_ridge(ridge), activation=activation))
-    source = None if cluster else open_source(data, chunk_rows)
+    # a cluster's workers read the file themselves; here only its header (a missing file: one line)
+    source = open_source(data, 1 if cluster else chunk_rows)
     record = file_record(data)
     if not isinstance(source, MemorySource):
         bundle = _train_scaled(data, source, job, chunk_rows, cluster)
@@ -117,14 +118,14 @@ def _train_scaled(data, source, job, chunk_rows, cluster):
 
     with Progress("train") as progress:
         progress.start()
-        if cluster:
-            from nodecast.trainer.cluster_training import train_on_cluster
-
-            return train_on_cluster(data, job, cluster, chunk_rows, progress.passes())
-        from nodecast.trainer.streaming import train_streaming
-
         try:
             check_units(job.units, source, job)
+            if cluster:
+                from nodecast.trainer.cluster_training import train_on_cluster
+
+                return train_on_cluster(data, job, cluster, chunk_rows, progress.passes())
+            from nodecast.trainer.streaming import train_streaming
+
             return train_streaming(source, job, progress.passes())
         finally:
             source.close()  # the spilled copy goes now, not when the garbage collector finds it

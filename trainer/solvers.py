@@ -129,10 +129,10 @@ def _cholesky_update(R, qty, design, Y, scratch):
 def _below_limit(gram) -> bool:
     """Whether ||W||_2^2 = the largest eigenvalue of W^T W (gram: its upper triangle) is below
     ``UPDATE_LIMIT``, where Gershgorin's bound could not tell: exactly when UPDATE_LIMIT I - W^T W
-    is positive definite, which its Cholesky factorisation decides (a backward-stable test: it succeeds only for a
-    matrix within rounding of a positive definite one). One M^3 / 3 step, against the Householder
-    QR of M + rows rows that a refusal costs (measured at M = 2000: Gershgorin refused blocks of
-    3,200 rows whose ||W||^2 was below the limit)."""
+    is positive definite, which its Cholesky factorisation decides (a backward-stable test: it
+    succeeds only for a matrix within rounding of a positive definite one). One M^3 / 3 step,
+    against the Householder QR of M + rows rows that a refusal costs (measured at M = 2000:
+    Gershgorin refused blocks of 3,200 rows whose ||W||^2 was below the limit)."""
     if not np.all(np.isfinite(gram)):
         return False
     test = -gram

@@ -62,6 +62,14 @@ def test_cluster_train_is_the_single_process_model(cluster, tmp_path, monkeypatc
         assert clustered.metadata["metrics"] == single.metadata["metrics"]  # counts: exact
 
 
+def test_neighbour_queries_use_one_thread_on_a_worker_and_every_core_elsewhere(cluster):
+    # a worker is one of the processes sharing the cores: its tree queries take one thread
+    from nodecast.trainer.neighbours import _query_threads
+
+    assert cluster.submit(_query_threads, pure=False).result() == 1
+    assert _query_threads() == -1
+
+
 def test_progress_of_cluster_passes_and_the_same_model(cluster, tmp_path, monkeypatch):
     from nodecast.trainer.progress import PassProgress
 
@@ -124,3 +132,14 @@ def test_bad_cluster_addresses_are_one_line_errors():
     with pytest.raises(NodecastError, match="positive number of workers"):
         with connect("local:zero"):
             pass
+
+
+@pytest.mark.parametrize("name", ["missing.csv", "missing.parquet"])
+def test_a_missing_file_for_train_on_a_cluster_is_one_line(tmp_path, capsys, name):
+    # the file is opened (its header) before any cluster starts or its provenance is recorded
+    with pytest.raises(SystemExit) as stop:
+        main(["train", str(tmp_path / name), "--target", "y", "--cluster", "local:1",
+              "-o", str(tmp_path / "m.ncast")])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert stop.value.code == 2 and len(err) == 1 and "cannot read" in err[0], err
+    assert not (tmp_path / "m.ncast").exists()

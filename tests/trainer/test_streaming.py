@@ -4,7 +4,6 @@ chunks, held-out rows by row hash) checked against outside references."""
 
 from __future__ import annotations
 
-
 import numpy as np
 import pytest
 from scipy import stats
