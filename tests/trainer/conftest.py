@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from contextlib import contextmanager
+
 import pytest
 
 
@@ -18,3 +20,19 @@ def cluster():
                                       processes=True) as local:
             with distributed.Client(local) as client:
                 yield client
+
+
+@pytest.fixture
+def synchronous(request, monkeypatch):
+    """``--cluster`` runs on Dask's synchronous scheduler in this process (no workers: fast), the
+    file cut into partitions of the test module's ``PARTITION_BYTES``."""
+    dask = pytest.importorskip("dask")
+    from nodecast.trainer import distributed, frames
+
+    @contextmanager
+    def connect(address):
+        with dask.config.set(scheduler="sync"):
+            yield None
+
+    monkeypatch.setattr(distributed, "connect", connect)
+    monkeypatch.setattr(frames, "BLOCK_BYTES", request.module.PARTITION_BYTES)

@@ -4,8 +4,6 @@ line and exit status 2. The real LocalCluster runs are in test_cluster.py (slow)
 
 from __future__ import annotations
 
-from contextlib import contextmanager
-
 import numpy as np
 import pytest
 
@@ -14,19 +12,10 @@ pytest.importorskip("pandas")
 
 from nodecast.cli import main  # noqa: E402
 from nodecast.compiler.csvio import read_table  # noqa: E402
-from nodecast.trainer import cluster_training, distributed, frames  # noqa: E402
+from nodecast.trainer import cluster_training, frames  # noqa: E402
 from nodecast.trainer.training import TrainingJob, train  # noqa: E402
 
-
-@pytest.fixture
-def synchronous(monkeypatch):
-    @contextmanager
-    def connect(address):
-        with dask.config.set(scheduler="sync"):
-            yield None
-
-    monkeypatch.setattr(distributed, "connect", connect)
-    monkeypatch.setattr(frames, "BLOCK_BYTES", 8_000)  # about 5 partitions of a small file
+PARTITION_BYTES = 8_000  # about 5 partitions of a small file, for the synchronous fixture (conftest.py)
 
 
 def _log(path, rows=900, bad=None, copies=1):

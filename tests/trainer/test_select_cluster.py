@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import json
 import os
-from contextlib import contextmanager
 
 import numpy as np
 import pytest
@@ -17,7 +16,7 @@ dask = pytest.importorskip("dask")
 pytest.importorskip("pandas")
 
 from nodecast.cli import main  # noqa: E402
-from nodecast.trainer import distributed, frames  # noqa: E402
+from nodecast.trainer import frames  # noqa: E402
 from tests.trainer.friedman_log import FEATURES, friedman_log, write_log  # noqa: E402
 
 REGRESSION = ["--target", "y", "--method", "data-driven,weight-sum", "--neighbors", "default,20",
@@ -31,15 +30,7 @@ def bench(tmp_path_factory):
     return write_log(tmp_path_factory.mktemp("cluster-select") / "bench.csv", *friedman_log(rows=1500))
 
 
-@pytest.fixture
-def synchronous(monkeypatch):
-    @contextmanager
-    def connect(address):
-        with dask.config.set(scheduler="sync"):
-            yield None
-
-    monkeypatch.setattr(distributed, "connect", connect)
-    monkeypatch.setattr(frames, "BLOCK_BYTES", 20_000)  # about 7 partitions of the file
+PARTITION_BYTES = 20_000  # about 7 partitions of the file, for the synchronous fixture (conftest.py)
 
 
 def _run(bench, out, args, capsys, *extra):

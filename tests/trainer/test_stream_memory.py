@@ -1,5 +1,6 @@
-"""Peak memory of a streamed ``train`` does not grow with the rows: measured in a fresh subprocess
-(the resident-set peak, getrusage), on a Parquet file of 20,000 and of 200,000 rows."""
+"""Peak memory of a streamed ``train`` and a streamed ``select`` does not grow with the rows:
+measured in a fresh subprocess (the resident-set peak, getrusage, and the traced peak of the run's
+own arrays, tracemalloc), on a Parquet file of 20,000 and of 200,000 rows."""
 
 from __future__ import annotations
 
@@ -13,22 +14,40 @@ import pytest
 pa = pytest.importorskip("pyarrow")
 pq = pytest.importorskip("pyarrow.parquet")
 
-# The row blocks of the factor hold BLOCK_ENTRIES numbers whatever the rows (32 MB by default), and
-# the default ridge's check rows grow with the rows up to CHECK_ROWS (20,000: reached at 100,000
-# rows); smaller values let 20,000 rows already run at the steady sizes, so that the test is short.
-MEASURE = """
+# What grows with the rows up to a cap is capped lower, so that 20,000 rows already run at the
+# steady sizes and the test is short: the row blocks of the factor (BLOCK_ENTRIES numbers, 32 MB by
+# default), the default ridge's check rows (CHECK_ROWS, 20,000: reached at 100,000 rows) and, for
+# select, each fold's strided rows of the global trend (GLOBAL_ROWS).
+CAPS = """
 import json, resource, sys, tracemalloc
 from nodecast.trainer import hidden, ridge_choice
+from nodecast.trainer.generators import data_driven
 hidden.BLOCK_ENTRIES = 2**18
 ridge_choice.CHECK_ROWS = 2000
+data_driven.GLOBAL_ROWS = 1000
 import pyarrow.parquet, scipy.spatial, sklearn
 from nodecast.trainer.sources import ParquetSource
-from nodecast.trainer.streaming import train_streaming
 from nodecast.trainer.training import TrainingJob
+"""
+RUN = {
+    "train": """
+from nodecast.trainer.streaming import train_streaming
 job = TrainingJob(targets=("y",), params={"n_nodes": 50, "ridge": 1e-6}, validation_fraction=0.2)
+run = lambda source: train_streaming(source, job)
+""",
+    "select": """
+from nodecast.trainer.grid import make_grid
+from nodecast.trainer.method_grid import layer_grid
+from nodecast.trainer.selection import SearchSettings
+from nodecast.trainer.selection_stream import select_streaming
+job = TrainingJob(targets=("y",), validation_fraction=0.2)
+grid = make_grid([20, 50], [1e-6, 1e-3], layer_grid(["data-driven", "interval"], {}))
+run = lambda source: select_streaming(source, job, grid, SearchSettings(folds=5, seed=0))[1]
+"""}
+MEASURE = """
 before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
 tracemalloc.start()
-bundle = train_streaming(ParquetSource(sys.argv[1], 2000), job)
+bundle = run(ParquetSource(sys.argv[1], 2000))
 arrays = tracemalloc.get_traced_memory()[1]
 after = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
 print(json.dumps({"before_kib": before, "peak_kib": after, "rows": bundle.metadata["rows"],
@@ -44,19 +63,20 @@ def _write(path, rows):
     return path
 
 
-def _measure(path):
-    done = subprocess.run([sys.executable, "-c", MEASURE, str(path)], capture_output=True, text=True,
-                          check=True, timeout=600)
+def _measure(command, path):
+    done = subprocess.run([sys.executable, "-c", CAPS + RUN[command] + MEASURE, str(path)],
+                          capture_output=True, text=True, check=True, timeout=900)
     return json.loads(done.stdout.strip().splitlines()[-1])
 
 
 @pytest.mark.slow
-def test_peak_memory_stays_within_10_percent_when_rows_grow_10x(tmp_path):
-    small = _measure(_write(tmp_path / "small.parquet", 20_000))
-    large = _measure(_write(tmp_path / "large.parquet", 200_000))
+@pytest.mark.parametrize("command", ["train", "select"])
+def test_peak_memory_stays_within_10_percent_when_rows_grow_10x(tmp_path, command):
+    small = _measure(command, _write(tmp_path / "small.parquet", 20_000))
+    large = _measure(command, _write(tmp_path / "large.parquet", 200_000))
     assert (small["rows"], large["rows"]) == (20_000, 200_000)
-    assert large["peak_kib"] <= 1.10 * small["peak_kib"]
-    # and the fit's own arrays (numpy's and Python's allocations, traced by tracemalloc): the
+    assert large["peak_kib"] <= 1.10 * small["peak_kib"], (small, large)
+    # and the run's own arrays (numpy's and Python's allocations, traced by tracemalloc): the
     # resident set above the loaded libraries also holds what pyarrow's and the C allocators keep
     # (measured: about 4 MB more after 100 row groups than after 10, while the traced peak stays
     # within 4%)
