@@ -228,3 +228,22 @@ def test_a_spilled_csv_is_parsed_once_and_gives_the_same_bundle(bench_csv):
     import os
 
     assert not os.path.exists(folder)
+
+
+def test_a_bad_cell_is_reported_in_the_words_of_the_whole_file_read(tmp_path, capsys):
+    """A refused cell is bad input, not a failed fit: streamed or whole, the same one line (no
+    'cannot train:' in front of the reader's message)."""
+    X, rise, grade = _table(300)
+    path = _write_csv(tmp_path / "bench.csv", X, rise, grade)
+    lines = path.read_text().splitlines()
+    lines[250] = lines[250].replace(lines[250].split(",")[2], "nan", 1)
+    path.write_text("\n".join(lines) + "\n")
+    errors = []
+    for extra in ([], ["--chunk-rows", "64"]):
+        with pytest.raises(SystemExit) as stop:
+            main(["train", str(path), "--target", "rise", "--features", "flow,stage,drift",
+                  "--nodes", "10", "-o", str(tmp_path / "model.ncast")] + extra)
+        assert stop.value.code == 2
+        errors.append(capsys.readouterr().err.strip())
+    assert "line 251" in errors[0] and "'drift'" in errors[0]
+    assert errors[1] == errors[0]
