@@ -16,9 +16,28 @@ def _frame_part(frame, features, targets, classify):
     """(X, Y or labels) of a pandas partition."""
     X = frame[list(features)].to_numpy(dtype=np.float64)
     if classify:
-        labels = frame[targets[0]].astype(str).str.strip().to_numpy(dtype=object)
-        return X, labels
+        return X, _labels(frame[targets[0]], targets[0])
     return X, frame[list(targets)].to_numpy(dtype=np.float64)
+
+
+def _labels(column, name):
+    """Class labels as the single-process readers give them: the text of a text column, stripped;
+    numbers and booleans written by pyarrow as :class:`~nodecast.trainer.sources.ParquetSource`
+    does (2.0 is "2" and True "true", not pandas' "2.0" and "True"). A missing or empty label is
+    refused, as it is there (pandas would make a class "" or "None" of it)."""
+    import pandas
+    import pyarrow as pa
+
+    if column.isna().any():
+        raise NodecastError(f"column {name!r}: empty cell (missing value)")
+    if pandas.api.types.is_numeric_dtype(column) or pandas.api.types.is_bool_dtype(column):
+        text = pa.array(column.to_numpy()).cast(pa.string()).to_pylist()
+    else:
+        text = column.astype(str).tolist()
+    labels = np.asarray([value.strip() for value in text], dtype=object)
+    if (labels == "").any():
+        raise NodecastError(f"column {name!r}: empty cell (missing value)")
+    return labels
 
 
 def frame_rows(frame, features, targets, classify: bool) -> ClusterRows:

@@ -91,3 +91,47 @@ def test_small_data_take_the_second_fit_for_validation_on_partitions_too(tmp_pat
     assert a["rows"] == b["rows"] > 0
     assert np.allclose(a["rmse"], b["rmse"], rtol=1e-9)
     assert np.array_equal(single.network.hidden_weights, clustered.network.hidden_weights)
+
+
+@pytest.mark.parametrize("kind", ["float", "bool"])
+def test_class_labels_of_a_parquet_number_column_are_those_of_one_process(tmp_path, synchronous,
+                                                                          kind):
+    # pyarrow writes 2.0 as "2" and True as "true" (the single-process reader); pandas would give
+    # "2.0" and "True", so the cluster's bundle would name (and order) its classes differently
+    pa = pytest.importorskip("pyarrow")
+    pq = pytest.importorskip("pyarrow.parquet")
+    from nodecast.trainer.sources import ParquetSource
+    from nodecast.trainer.streaming import train_streaming
+
+    rng = np.random.default_rng(2)
+    X = rng.uniform(0, 1, (300, 2))
+    level = X[:, 0] + X[:, 1]
+    label = (np.where(level > 1.3, 2.0, np.where(level > 0.7, 1.5, 0.0)) if kind == "float"
+             else level > 1.0)
+    path = tmp_path / "pump.parquet"
+    pq.write_table(pa.table({"speed": X[:, 0], "head": X[:, 1], "grade": label}), path,
+                   row_group_size=70)
+    job = TrainingJob(targets=("grade",), task="classification", params={"n_nodes": 12}, seed=1)
+    single = train_streaming(ParquetSource(path), job)
+    clustered = cluster_training.train_on_cluster(path, job, "sync")
+    expected = ("0", "1.5", "2") if kind == "float" else ("false", "true")
+    assert single.network.class_labels == expected
+    assert clustered.network.class_labels == expected
+    assert np.array_equal(single.network.hidden_weights, clustered.network.hidden_weights)
+
+
+def test_an_empty_class_label_read_on_the_cluster_is_refused(tmp_path, synchronous, capsys):
+    # one process refuses the empty cell; the workers' pandas reader would make a class "" of it
+    path = _log(tmp_path / "pump.csv")
+    lines = path.read_text().splitlines()
+    lines = [lines[0] + ",grade"] + [f"{line},{'ok' if i % 3 else 'worn'}"
+                                     for i, line in enumerate(lines[1:])]
+    lines[600] = lines[600].rpartition(",")[0] + ","
+    path.write_text("\n".join(lines) + "\n")
+    out = tmp_path / "pump.ncast"
+    with pytest.raises(SystemExit) as stop:
+        main(["train", str(path), "--target", "grade", "--task", "classification",
+              "--features", "speed,head", "--cluster", "sync", "-o", str(out)])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert stop.value.code == 2 and not out.exists()
+    assert len(err) == 1 and "'grade'" in err[0] and "empty cell" in err[0], err
