@@ -56,6 +56,16 @@ def _exact_floats() -> dict:
     return {} if int(pandas.__version__.split(".")[0]) >= 3 else {"float_precision": "round_trip"}
 
 
+def _ends_lines_with_newline(path, probe: int = 2**20) -> bool:
+    """Whether the file's first line ends in "\n" (or "\r\n"): the workers split a CSV file into
+    byte blocks at "\n", and a file whose lines end in "\r" alone has none, so that every block
+    would read the whole file (every row counted once per block). Such a file is one partition."""
+    with open(path, "rb") as file:
+        head = file.read(probe)
+    cr, lf = head.find(b"\r"), head.find(b"\n")
+    return not (cr >= 0 and (lf < 0 or lf > cr + 1))
+
+
 def file_partitions(path, job, chunk_rows=None) -> tuple[tuple[str, ...], ClusterRows]:
     """The header of the training file and its partitions, read by the workers (the file must be
     at the same path for every worker: a shared file system or object store)."""
@@ -77,7 +87,8 @@ def file_partitions(path, job, chunk_rows=None) -> tuple[tuple[str, ...], Cluste
         types = {name: np.float64 for name in columns}
         if classify:
             types[job.targets[0]] = object
-        frame = dd.read_csv(path, usecols=columns, dtype=types, blocksize=BLOCK_BYTES,
+        blocks = BLOCK_BYTES if _ends_lines_with_newline(path) else None
+        frame = dd.read_csv(path, usecols=columns, dtype=types, blocksize=blocks,
                             na_filter=False, skipinitialspace=True, encoding="utf-8-sig",
                             **_exact_floats())
     return header, frame_rows(frame, features, job.targets, classify)

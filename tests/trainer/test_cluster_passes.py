@@ -135,3 +135,18 @@ def test_an_empty_class_label_read_on_the_cluster_is_refused(tmp_path, synchrono
     err = capsys.readouterr().err.strip().splitlines()
     assert stop.value.code == 2 and not out.exists()
     assert len(err) == 1 and "'grade'" in err[0] and "empty cell" in err[0], err
+
+
+def test_a_file_with_carriage_return_line_ends_is_read_once_on_the_cluster(tmp_path, synchronous):
+    # the workers split a CSV file into byte blocks at "\n"; a file whose lines end in "\r" alone
+    # (old spreadsheet exports; one process reads any line ending) has none, and every block read
+    # the whole file: the cluster trained on as many copies of every row as the file had blocks
+    path = _log(tmp_path / "pump.csv")
+    path.write_bytes(path.read_bytes().replace(b"\n", b"\r"))
+    job = TrainingJob(targets=("power",), params={"n_nodes": 20}, seed=2)
+    _, rows = frames.file_partitions(path, job)
+    assert sum(rows.counts()) == 900
+    single = train(read_table(path), job)
+    clustered = cluster_training.train_on_cluster(path, job, "sync")
+    assert np.array_equal(single.network.hidden_weights, clustered.network.hidden_weights)
+    assert clustered.metadata["metrics"]["training"]["rows"] == 900
