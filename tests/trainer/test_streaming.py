@@ -247,3 +247,33 @@ def test_a_bad_cell_is_reported_in_the_words_of_the_whole_file_read(tmp_path, ca
         errors.append(capsys.readouterr().err.strip())
     assert "line 251" in errors[0] and "'drift'" in errors[0]
     assert errors[1] == errors[0]
+
+
+def test_a_full_temporary_folder_is_one_line_and_leaves_nothing(tmp_path, bench_csv, capsys,
+                                                                 monkeypatch):
+    # a streamed CSV keeps its parsed columns in $TMPDIR (8 bytes per number): a disk that fills
+    # up on the way must end the run with one line, no traceback, no bundle and no leftovers
+    import errno
+
+    from nodecast.trainer import sources
+
+    real, calls = np.save, []
+
+    def filling_save(*args, **kwargs):
+        calls.append(args[0])
+        if len(calls) > 3:
+            raise OSError(errno.ENOSPC, "No space left on device")
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(sources.np, "save", filling_save)
+    monkeypatch.setenv("TMPDIR", str(tmp_path / "spill"))
+    (tmp_path / "spill").mkdir()
+    monkeypatch.setattr(sources.tempfile, "tempdir", None)  # read TMPDIR again
+    out = tmp_path / "model.ncast"
+    with pytest.raises(SystemExit) as stop:
+        main(["train", str(bench_csv), "--target", "rise", "--features", "flow,stage,drift",
+              "--chunk-rows", "100", "-o", str(out)])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert stop.value.code == 2 and not out.exists()
+    assert len(err) == 1 and "No space left" in err[0] and "TMPDIR" in err[0], err
+    assert list((tmp_path / "spill").iterdir()) == []
