@@ -143,13 +143,28 @@ class ParquetSource(TableSource):
         columns = list(dict.fromkeys(list(names) + ([label] if label else [])))
         self.check_columns(columns)
         first = 0
-        for batch in self.file.iter_batches(batch_size=self.chunk_rows, columns=columns):
+        for batch in self._batches(columns):
             numbers = np.empty((batch.num_rows, len(names)))
             for c, name in enumerate(names):
                 numbers[:, c] = self._numbers(batch.column(name), name, first, pa)
             labels = self._labels(batch.column(label), label, first, pa) if label else None
             yield Chunk(first, numbers, labels)
             first += batch.num_rows
+
+    def _batches(self, columns):
+        """The record batches of ``columns``; a damaged part of the file is one line, naming the
+        data rows read before it."""
+        batches, first = self.file.iter_batches(batch_size=self.chunk_rows, columns=columns), 0
+        while True:
+            try:
+                batch = next(batches)
+            except StopIteration:
+                return
+            except (OSError, ValueError) as exc:  # pyarrow's ArrowInvalid is a ValueError
+                raise NodecastError(f"cannot read {self.source} as Parquet after data row {first}: "
+                                    f"{' '.join(str(exc).split())}") from None
+            first += batch.num_rows
+            yield batch
 
     def _missing(self, column, name, first):
         if column.null_count:

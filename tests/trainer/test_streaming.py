@@ -277,3 +277,25 @@ def test_a_full_temporary_folder_is_one_line_and_leaves_nothing(tmp_path, bench_
     assert stop.value.code == 2 and not out.exists()
     assert len(err) == 1 and "No space left" in err[0] and "TMPDIR" in err[0], err
     assert list((tmp_path / "spill").iterdir()) == []
+
+
+def test_a_damaged_parquet_row_group_is_one_line_and_writes_nothing(tmp_path, capsys):
+    # the footer reads fine, a later row group's data page does not: pyarrow raises while the
+    # chunks are read, which must end the run with one line (exit 2), not a traceback
+    pa = pytest.importorskip("pyarrow")
+    pq = pytest.importorskip("pyarrow.parquet")
+    X, rise, _ = _table(4000)
+    path = tmp_path / "bench.parquet"
+    pq.write_table(pa.table({"flow": X[:, 0], "stage": X[:, 1], "drift": X[:, 2], "rise": rise}),
+                   path, row_group_size=1000, compression="snappy")
+    data = bytearray(path.read_bytes())
+    start = pq.ParquetFile(path).metadata.row_group(2).column(0).data_page_offset
+    data[start + 40:start + 2000] = bytes((7 * b + 13) % 256 for b in data[start + 40:start + 2000])
+    path.write_bytes(bytes(data))
+    out = tmp_path / "model.ncast"
+    with pytest.raises(SystemExit) as stop:
+        main(["train", str(path), "--target", "rise", "--nodes", "10", "--chunk-rows", "500",
+              "-o", str(out)])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert stop.value.code == 2 and not out.exists()
+    assert len(err) == 1 and "cannot read" in err[0] and "after data row 2000" in err[0], err
