@@ -150,3 +150,24 @@ def test_a_file_with_carriage_return_line_ends_is_read_once_on_the_cluster(tmp_p
     clustered = cluster_training.train_on_cluster(path, job, "sync")
     assert np.array_equal(single.network.hidden_weights, clustered.network.hidden_weights)
     assert clustered.metadata["metrics"]["training"]["rows"] == 900
+
+
+def test_a_damaged_parquet_row_group_read_on_the_cluster_is_one_line(tmp_path, synchronous, capsys):
+    # pyarrow raises OSError on the worker that reads the damaged row group: one line, exit 2
+    pa = pytest.importorskip("pyarrow")
+    pq = pytest.importorskip("pyarrow.parquet")
+    rng = np.random.default_rng(4)
+    X = rng.uniform(0, 1, (4000, 2))
+    path = tmp_path / "pump.parquet"
+    pq.write_table(pa.table({"speed": X[:, 0], "head": X[:, 1], "power": X[:, 0] ** 3 + X[:, 1]}),
+                   path, row_group_size=1000)
+    data = bytearray(path.read_bytes())
+    start = pq.ParquetFile(path).metadata.row_group(2).column(0).data_page_offset
+    data[start + 40:start + 2000] = bytes((7 * b + 13) % 256 for b in data[start + 40:start + 2000])
+    path.write_bytes(bytes(data))
+    out = tmp_path / "pump.ncast"
+    with pytest.raises(SystemExit) as stop:
+        main(["train", str(path), "--target", "power", "--cluster", "sync", "-o", str(out)])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert stop.value.code == 2 and not out.exists()
+    assert len(err) == 1 and "could not read the data" in err[0], err
