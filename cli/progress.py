@@ -20,6 +20,8 @@ import sys
 import threading
 import time
 
+from nodecast.cli.terminal import EscapingStream, printable
+
 QUIET_SECONDS = 3.0
 LOG_INTERVAL = 15.0
 
@@ -103,8 +105,17 @@ class Progress:
             if self._due():
                 self._shown = True
                 text = self.line()
-                self.stream.write(f"\r{text}\x1b[K" if self.tty else text + "\n")
+                if self.tty:  # the text escaped, the erase-to-end-of-line sent as the escape it is
+                    _raw(self.stream).write(f"\r{printable(text)}\x1b[K")
+                else:
+                    self.stream.write(text + "\n")
                 self.stream.flush()
+
+
+def _raw(stream):
+    """The stream under the CLI's :class:`~nodecast.cli.terminal.EscapingStream`, if any (which
+    would print the progress line's own escape as the text "\\x1b[K")."""
+    return stream._stream if isinstance(stream, EscapingStream) else stream
 
 
 class EngineClock:

@@ -164,3 +164,26 @@ def test_ctrl_c_stops_a_long_fit_at_once_with_status_130(tmp_path):
     assert child.returncode == 130, seen + [rest]
     assert rest.strip().splitlines()[-1] == "nodecast: interrupted"
     assert not out.exists() and not [p for p in os.listdir(tmp_path) if p.endswith(".part")]
+
+
+def test_the_progress_line_on_a_terminal_erases_its_tail_with_a_real_escape(monkeypatch):
+    # the CLI writes stderr through EscapingStream (hostile text is shown, never obeyed); the
+    # progress line's own erase-to-end-of-line must still reach the terminal as ESC [ K, not as
+    # the six characters "\x1b[K" after every redraw, while text in the line stays escaped
+    from nodecast.cli import progress as progress_module
+    from nodecast.cli.terminal import EscapingStream
+
+    class Terminal(io.StringIO):
+        def isatty(self):
+            return True
+
+    terminal = Terminal()
+    monkeypatch.setattr(progress_module, "QUIET_SECONDS", 0.0)
+    with Progress("train", stream=EscapingStream(terminal), interval=0.05) as progress:
+        progress.stage("factor: rows of \x1b]0;pwned\x07")
+        progress.start()
+        time.sleep(0.5)
+    shown = terminal.getvalue()
+    assert "\rtrain: factor: rows of \\x1b]0;pwned\\x07" in shown
+    assert "\x1b[K" in shown and "\\x1b[K" not in shown
+    assert "\x1b]" not in shown and "\x07" not in shown

@@ -17,7 +17,7 @@ from contextlib import contextmanager
 
 import numpy as np
 
-from nodecast.compiler.errors import NodecastError
+from nodecast.compiler.errors import NodecastError, one_line
 from nodecast.trainer import partition_passes as passes
 from nodecast.trainer import ridge_choice, solvers
 from nodecast.trainer.metrics import MetricSums
@@ -196,4 +196,7 @@ def worker_failures():
         if name in ("CommClosedError", "FutureCancelledError", "CancelledError"):
             raise NodecastError(f"lost the Dask cluster during training ({name}); no bundle was "
                                 "written") from None
+        if isinstance(exc, OSError):  # a worker's reader: a damaged or vanished file
+            raise NodecastError(f"a Dask worker could not read the data ({one_line(exc)}); no "
+                                "bundle was written") from None
         raise

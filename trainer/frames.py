@@ -16,9 +16,28 @@ def _frame_part(frame, features, targets, classify):
     """(X, Y or labels) of a pandas partition."""
     X = frame[list(features)].to_numpy(dtype=np.float64)
     if classify:
-        labels = frame[targets[0]].astype(str).str.strip().to_numpy(dtype=object)
-        return X, labels
+        return X, _labels(frame[targets[0]], targets[0])
     return X, frame[list(targets)].to_numpy(dtype=np.float64)
+
+
+def _labels(column, name):
+    """Class labels as the single-process readers give them: the text of a text column, stripped;
+    numbers and booleans written by pyarrow as :class:`~nodecast.trainer.sources.ParquetSource`
+    does (2.0 is "2" and True "true", not pandas' "2.0" and "True"). A missing or empty label is
+    refused, as it is there (pandas would make a class "" or "None" of it)."""
+    import pandas
+    import pyarrow as pa
+
+    if column.isna().any():
+        raise NodecastError(f"column {name!r}: empty cell (missing value)")
+    if pandas.api.types.is_numeric_dtype(column) or pandas.api.types.is_bool_dtype(column):
+        text = pa.array(column.to_numpy()).cast(pa.string()).to_pylist()
+    else:
+        text = column.astype(str).tolist()
+    labels = np.asarray([value.strip() for value in text], dtype=object)
+    if (labels == "").any():
+        raise NodecastError(f"column {name!r}: empty cell (missing value)")
+    return labels
 
 
 def frame_rows(frame, features, targets, classify: bool) -> ClusterRows:
@@ -35,6 +54,16 @@ def _exact_floats() -> dict:
     import pandas
 
     return {} if int(pandas.__version__.split(".")[0]) >= 3 else {"float_precision": "round_trip"}
+
+
+def _ends_lines_with_newline(path, probe: int = 2**20) -> bool:
+    """Whether the file's first line ends in "\n" (or "\r\n"): the workers split a CSV file into
+    byte blocks at "\n", and a file whose lines end in "\r" alone has none, so that every block
+    would read the whole file (every row counted once per block). Such a file is one partition."""
+    with open(path, "rb") as file:
+        head = file.read(probe)
+    cr, lf = head.find(b"\r"), head.find(b"\n")
+    return not (cr >= 0 and (lf < 0 or lf > cr + 1))
 
 
 def file_partitions(path, job, chunk_rows=None) -> tuple[tuple[str, ...], ClusterRows]:
@@ -58,7 +87,8 @@ def file_partitions(path, job, chunk_rows=None) -> tuple[tuple[str, ...], Cluste
         types = {name: np.float64 for name in columns}
         if classify:
             types[job.targets[0]] = object
-        frame = dd.read_csv(path, usecols=columns, dtype=types, blocksize=BLOCK_BYTES,
+        blocks = BLOCK_BYTES if _ends_lines_with_newline(path) else None
+        frame = dd.read_csv(path, usecols=columns, dtype=types, blocksize=blocks,
                             na_filter=False, skipinitialspace=True, encoding="utf-8-sig",
                             **_exact_floats())
     return header, frame_rows(frame, features, job.targets, classify)

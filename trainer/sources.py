@@ -9,6 +9,7 @@ once: its parsed columns are kept in a temporary folder for the later passes (:c
 
 from __future__ import annotations
 
+import contextlib
 import csv
 import os
 import tempfile
@@ -142,13 +143,28 @@ class ParquetSource(TableSource):
         columns = list(dict.fromkeys(list(names) + ([label] if label else [])))
         self.check_columns(columns)
         first = 0
-        for batch in self.file.iter_batches(batch_size=self.chunk_rows, columns=columns):
+        for batch in self._batches(columns):
             numbers = np.empty((batch.num_rows, len(names)))
             for c, name in enumerate(names):
                 numbers[:, c] = self._numbers(batch.column(name), name, first, pa)
             labels = self._labels(batch.column(label), label, first, pa) if label else None
             yield Chunk(first, numbers, labels)
             first += batch.num_rows
+
+    def _batches(self, columns):
+        """The record batches of ``columns``; a damaged part of the file is one line, naming the
+        data rows read before it."""
+        batches, first = self.file.iter_batches(batch_size=self.chunk_rows, columns=columns), 0
+        while True:
+            try:
+                batch = next(batches)
+            except StopIteration:
+                return
+            except (OSError, ValueError) as exc:  # pyarrow's ArrowInvalid is a ValueError
+                raise NodecastError(f"cannot read {self.source} as Parquet after data row {first}: "
+                                    f"{' '.join(str(exc).split())}") from None
+            first += batch.num_rows
+            yield batch
 
     def _missing(self, column, name, first):
         if column.null_count:
@@ -189,19 +205,34 @@ class SpilledSource(TableSource):
             yield from self._read_back(label is not None)
             return
         self.close()
-        self.folder, self.key, self.count = tempfile.TemporaryDirectory(prefix="nodecast-"), key, 0
         complete = False
         try:
+            with self._spill_errors():
+                self.folder = tempfile.TemporaryDirectory(prefix="nodecast-")
+            self.key, self.count = key, 0
             for chunk in self.inner.chunks(names, label):
-                np.save(self._path(self.count, "x"), chunk.numbers)
-                if chunk.labels is not None:
-                    np.save(self._path(self.count, "y"), chunk.labels.astype(str))
+                with self._spill_errors():
+                    np.save(self._path(self.count, "x"), chunk.numbers)
+                    if chunk.labels is not None:
+                        np.save(self._path(self.count, "y"), chunk.labels.astype(str))
                 self.count += 1
                 yield chunk
             complete = True
         finally:
             if not complete:
                 self.close()
+
+    @contextlib.contextmanager
+    def _spill_errors(self):
+        """A full or unwritable temporary folder: one line that says what to do, not a traceback."""
+        try:
+            yield
+        except OSError as exc:
+            where = f" {self.folder.name}" if self.folder is not None else ""
+            raise NodecastError(f"{self.source}: cannot keep the parsed copy of the file in the "
+                                f"temporary folder{where} ({exc.strerror or exc}); free space "
+                                "there or set TMPDIR to a folder with room (8 bytes per number "
+                                "read)") from None
 
     def _read_back(self, with_labels: bool):
         first = 0

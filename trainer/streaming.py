@@ -143,5 +143,7 @@ def train_streaming(source, job: TrainingJob, progress: PassProgress | None = No
     run = StreamedTraining(source, job, progress)
     try:
         return run.run()
+    except NodecastError:
+        raise  # bad input (a refused cell, too few rows): its own words, not a failed fit
     except ValueError as exc:
         raise NodecastError(f"cannot train: {' '.join(str(exc).split())}") from None

@@ -80,3 +80,83 @@ def test_small_data_take_the_second_fit_for_validation_on_partitions_too(tmp_pat
     assert a["rows"] == b["rows"] > 0
     assert np.allclose(a["rmse"], b["rmse"], rtol=1e-9)
     assert np.array_equal(single.network.hidden_weights, clustered.network.hidden_weights)
+
+
+@pytest.mark.parametrize("kind", ["float", "bool"])
+def test_class_labels_of_a_parquet_number_column_are_those_of_one_process(tmp_path, synchronous,
+                                                                          kind):
+    # pyarrow writes 2.0 as "2" and True as "true" (the single-process reader); pandas would give
+    # "2.0" and "True", so the cluster's bundle would name (and order) its classes differently
+    pa = pytest.importorskip("pyarrow")
+    pq = pytest.importorskip("pyarrow.parquet")
+    from nodecast.trainer.sources import ParquetSource
+    from nodecast.trainer.streaming import train_streaming
+
+    rng = np.random.default_rng(2)
+    X = rng.uniform(0, 1, (300, 2))
+    level = X[:, 0] + X[:, 1]
+    label = (np.where(level > 1.3, 2.0, np.where(level > 0.7, 1.5, 0.0)) if kind == "float"
+             else level > 1.0)
+    path = tmp_path / "pump.parquet"
+    pq.write_table(pa.table({"speed": X[:, 0], "head": X[:, 1], "grade": label}), path,
+                   row_group_size=70)
+    job = TrainingJob(targets=("grade",), task="classification", params={"n_nodes": 12}, seed=1)
+    single = train_streaming(ParquetSource(path), job)
+    clustered = cluster_training.train_on_cluster(path, job, "sync")
+    expected = ("0", "1.5", "2") if kind == "float" else ("false", "true")
+    assert single.network.class_labels == expected
+    assert clustered.network.class_labels == expected
+    assert np.array_equal(single.network.hidden_weights, clustered.network.hidden_weights)
+
+
+def test_an_empty_class_label_read_on_the_cluster_is_refused(tmp_path, synchronous, capsys):
+    # one process refuses the empty cell; the workers' pandas reader would make a class "" of it
+    path = _log(tmp_path / "pump.csv")
+    lines = path.read_text().splitlines()
+    lines = [lines[0] + ",grade"] + [f"{line},{'ok' if i % 3 else 'worn'}"
+                                     for i, line in enumerate(lines[1:])]
+    lines[600] = lines[600].rpartition(",")[0] + ","
+    path.write_text("\n".join(lines) + "\n")
+    out = tmp_path / "pump.ncast"
+    with pytest.raises(SystemExit) as stop:
+        main(["train", str(path), "--target", "grade", "--task", "classification",
+              "--features", "speed,head", "--cluster", "sync", "-o", str(out)])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert stop.value.code == 2 and not out.exists()
+    assert len(err) == 1 and "'grade'" in err[0] and "empty cell" in err[0], err
+
+
+def test_a_file_with_carriage_return_line_ends_is_read_once_on_the_cluster(tmp_path, synchronous):
+    # the workers split a CSV file into byte blocks at "\n"; a file whose lines end in "\r" alone
+    # (old spreadsheet exports; one process reads any line ending) has none, and every block read
+    # the whole file: the cluster trained on as many copies of every row as the file had blocks
+    path = _log(tmp_path / "pump.csv")
+    path.write_bytes(path.read_bytes().replace(b"\n", b"\r"))
+    job = TrainingJob(targets=("power",), params={"n_nodes": 20}, seed=2)
+    _, rows = frames.file_partitions(path, job)
+    assert sum(rows.counts()) == 900
+    single = train(read_table(path), job)
+    clustered = cluster_training.train_on_cluster(path, job, "sync")
+    assert np.array_equal(single.network.hidden_weights, clustered.network.hidden_weights)
+    assert clustered.metadata["metrics"]["training"]["rows"] == 900
+
+
+def test_a_damaged_parquet_row_group_read_on_the_cluster_is_one_line(tmp_path, synchronous, capsys):
+    # pyarrow raises OSError on the worker that reads the damaged row group: one line, exit 2
+    pa = pytest.importorskip("pyarrow")
+    pq = pytest.importorskip("pyarrow.parquet")
+    rng = np.random.default_rng(4)
+    X = rng.uniform(0, 1, (4000, 2))
+    path = tmp_path / "pump.parquet"
+    pq.write_table(pa.table({"speed": X[:, 0], "head": X[:, 1], "power": X[:, 0] ** 3 + X[:, 1]}),
+                   path, row_group_size=1000)
+    data = bytearray(path.read_bytes())
+    start = pq.ParquetFile(path).metadata.row_group(2).column(0).data_page_offset
+    data[start + 40:start + 2000] = bytes((7 * b + 13) % 256 for b in data[start + 40:start + 2000])
+    path.write_bytes(bytes(data))
+    out = tmp_path / "pump.ncast"
+    with pytest.raises(SystemExit) as stop:
+        main(["train", str(path), "--target", "power", "--cluster", "sync", "-o", str(out)])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert stop.value.code == 2 and not out.exists()
+    assert len(err) == 1 and "could not read the data" in err[0], err

@@ -228,3 +228,74 @@ def test_a_spilled_csv_is_parsed_once_and_gives_the_same_bundle(bench_csv):
     import os
 
     assert not os.path.exists(folder)
+
+
+def test_a_bad_cell_is_reported_in_the_words_of_the_whole_file_read(tmp_path, capsys):
+    """A refused cell is bad input, not a failed fit: streamed or whole, the same one line (no
+    'cannot train:' in front of the reader's message)."""
+    X, rise, grade = _table(300)
+    path = _write_csv(tmp_path / "bench.csv", X, rise, grade)
+    lines = path.read_text().splitlines()
+    lines[250] = lines[250].replace(lines[250].split(",")[2], "nan", 1)
+    path.write_text("\n".join(lines) + "\n")
+    errors = []
+    for extra in ([], ["--chunk-rows", "64"]):
+        with pytest.raises(SystemExit) as stop:
+            main(["train", str(path), "--target", "rise", "--features", "flow,stage,drift",
+                  "--nodes", "10", "-o", str(tmp_path / "model.ncast")] + extra)
+        assert stop.value.code == 2
+        errors.append(capsys.readouterr().err.strip())
+    assert "line 251" in errors[0] and "'drift'" in errors[0]
+    assert errors[1] == errors[0]
+
+
+def test_a_full_temporary_folder_is_one_line_and_leaves_nothing(tmp_path, bench_csv, capsys,
+                                                                 monkeypatch):
+    # a streamed CSV keeps its parsed columns in $TMPDIR (8 bytes per number): a disk that fills
+    # up on the way must end the run with one line, no traceback, no bundle and no leftovers
+    import errno
+
+    from nodecast.trainer import sources
+
+    real, calls = np.save, []
+
+    def filling_save(*args, **kwargs):
+        calls.append(args[0])
+        if len(calls) > 3:
+            raise OSError(errno.ENOSPC, "No space left on device")
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(sources.np, "save", filling_save)
+    monkeypatch.setenv("TMPDIR", str(tmp_path / "spill"))
+    (tmp_path / "spill").mkdir()
+    monkeypatch.setattr(sources.tempfile, "tempdir", None)  # read TMPDIR again
+    out = tmp_path / "model.ncast"
+    with pytest.raises(SystemExit) as stop:
+        main(["train", str(bench_csv), "--target", "rise", "--features", "flow,stage,drift",
+              "--chunk-rows", "100", "-o", str(out)])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert stop.value.code == 2 and not out.exists()
+    assert len(err) == 1 and "No space left" in err[0] and "TMPDIR" in err[0], err
+    assert list((tmp_path / "spill").iterdir()) == []
+
+
+def test_a_damaged_parquet_row_group_is_one_line_and_writes_nothing(tmp_path, capsys):
+    # the footer reads fine, a later row group's data page does not: pyarrow raises while the
+    # chunks are read, which must end the run with one line (exit 2), not a traceback
+    pa = pytest.importorskip("pyarrow")
+    pq = pytest.importorskip("pyarrow.parquet")
+    X, rise, _ = _table(4000)
+    path = tmp_path / "bench.parquet"
+    pq.write_table(pa.table({"flow": X[:, 0], "stage": X[:, 1], "drift": X[:, 2], "rise": rise}),
+                   path, row_group_size=1000, compression="snappy")
+    data = bytearray(path.read_bytes())
+    start = pq.ParquetFile(path).metadata.row_group(2).column(0).data_page_offset
+    data[start + 40:start + 2000] = bytes((7 * b + 13) % 256 for b in data[start + 40:start + 2000])
+    path.write_bytes(bytes(data))
+    out = tmp_path / "model.ncast"
+    with pytest.raises(SystemExit) as stop:
+        main(["train", str(path), "--target", "rise", "--nodes", "10", "--chunk-rows", "500",
+              "-o", str(out)])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert stop.value.code == 2 and not out.exists()
+    assert len(err) == 1 and "cannot read" in err[0] and "after data row 2000" in err[0], err
