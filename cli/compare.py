@@ -29,9 +29,10 @@ EXAMPLE = ("nodecast compare readings.csv --target heatsink_temp --report compar
 @grid_options
 @click.option("--ridge", default="0,1e-6", show_default=True,
               help="Ridge values lambda to try (0: minimum-norm least squares).")
-@click.option("--folds", type=click.IntRange(min=2), default=10, show_default=True,
+@click.option("--folds", type=click.IntRange(min=2),
               help="Cross-validation folds (by a hash of each row's inputs), the same for "
-                   "every contender.")
+                   "every contender. Default: 10, or fewer where 10 leave a fold empty (said on "
+                   "stderr).")
 @click.option("--activation", type=click.Choice(["logistic", "tanh"]), default="logistic",
               show_default=True)
 @click.option("--seed", type=int, default=0, show_default=True,
@@ -45,7 +46,7 @@ def compare(data, target, features, domain, method, nodes, neighbors, slope_scal
             angle_ranges, weight_sums, ridge, folds, activation, seed, jobs, report, plot):
     """Tune every hidden-node generator on DATA.csv by k-fold cross-validation (each on its own
     grid, all on the same folds, nodes and ridge values) and rank them by CV error."""
-    from nodecast.cli.parsing import parse_domain, parse_list
+    from nodecast.cli.parsing import parse_domain, parse_list, with_enough_folds
     from nodecast.cli.select import _jobs
     from nodecast.compiler.csvio import read_table
     from nodecast.trainer.comparison import compare as run_compare
@@ -62,10 +63,11 @@ def compare(data, target, features, domain, method, nodes, neighbors, slope_scal
     table = read_table(data)
     names = feature_columns(table.header, job)
     X, Y = finite_columns(table, names, "feature"), finite_columns(table, job.targets, "target")
-    settings = SearchSettings(folds, seed, activation, n_jobs=_jobs(jobs))
-    result = run_compare(X, Y, rows, parse_list(nodes, int, "--nodes"),
-                         parse_list(ridge, float, "--ridge"), settings, declared_box(job, names),
-                         _progress())
+    nodes, ridges = parse_list(nodes, int, "--nodes"), parse_list(ridge, float, "--ridge")
+    result = with_enough_folds(
+        lambda count: run_compare(X, Y, rows, nodes, ridges,
+                                  SearchSettings(count, seed, activation, n_jobs=_jobs(jobs)),
+                                  declared_box(job, names), _progress()), folds)
     click.echo(format_table(result))
     if report:
         _write_report(report, result, names, job.targets)

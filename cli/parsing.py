@@ -137,3 +137,29 @@ def parse_limits(text: str | None, option: str) -> tuple[float, ...] | None:
         raise NodecastError(f"{option} takes a number >= 0 or one per output, comma-separated, "
                             f"got {text!r}")
     return values
+
+
+DEFAULT_FOLDS = 10
+
+
+def with_enough_folds(run, folds: int | None):
+    """``run(folds)`` with ``--folds`` as given; by default (None) with ``DEFAULT_FOLDS`` or, where
+    the hashed folds leave one without rows or training rows (small or very repetitive data: a
+    row's fold is a hash of its values), the largest smaller count that does not, said on stderr."""
+    from nodecast.cli.messages import warn
+    from nodecast.trainer.folds import FoldSizeError
+
+    if folds is not None:
+        return run(folds)
+    first = None
+    for count in range(DEFAULT_FOLDS, 1, -1):
+        try:
+            result = run(count)
+        except FoldSizeError as exc:
+            first = first or exc
+            continue
+        if count < DEFAULT_FOLDS:
+            warn(f"with {DEFAULT_FOLDS} hashed folds {first.where}; used {count} folds "
+                 "(--folds sets them)")
+        return result
+    raise first

@@ -41,9 +41,10 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp "
 @grid_options
 @click.option("--ridge", default="0,1e-6", show_default=True,
               help="Ridge values lambda to try (0: minimum-norm least squares).")
-@click.option("--folds", type=click.IntRange(min=2), default=10, show_default=True,
+@click.option("--folds", type=click.IntRange(min=2),
               help="Cross-validation folds (a row's fold: a hash of its input values, so "
-                   "copies of a row share one).")
+                   "copies of a row share one). Default: 10, or fewer where 10 leave a fold "
+                   "empty (small or repetitive data; said on stderr).")
 @click.option("--activation", type=click.Choice(["logistic", "tanh"]), default="logistic",
               show_default=True)
 @click.option("--seed", type=click.IntRange(0, 2**32 - 1), default=0, show_default=True,
@@ -106,7 +107,14 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     """Choose nodes, the generator and its settings, and ridge by k-fold cross-validation on
     DATA (CSV, or Parquet by its .parquet suffix; a classifier: by accuracy or log-loss), refit
     the choice on all rows and save it as a bundle."""
-    from nodecast.cli.parsing import check_units, parse_domain, parse_list, parse_units
+    from nodecast.cli.parsing import (
+        DEFAULT_FOLDS,
+        check_units,
+        parse_domain,
+        parse_list,
+        parse_units,
+        with_enough_folds,
+    )
     from nodecast.cli.select_runs import in_memory_search, scaled_search
     from nodecast.compiler.bundle import save
     from nodecast.compiler.files import check_outputs
@@ -131,7 +139,8 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     layers = layer_grid(parse_methods(method), layer_values(neighbors, slope_scales, intervals,
                                                             angle_ranges, weight_sums))
     grid = make_grid(parse_list(nodes, int, "--nodes"), parse_list(ridge, float, "--ridge"), layers)
-    settings = SearchSettings(folds, seed, activation, precision, tolerance, _jobs(jobs))
+    settings = SearchSettings(folds or DEFAULT_FOLDS, seed, activation, precision, tolerance,
+                              _jobs(jobs))
     source = None if cluster else open_source(data, chunk_rows)
     scaled = partial(scaled_search, data, source, cluster, chunk_rows) \
         if cluster or not isinstance(source, MemorySource) else None
@@ -144,9 +153,14 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
         if precision or grow:
             raise NodecastError("--precision, --tolerance and --grow are for regression; "
                                 "classifier selection takes the grid, --folds and --score")
-        result, bundle = scaled(replace(job, task=task), grid, settings, scoring=scoring) \
-            if scaled else run_class_selection(source.table, replace(job, task=task), grid, folds,
-                                               activation, scoring, _jobs(jobs) or 1)
+        def search_classes(count):
+            if scaled:
+                return scaled(replace(job, task=task), grid, replace(settings, folds=count),
+                              scoring=scoring)
+            return run_class_selection(source.table, replace(job, task=task), grid, count,
+                                       activation, scoring, _jobs(jobs) or 1)
+
+        result, bundle = with_enough_folds(search_classes, folds)
         save(bundle, output, overwrite=overwrite)
         if report:
             _write_report(report, result, bundle, overwrite)
@@ -160,11 +174,14 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     check_units(job.units, table, job)  # a scaled run reads the header only here
     budget = _budget(table, job, grid, precision, core, max_flash, max_cycles, grow)
     allowed = None if budget is None else budget["allowed_nodes"]
-    if scaled:
-        result, bundle = scaled(job, grid, settings, allowed_nodes=allowed)
-    else:
-        result, bundle = in_memory_search(run_selection, table, job, grid, settings, growth,
-                                          allowed, UnitClock)
+
+    def search(count):
+        if scaled:
+            return scaled(job, grid, replace(settings, folds=count), allowed_nodes=allowed)
+        return in_memory_search(run_selection, table, job, grid, replace(settings, folds=count),
+                                growth, allowed, UnitClock)
+
+    result, bundle = with_enough_folds(search, folds)
     bundle = with_training_data(bundle, record)
 
     save(bundle, output, overwrite=overwrite)

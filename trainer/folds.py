@@ -44,15 +44,26 @@ def check_folds(folds, n_rows: int) -> None:
                             f"got {folds!r}")
 
 
+class FoldSizeError(NodecastError):
+    """A hashed fold without validation rows or with fewer than 2 training rows (small or very
+    repetitive data): fewer folds may do (the command line's default tries them)."""
+
+    def __init__(self, fold: int, folds: int, rows: int, n_rows: int) -> None:
+        self.numbers = (fold, folds, rows, n_rows)
+        self.where = f"fold {fold} of {folds} gets {rows} of the {n_rows} rows"
+        super().__init__(f"{self.where} (a row's fold comes from a hash of its input values, equal "
+                         "rows share one); use fewer --folds or more rows")
+
+    def __reduce__(self):  # rebuilt from its numbers where it crosses a process boundary
+        return FoldSizeError, self.numbers
+
+
 def check_fold_sizes(counts, n_rows: int) -> None:
-    """NodecastError naming the first fold without validation rows or with fewer than 2 training
+    """FoldSizeError naming the first fold without validation rows or with fewer than 2 training
     rows; ``counts`` holds each fold's rows."""
     for fold, rows in enumerate(np.asarray(counts).tolist()):
         if rows == 0 or n_rows - rows < 2:
-            raise NodecastError(
-                f"fold {fold + 1} of {len(counts)} gets {rows} of the {n_rows} rows (a row's fold "
-                "comes from a hash of its input values, equal rows share one); use fewer --folds "
-                "or more rows")
+            raise FoldSizeError(fold + 1, len(counts), int(rows), n_rows)
 
 
 def fold_indices(X: np.ndarray, folds: int, seed: int) -> list[tuple[np.ndarray, np.ndarray]]:

@@ -115,3 +115,27 @@ def test_help_lists_every_option_with_an_example(capsys):
     for option in ("--nodes", "--neighbors", "--slope-scales", "--ridge", "--folds", "--precision",
                    "--tolerance", "--grow", "--report", "--plot", "--jobs", "Example:"):
         assert option in text
+
+
+def test_default_folds_step_down_where_ten_hashed_folds_leave_one_empty(tmp_path, capsys):
+    # 30 rows of Friedman #1 (Friedman 1991, sklearn.datasets.make_friedman1): under seed 1 the
+    # content hash leaves one of 10 folds empty, not one of 9 (checked here, not assumed)
+    from sklearn.datasets import make_friedman1
+
+    from nodecast.trainer.folds import row_folds
+    from tests.helpers import run_cli, write_csv
+
+    X, y = make_friedman1(30, n_features=5, noise=0.1, random_state=3)
+    X, y = np.round(X, 6), np.round(y, 6)
+    assert np.bincount(row_folds(X, 10, 1), minlength=10).min() == 0
+    assert np.bincount(row_folds(X, 9, 1), minlength=9).min() > 0
+    data = write_csv(tmp_path / "bench.csv", ["a", "b", "c", "d", "e", "y"],
+                     [tuple(map(float, row)) + (float(v),) for row, v in zip(X, y, strict=True)])
+    common = ("select", data, "--target", "y", "--nodes", "5,10", "--ridge", "1e-6", "--seed", "1")
+    run = run_cli(capsys, *common, "-o", tmp_path / "m.ncast", "--report", tmp_path / "r.json")
+    assert run.status == 0, run.err
+    assert "with 10 hashed folds fold" in run.err and "gets 0 of the 30 rows; used 9 folds" in run.err
+    assert json.loads((tmp_path / "r.json").read_text())["folds"] == 9
+    given = run_cli(capsys, *common, "--folds", "10", "-o", tmp_path / "g.ncast")
+    assert given.status == 2 and len(given.err.strip().splitlines()) == 1
+    assert "of 10 gets 0 of the 30 rows" in given.err and not (tmp_path / "g.ncast").exists()
