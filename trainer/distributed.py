@@ -169,7 +169,7 @@ def connect(address: str):
         if not text.isdigit() or int(text) < 1:
             raise NodecastError(f"--cluster local:N takes a positive number of workers, got {address!r}")
         with LocalCluster(n_workers=int(text), threads_per_worker=1, dashboard_address=None,
-                          silence_logs=logging.ERROR) as cluster:  # keep stderr to our one line
+                          silence_logs=logging.CRITICAL) as cluster:  # stderr: our one line
             with Client(cluster) as client:
                 yield client
         return

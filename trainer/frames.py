@@ -84,11 +84,13 @@ def file_partitions(path, job, chunk_rows=None) -> tuple[tuple[str, ...], Cluste
     if str(path).lower().endswith(PARQUET_SUFFIXES):
         frame = dd.read_parquet(path, columns=columns, split_row_groups=True)  # a partition per group
     else:
-        types = {name: np.float64 for name in columns}
+        # every column is parsed (the unused ones as text): with only the used columns, pandas
+        # silently drops the fields of a record longer than the header, which one process refuses
+        types = {name: object for name in header} | {name: np.float64 for name in columns}
         if classify:
             types[job.targets[0]] = object
         blocks = BLOCK_BYTES if _ends_lines_with_newline(path) else None
-        frame = dd.read_csv(path, usecols=columns, dtype=types, blocksize=blocks,
-                            na_filter=False, skipinitialspace=True, encoding="utf-8-sig",
-                            **_exact_floats())
+        frame = dd.read_csv(path, dtype=types, blocksize=blocks, na_filter=False,
+                            skipinitialspace=True, encoding="utf-8-sig", **_exact_floats())
+        frame = frame[columns]
     return header, frame_rows(frame, features, job.targets, classify)

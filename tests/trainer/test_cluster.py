@@ -143,3 +143,22 @@ def test_a_missing_file_for_train_on_a_cluster_is_one_line(tmp_path, capsys, nam
     err = capsys.readouterr().err.strip().splitlines()
     assert stop.value.code == 2 and len(err) == 1 and "cannot read" in err[0], err
     assert not (tmp_path / "m.ncast").exists()
+
+
+@pytest.mark.slow
+def test_a_bad_cell_on_a_local_cluster_is_one_line_without_the_workers_logs(tmp_path):
+    # the workers log a failed task with its traceback; the command prints only its own line
+    import subprocess
+    import sys
+
+    path = _bench(tmp_path / "bench.csv")
+    lines = path.read_text(encoding="utf-8").splitlines()
+    lines[1500] = "0.5,n/a,0.25,0.1,pass"
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    done = subprocess.run([sys.executable, "-m", "nodecast.cli", "train", str(path), "--target",
+                           "rise", "--features", "flow,load,drift", "--cluster", "local:1",
+                           "-o", str(tmp_path / "m.ncast")],
+                          capture_output=True, text=True, timeout=300)
+    assert done.returncode == 2
+    assert done.stderr.count("\n") == 1 and "'n/a'" in done.stderr, done.stderr
+    assert not (tmp_path / "m.ncast").exists()

@@ -61,6 +61,21 @@ def test_a_bad_cell_read_on_the_cluster_is_one_line(tmp_path, synchronous, capsy
     assert len(err) == 1 and "n/a" in err[0] and "pump.csv" in err[0]
 
 
+def test_a_record_longer_than_the_header_is_refused_on_the_cluster_too(tmp_path, synchronous,
+                                                                        capsys):
+    # one process refuses it; the cluster's reader once dropped the extra field and trained
+    path = _log(tmp_path / "pump.csv")
+    lines = path.read_text(encoding="utf-8").splitlines()
+    lines[700] += ",99"
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    for extra in ([], ["--cluster", "sync"]):
+        with pytest.raises(SystemExit) as stop:
+            main(["train", str(path), "--target", "power", *extra, "-o", str(tmp_path / "p.ncast")])
+        err = capsys.readouterr().err.strip().splitlines()
+        assert stop.value.code == 2 and len(err) == 1, err
+        assert not (tmp_path / "p.ncast").exists()
+
+
 def test_the_small_file_is_split_into_several_partitions(tmp_path, synchronous):
     job = TrainingJob(targets=("power",))
     _, rows = frames.file_partitions(_log(tmp_path / "pump.csv"), job)
