@@ -118,6 +118,14 @@ def _raw(stream):
     return stream._stream if isinstance(stream, EscapingStream) else stream
 
 
+def cluster_stage(cluster: str | None) -> str:
+    """The first stage of a streamed (``cluster`` None) or cluster run."""
+    if not cluster:
+        return "reading"
+    return "starting a local Dask cluster" if cluster.startswith("local") else \
+        f"connecting to the Dask scheduler at {cluster}"
+
+
 class EngineClock:
     """verify's ``on_engine`` callback: which runtime runs, and time left from the pace of the
     engines before it (the first one's time is unknown: elapsed only)."""

@@ -25,9 +25,10 @@ def scaled_search(data, source, cluster, chunk_rows, job, grid, settings, scorin
     """(result, bundle) of a search streamed from ``source`` or on the Dask cluster ``cluster``;
     every pass shown on the command's progress line."""
     from nodecast.cli.parsing import check_units
-    from nodecast.cli.progress import Progress
+    from nodecast.cli.progress import Progress, cluster_stage
 
     with Progress("select") as progress:
+        progress.stage(cluster_stage(cluster))
         progress.start()
         if cluster:
             from nodecast.trainer.selection_cluster import select_on_cluster

@@ -114,9 +114,10 @@ def train(data, target, features, domain, units, categorical, method, nodes, nei
 
 def _train_scaled(data, source, job, chunk_rows, cluster):
     """The bundle of ``train`` streamed from disk (``source``) or on a Dask cluster (docs/scale.md)."""
-    from nodecast.cli.progress import Progress
+    from nodecast.cli.progress import Progress, cluster_stage
 
     with Progress("train") as progress:
+        progress.stage(cluster_stage(cluster))
         progress.start()
         try:
             check_units(job.units, source, job)

@@ -91,11 +91,7 @@ def train_on_cluster(data, job, address: str, chunk_rows=None, progress=None):
     """``nodecast train --cluster``: the bundle of ``train`` on the file ``data``, computed on Dask."""
     from nodecast.trainer import distributed, frames
 
-    with distributed.connect(address), distributed.worker_failures():
-        try:
-            header, rows = frames.file_partitions(data, job, chunk_rows)
-            rows.progress = progress
-            return ClusterTraining(header, rows, job).run()
-        except (ValueError, TypeError) as exc:  # a cell the workers' reader refused
-            text = str(exc).rpartition("Original Message:")[2]
-            raise NodecastError(f"{data}: {' '.join(text.split())} (read on the cluster)") from None
+    with distributed.connect(address), distributed.worker_failures(), distributed.reader_errors(data):
+        header, rows = frames.file_partitions(data, job, chunk_rows)
+        rows.progress = progress
+        return ClusterTraining(header, rows, job).run()

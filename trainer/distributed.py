@@ -13,6 +13,7 @@ A worker that dies makes the run fail with one line (Dask retries a task on anot
 from __future__ import annotations
 
 import logging
+import tempfile
 from contextlib import contextmanager
 
 import numpy as np
@@ -168,10 +169,16 @@ def connect(address: str):
         text = address.partition(":")[2] or "2"
         if not text.isdigit() or int(text) < 1:
             raise NodecastError(f"--cluster local:N takes a positive number of workers, got {address!r}")
-        with LocalCluster(n_workers=int(text), threads_per_worker=1, dashboard_address=None,
-                          silence_logs=logging.CRITICAL) as cluster:  # stderr: our one line
-            with Client(cluster) as client:
-                yield client
+        import dask
+
+        # Dask's scratch folder goes with the run (its default, dask-scratch-space, stays behind)
+        with tempfile.TemporaryDirectory(prefix="nodecast-dask-") as scratch, \
+                dask.config.set({"temporary-directory": scratch}):
+            with LocalCluster(n_workers=int(text), threads_per_worker=1, dashboard_address=None,
+                              silence_logs=logging.CRITICAL,  # stderr: our one line
+                              local_directory=scratch) as cluster:
+                with Client(cluster) as client:
+                    yield client
         return
     try:
         client = Client(address, timeout="10s")
@@ -200,3 +207,16 @@ def worker_failures():
             raise NodecastError(f"a Dask worker could not read the data ({one_line(exc)}); no "
                                 "bundle was written") from None
         raise
+
+
+@contextmanager
+def reader_errors(path):
+    """A cell the workers' reader refused (pandas raises ValueError or TypeError): one line naming
+    the file; nodecast's own errors (a constant target, a bad --domain) pass as they are."""
+    try:
+        yield
+    except NodecastError:
+        raise
+    except (ValueError, TypeError) as exc:
+        text = str(exc).rpartition("Original Message:")[2]
+        raise NodecastError(f"{path}: {' '.join(text.split())} (read on the cluster)") from None

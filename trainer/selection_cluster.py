@@ -15,7 +15,6 @@ from __future__ import annotations
 
 import numpy as np
 
-from nodecast.compiler.errors import NodecastError
 from nodecast.trainer import partition_passes as passes
 from nodecast.trainer.cluster_training import ClusterTraining
 from nodecast.trainer.distributed import _merge_anchor_passes
@@ -149,16 +148,10 @@ def select_on_cluster(data, job, grid, settings, address: str, chunk_rows=None, 
     """``nodecast select --cluster``: (result, bundle) of the search and the final fit on Dask."""
     from nodecast.trainer import distributed, frames
 
-    with distributed.connect(address), distributed.worker_failures():
-        try:
-            header, rows = frames.file_partitions(data, job, chunk_rows)
-            rows.progress = progress
-            return _select(header, rows, job, grid, settings, scoring, allowed_nodes)
-        except NodecastError:
-            raise
-        except (ValueError, TypeError) as exc:  # a cell the workers' reader refused
-            text = str(exc).rpartition("Original Message:")[2]
-            raise NodecastError(f"{data}: {' '.join(text.split())} (read on the cluster)") from None
+    with distributed.connect(address), distributed.worker_failures(), distributed.reader_errors(data):
+        header, rows = frames.file_partitions(data, job, chunk_rows)
+        rows.progress = progress
+        return _select(header, rows, job, grid, settings, scoring, allowed_nodes)
 
 
 def _select(header, rows, job, grid, settings, scoring, allowed_nodes):

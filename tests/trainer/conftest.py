@@ -8,16 +8,18 @@ import pytest
 
 
 @pytest.fixture(scope="session")
-def cluster():
+def cluster(tmp_path_factory):
     """A LocalCluster of 2 single-threaded worker processes and its client, started once for the
     cluster tests of train and select (slow)."""
     distributed = pytest.importorskip("distributed")
     import dask
 
     # one retry only, so that a killed-worker test ends after two deaths, not four
-    with dask.config.set({"distributed.scheduler.allowed-failures": 1}):
+    scratch = str(tmp_path_factory.mktemp("dask"))  # not Dask's dask-scratch-space in $TMPDIR
+    with dask.config.set({"distributed.scheduler.allowed-failures": 1,
+                          "temporary-directory": scratch}):
         with distributed.LocalCluster(n_workers=2, threads_per_worker=1, dashboard_address=None,
-                                      processes=True) as local:
+                                      processes=True, local_directory=scratch) as local:
             with distributed.Client(local) as client:
                 yield client
 
