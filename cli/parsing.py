@@ -163,3 +163,11 @@ def with_enough_folds(run, folds: int | None):
                  "(--folds sets them)")
         return result
     raise first
+
+
+def check_scaling(chunk_rows, cluster) -> None:
+    """``--chunk-rows`` is for one process: a cluster's partitions are 64 MiB blocks of a CSV file
+    or a Parquet file's row groups (docs/scale.md)."""
+    if chunk_rows is not None and cluster:
+        raise NodecastError("--chunk-rows is for one process; with --cluster the partitions are "
+                            "64 MiB blocks of a CSV file or the row groups of a Parquet file")

@@ -109,6 +109,7 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     the choice on all rows and save it as a bundle."""
     from nodecast.cli.parsing import (
         DEFAULT_FOLDS,
+        check_scaling,
         check_units,
         parse_domain,
         parse_list,
@@ -128,6 +129,7 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     from nodecast.trainer.training import TrainingJob
 
     check_outputs({"-o": output, "--report": report, "--plot": plot}, {"DATA": data}, overwrite)
+    check_scaling(chunk_rows, cluster)
     if tolerance is not None and precision is None:
         raise NodecastError("--tolerance needs --precision (the precision to estimate it in)")
     job = TrainingJob(
@@ -142,7 +144,7 @@ def select(data, target, features, domain, units, categorical, method, nodes, ne
     settings = SearchSettings(folds or DEFAULT_FOLDS, seed, activation, precision, tolerance,
                               _jobs(jobs))
     source = None if cluster else open_source(data, chunk_rows)
-    scaled = partial(scaled_search, data, source, cluster, chunk_rows) \
+    scaled = partial(scaled_search, data, source, cluster) \
         if cluster or not isinstance(source, MemorySource) else None
     if scaled and grow:
         raise NodecastError("--grow needs the table in memory; read the file whole (a CSV file "

@@ -20,8 +20,7 @@ def in_memory_search(run_selection, table, job, grid, settings, growth, allowed,
             progress=progress)
 
 
-def scaled_search(data, source, cluster, chunk_rows, job, grid, settings, scoring=None,
-                  allowed_nodes=None):
+def scaled_search(data, source, cluster, job, grid, settings, scoring=None, allowed_nodes=None):
     """(result, bundle) of a search streamed from ``source`` or on the Dask cluster ``cluster``;
     every pass shown on the command's progress line."""
     from nodecast.cli.parsing import check_units
@@ -33,8 +32,8 @@ def scaled_search(data, source, cluster, chunk_rows, job, grid, settings, scorin
         if cluster:
             from nodecast.trainer.selection_cluster import select_on_cluster
 
-            return select_on_cluster(data, job, grid, settings, cluster, chunk_rows, scoring,
-                                     allowed_nodes, progress.passes())
+            return select_on_cluster(data, job, grid, settings, cluster, scoring, allowed_nodes,
+                                     progress.passes())
         from nodecast.trainer import selection_stream as stream
 
         try:

@@ -7,6 +7,7 @@ import click
 from nodecast.cli.messages import choice_line, metrics_line, warn_more_nodes_than_rows, warn_rows_outside
 from nodecast.cli.parsing import (
     SEED,
+    check_scaling,
     check_units,
     example,
     parse_domain,
@@ -79,6 +80,7 @@ def train(data, target, features, domain, units, categorical, method, nodes, nei
     from nodecast.trainer.training import train as run_training
 
     check_outputs({"-o": output}, {"DATA": data}, overwrite)  # before training, not after it
+    check_scaling(chunk_rows, cluster)
 
     job = TrainingJob(
         targets=parse_list(target, option="--target"), features=parse_list(features, option="--features"),
@@ -124,7 +126,7 @@ def _train_scaled(data, source, job, chunk_rows, cluster):
             if cluster:
                 from nodecast.trainer.cluster_training import train_on_cluster
 
-                return train_on_cluster(data, job, cluster, chunk_rows, progress.passes())
+                return train_on_cluster(data, job, cluster, progress.passes())
             from nodecast.trainer.streaming import train_streaming
 
             return train_streaming(source, job, progress.passes())

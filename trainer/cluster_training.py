@@ -87,11 +87,11 @@ class ClusterTraining(StreamedTraining):
         self.low, self.high, self.outside = domain.box()
 
 
-def train_on_cluster(data, job, address: str, chunk_rows=None, progress=None):
+def train_on_cluster(data, job, address: str, progress=None):
     """``nodecast train --cluster``: the bundle of ``train`` on the file ``data``, computed on Dask."""
     from nodecast.trainer import distributed, frames
 
     with distributed.connect(address), distributed.worker_failures(), distributed.reader_errors(data):
-        header, rows = frames.file_partitions(data, job, chunk_rows)
+        header, rows = frames.file_partitions(data, job)
         rows.progress = progress
         return ClusterTraining(header, rows, job).run()

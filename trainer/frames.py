@@ -66,7 +66,7 @@ def _ends_lines_with_newline(path, probe: int = 2**20) -> bool:
     return not (cr >= 0 and (lf < 0 or lf > cr + 1))
 
 
-def file_partitions(path, job, chunk_rows=None) -> tuple[tuple[str, ...], ClusterRows]:
+def file_partitions(path, job) -> tuple[tuple[str, ...], ClusterRows]:
     """The header of the training file and its partitions, read by the workers (the file must be
     at the same path for every worker: a shared file system or object store)."""
     import dask.dataframe as dd

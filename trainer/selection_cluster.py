@@ -143,13 +143,13 @@ class ClusterSelection(ClusterTraining):
                     fit.nearest.merge(part[fold])
 
 
-def select_on_cluster(data, job, grid, settings, address: str, chunk_rows=None, scoring=None,
-                      allowed_nodes=None, progress=None):
+def select_on_cluster(data, job, grid, settings, address: str, scoring=None, allowed_nodes=None,
+                      progress=None):
     """``nodecast select --cluster``: (result, bundle) of the search and the final fit on Dask."""
     from nodecast.trainer import distributed, frames
 
     with distributed.connect(address), distributed.worker_failures(), distributed.reader_errors(data):
-        header, rows = frames.file_partitions(data, job, chunk_rows)
+        header, rows = frames.file_partitions(data, job)
         rows.progress = progress
         return _select(header, rows, job, grid, settings, scoring, allowed_nodes)
 

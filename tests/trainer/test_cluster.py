@@ -169,3 +169,15 @@ def test_a_bad_cell_on_a_local_cluster_is_one_line_without_the_workers_logs(tmp_
     assert lines[-1].startswith("nodecast: error: ") and "'n/a'" in lines[-1], done.stderr
     assert all(line.startswith("train: ") for line in lines[:-1]), done.stderr
     assert not (tmp_path / "m.ncast").exists()
+
+
+@pytest.mark.parametrize("command", ["train", "select"])
+def test_chunk_rows_with_a_cluster_is_refused_in_one_line(tmp_path, capsys, command):
+    # the partitions of a cluster are 64 MiB blocks or row groups: a --chunk-rows there would be
+    # silently ignored, so it is refused before anything starts
+    path = _bench(tmp_path / "bench.csv")
+    with pytest.raises(SystemExit) as stop:
+        main([command, str(path), "--target", "rise", "--features", "flow,load,drift",
+              "--chunk-rows", "500", "--cluster", "local:1", "-o", str(tmp_path / "m.ncast")])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert stop.value.code == 2 and len(err) == 1 and "--chunk-rows is for one process" in err[0]
