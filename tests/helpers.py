@@ -63,3 +63,14 @@ def workshop_log(rows: int = 600, seed: int = 0) -> tuple[np.ndarray, np.ndarray
     X = np.repeat(np.column_stack([counts, family, flag, gauge]), 3, axis=0)
     y = X[:, 0] - 0.5 * X[:, 1] + 2 * X[:, 3] + X[:, 6] + rng.normal(0, 0.5, size=X.shape[0])
     return X, y
+
+
+def damage_row_group(path, group: int) -> None:
+    """Scramble bytes of the first column's data page of a Parquet file's row group ``group``: the
+    footer still reads, that row group's data does not."""
+    import pyarrow.parquet as pq
+
+    data = bytearray(path.read_bytes())
+    start = pq.ParquetFile(path).metadata.row_group(group).column(0).data_page_offset
+    data[start + 40:start + 2000] = bytes((7 * b + 13) % 256 for b in data[start + 40:start + 2000])
+    path.write_bytes(bytes(data))

@@ -14,6 +14,7 @@ from nodecast.cli import main  # noqa: E402
 from nodecast.compiler.csvio import read_table  # noqa: E402
 from nodecast.trainer import cluster_training, frames  # noqa: E402
 from nodecast.trainer.training import TrainingJob, train  # noqa: E402
+from tests.helpers import damage_row_group  # noqa: E402
 
 PARTITION_BYTES = 8_000  # about 5 partitions of a small file, for the synchronous fixture (conftest.py)
 
@@ -165,10 +166,7 @@ def test_a_damaged_parquet_row_group_read_on_the_cluster_is_one_line(tmp_path, s
     path = tmp_path / "pump.parquet"
     pq.write_table(pa.table({"speed": X[:, 0], "head": X[:, 1], "power": X[:, 0] ** 3 + X[:, 1]}),
                    path, row_group_size=1000)
-    data = bytearray(path.read_bytes())
-    start = pq.ParquetFile(path).metadata.row_group(2).column(0).data_page_offset
-    data[start + 40:start + 2000] = bytes((7 * b + 13) % 256 for b in data[start + 40:start + 2000])
-    path.write_bytes(bytes(data))
+    damage_row_group(path, 2)
     out = tmp_path / "pump.ncast"
     with pytest.raises(SystemExit) as stop:
         main(["train", str(path), "--target", "power", "--cluster", "sync", "-o", str(out)])

@@ -19,6 +19,7 @@ from nodecast.trainer.row_hash import held_out
 from nodecast.trainer.sources import CsvSource, MemorySource, ParquetSource
 from nodecast.trainer.streaming import train_streaming
 from nodecast.trainer.training import TrainingJob, train
+from tests.helpers import damage_row_group
 
 CHUNK = 150
 
@@ -288,10 +289,7 @@ def test_a_damaged_parquet_row_group_is_one_line_and_writes_nothing(tmp_path, ca
     path = tmp_path / "bench.parquet"
     pq.write_table(pa.table({"flow": X[:, 0], "stage": X[:, 1], "drift": X[:, 2], "rise": rise}),
                    path, row_group_size=1000, compression="snappy")
-    data = bytearray(path.read_bytes())
-    start = pq.ParquetFile(path).metadata.row_group(2).column(0).data_page_offset
-    data[start + 40:start + 2000] = bytes((7 * b + 13) % 256 for b in data[start + 40:start + 2000])
-    path.write_bytes(bytes(data))
+    damage_row_group(path, 2)
     out = tmp_path / "model.ncast"
     with pytest.raises(SystemExit) as stop:
         main(["train", str(path), "--target", "rise", "--nodes", "10", "--chunk-rows", "500",
