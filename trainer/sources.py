@@ -97,9 +97,9 @@ class CsvSource(TableSource):
                 except csv.Error as exc:
                     raise NodecastError(f"{self.source}: line {reader.line_num}: malformed CSV "
                                         f"({exc})") from None
-                except UnicodeDecodeError as exc:
-                    raise NodecastError(f"{self.source}: not UTF-8 text ({exc.reason}) after line "
-                                        f"{reader.line_num}") from None
+                except UnicodeDecodeError:
+                    raise NodecastError(f"{self.source}: not UTF-8 text "
+                                        f"({_first_bad_byte(self.path)})") from None
         except OSError as exc:
             raise NodecastError(f"cannot read {self.source}: {exc.strerror or exc}") from None
 
@@ -264,3 +264,24 @@ def open_source(path, chunk_rows: int | None = None) -> TableSource:
     if chunk_rows is None and small:
         return MemorySource(read_table(path), size)
     return SpilledSource(CsvSource(path, size))
+
+
+def _first_bad_byte(path) -> str:
+    """Where a file stops being UTF-8, as "<reason> at byte N" (N from the file's start): the text
+    reader decodes ahead of the rows it hands out, so the row it was at does not say where."""
+    import codecs
+
+    decoder, offset = codecs.getincrementaldecoder("utf-8")(), 0
+    with open(path, "rb") as file:
+        for block in iter(lambda: file.read(2**20), b""):
+            pending = len(decoder.getstate()[0])  # bytes of a sequence cut by the last block
+            try:
+                decoder.decode(block)
+            except UnicodeDecodeError as exc:
+                return f"{exc.reason} at byte {offset - pending + exc.start}"
+            offset += len(block)
+    try:
+        decoder.decode(b"", final=True)
+    except UnicodeDecodeError as exc:
+        return f"{exc.reason} at byte {offset - len(exc.object) + exc.start}"
+    return "a decoding error"

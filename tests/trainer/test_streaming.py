@@ -297,3 +297,19 @@ def test_a_damaged_parquet_row_group_is_one_line_and_writes_nothing(tmp_path, ca
     err = capsys.readouterr().err.strip().splitlines()
     assert stop.value.code == 2 and not out.exists()
     assert len(err) == 1 and "cannot read" in err[0] and "after data row 2000" in err[0], err
+
+
+@pytest.mark.parametrize("cut", [0, 1])
+def test_a_file_that_stops_being_utf8_is_named_at_its_byte(tmp_path, cut):
+    # the text reader decodes ahead of its rows, so the byte is found again in binary; a
+    # two-byte character split by the 1 MiB read blocks (cut = 1) must not shift it (UTF-8,
+    # RFC 3629: 0xC3 0xA9 is one character, 0xFF never occurs)
+    from nodecast.trainer.sources import _first_bad_byte
+
+    head = b"a" * (2**20 - 1 - cut)
+    data = head + "\u00e9".encode() + b"x" * 10 + b"\xff" + b"tail"
+    path = tmp_path / "bad.csv"
+    path.write_bytes(data)
+    assert _first_bad_byte(path) == f"invalid start byte at byte {len(head) + 2 + 10}"
+    path.write_bytes(b"h\n" + "\u00e9".encode()[:1])  # a character cut by the end of the file
+    assert _first_bad_byte(path) == "unexpected end of data at byte 2"
