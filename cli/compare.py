@@ -8,7 +8,7 @@ import sys
 
 import click
 
-from nodecast.cli.grid import grid_options, layer_values, parse_methods
+from nodecast.cli.grid import layer_values, parse_methods, search_options
 
 # the contenders of nodecast.trainer.comparison (the CLI loads the trainer only when it runs)
 CONTENDERS = ("data-driven", "fixed-interval", "interval", "domain-anchored", "slope-angle",
@@ -25,16 +25,7 @@ EXAMPLE = ("nodecast compare readings.csv --target heatsink_temp --report compar
                                "training rows' range).")
 @click.option("--method", default=",".join(CONTENDERS), show_default=True,
               help="Contenders, comma-separated; fixed-interval is interval with u = 1 only.")
-@click.option("--nodes", default="50,100,250", show_default=True, help="Hidden nodes M to try.")
-@grid_options
-@click.option("--ridge", default="0,1e-6", show_default=True,
-              help="Ridge values lambda to try (0: minimum-norm least squares).")
-@click.option("--folds", type=click.IntRange(min=2),
-              help="Cross-validation folds (by a hash of each row's inputs), the same for "
-                   "every contender. Default: 10, or fewer where 10 leave a fold empty (said on "
-                   "stderr).")
-@click.option("--activation", type=click.Choice(["logistic", "tanh"]), default="logistic",
-              show_default=True)
+@search_options
 @click.option("--seed", type=int, default=0, show_default=True,
               help="Seeds the folds and every hidden-layer draw.")
 @click.option("--jobs", default="auto", show_default=True,

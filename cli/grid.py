@@ -31,6 +31,27 @@ def grid_options(command):
     return command
 
 
+def search_options(command):
+    """Add the options select and compare share: --nodes, the generators' grids (grid_options),
+    --ridge, --folds and --activation."""
+    options = [
+        click.option("--nodes", default="50,100,250", show_default=True,
+                     help="Hidden nodes M to try."),
+        grid_options,
+        click.option("--ridge", default="0,1e-6", show_default=True,
+                     help="Ridge values lambda to try (0: minimum-norm least squares)."),
+        click.option("--folds", type=click.IntRange(min=2),
+                     help="Cross-validation folds (a row's fold: a hash of its input values, so "
+                          "copies of a row share one). Default: 10, or fewer where 10 leave a "
+                          "fold empty (small or repetitive data; said on stderr)."),
+        click.option("--activation", type=click.Choice(["logistic", "tanh"]), default="logistic",
+                     show_default=True),
+    ]
+    for option in reversed(options):
+        command = option(command)
+    return command
+
+
 def layer_values(neighbors, slope_scales, intervals, angle_ranges, weight_sums) -> dict:
     """The values of each generator parameter given on the command line (None: not given)."""
     return {"n_neighbors": _list(neighbors, "--neighbors", _neighbor, "integers or 'default'"),

@@ -14,7 +14,7 @@ from functools import partial
 
 import click
 
-from nodecast.cli.grid import grid_options, layer_values, parse_methods
+from nodecast.cli.grid import layer_values, parse_methods, search_options
 from nodecast.compiler.errors import NodecastError
 from nodecast.compiler.targets import PRECISIONS
 
@@ -37,16 +37,7 @@ EXAMPLE = ("nodecast select readings.csv --target heatsink_temp "
 @click.option("--method", default="data-driven", show_default=True,
               help="Hidden-node generator(s) to search, comma-separated: data-driven, interval, "
                    "domain-anchored, slope-angle, weight-sum.")
-@click.option("--nodes", default="50,100,250", show_default=True, help="Hidden nodes M to try.")
-@grid_options
-@click.option("--ridge", default="0,1e-6", show_default=True,
-              help="Ridge values lambda to try (0: minimum-norm least squares).")
-@click.option("--folds", type=click.IntRange(min=2),
-              help="Cross-validation folds (a row's fold: a hash of its input values, so "
-                   "copies of a row share one). Default: 10, or fewer where 10 leave a fold "
-                   "empty (small or repetitive data; said on stderr).")
-@click.option("--activation", type=click.Choice(["logistic", "tanh"]), default="logistic",
-              show_default=True)
+@search_options
 @click.option("--seed", type=click.IntRange(0, 2**32 - 1), default=0, show_default=True,
               help="Seeds the folds and every hidden-layer draw (the final model's seed).")
 @click.option("--task", type=click.Choice(["regression", "classification"]), default="regression",
